@@ -1,0 +1,51 @@
+//! Atomic output: every file Beadline writes goes to a temporary file beside the target and is
+//! renamed into place only when complete, so a crash or an error never leaves a half-written file.
+
+use crate::error::{Error, Result};
+use std::io::Write;
+use std::path::{Path, PathBuf};
+
+/// The temporary path used while `path` is being written.
+fn temp_path(path: &Path) -> PathBuf {
+    let name = path
+        .file_name()
+        .map(|n| n.to_string_lossy().into_owned())
+        .unwrap_or_else(|| "output".to_string());
+    path.with_file_name(format!(".{name}.{}.part", std::process::id()))
+}
+
+/// Write `path` atomically with the bytes produced by `fill`.
+///
+/// The closure writes into a buffered temporary file; on success the file is flushed, synced and
+/// renamed over `path`. On any error the temporary file is removed and `path` is untouched.
+pub fn write_atomic<F>(path: &Path, fill: F) -> Result<()>
+where
+    F: FnOnce(&mut dyn Write) -> std::io::Result<()>,
+{
+    let tmp = temp_path(path);
+    let result = (|| -> std::io::Result<()> {
+        let file = std::fs::File::create(&tmp)?;
+        let mut writer = std::io::BufWriter::new(file);
+        fill(&mut writer)?;
+        let file = writer.into_inner().map_err(|e| e.into_error())?;
+        file.sync_all()?;
+        std::fs::rename(&tmp, path)
+    })();
+    result.map_err(|e| {
+        let _ = std::fs::remove_file(&tmp);
+        Error::io(path, e)
+    })
+}
+
+/// Write a string atomically.
+pub fn write_text(path: &Path, text: &str) -> Result<()> {
+    write_atomic(path, |w| w.write_all(text.as_bytes()))
+}
+
+/// Write a value as pretty JSON atomically.
+pub fn write_json<T: serde::Serialize>(path: &Path, value: &T) -> Result<()> {
+    write_atomic(path, |w| {
+        serde_json::to_writer_pretty(&mut *w, value).map_err(std::io::Error::other)?;
+        w.write_all(b"\n")
+    })
+}

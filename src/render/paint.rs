@@ -1,0 +1,299 @@
+//! Painting the photograph: a long exposure in linear light. Each flash lights the ball (painted
+//! with the exact area of the disc inside every pixel, shaded as a lit sphere with a highlight) and
+//! the backdrop where the ball does not hide it; ambient light over the whole exposure adds the
+//! backdrop and a faint streak along the path. Then vignetting, photon and read noise, the tone
+//! curve and quantisation.
+//!
+//! Goes in: a list of [`Stamp`]s (disc images with their weights) and the [`Look`] of the photo.
+//! Comes out: linear RGB pixel rows, then an 8 or 16-bit image. The pixel area covered by a disc is
+//! computed in closed form (integral of sqrt(r^2 - x^2), inclusion-exclusion over the pixel's
+//! corners), so the painted centroid and area are exact up to rounding.
+
+use rand::{RngExt, SeedableRng};
+use rand_chacha::ChaCha8Rng;
+use rand_distr::{Distribution, StandardNormal};
+use rayon::prelude::*;
+
+/// Area of { x <= xq, y <= yq } inside the disc of radius `r` centred at the origin.
+fn quadrant_area(xq: f64, yq: f64, r: f64) -> f64 {
+    let x = xq.clamp(-r, r);
+    let y = yq.clamp(-r, r);
+    // Primitive of sqrt(r^2 - t^2).
+    let g = |t: f64| {
+        let t = t.clamp(-r, r);
+        0.5 * (t * (r * r - t * t).max(0.0).sqrt() + r * r * (t / r).clamp(-1.0, 1.0).asin())
+    };
+    let h = |a: f64, b: f64| if b > a { g(b) - g(a) } else { 0.0 };
+    let w = (r * r - y * y).max(0.0).sqrt();
+    // Overlap of [-r, x] with [-w, w].
+    let (lo, hi) = (-w, x.min(w));
+    let inner = (hi - lo).max(0.0);
+    if y >= 0.0 {
+        // Full chord length where |t| > w, h(t) + y where |t| < w.
+        let outer = h(-r, x.min(-w)) + if x > w { h(w, x) } else { 0.0 };
+        h(-r, x) + y * inner + outer
+    } else {
+        if inner <= 0.0 {
+            return 0.0;
+        }
+        y * inner + h(lo, hi)
+    }
+}
+
+/// Exact area of the unit pixel centred at (px, py) covered by the disc centred at (cx, cy) with
+/// radius r. Pixel centres are at integer coordinates, so the pixel spans px - 0.5 .. px + 0.5.
+pub fn disc_coverage(px: f64, py: f64, cx: f64, cy: f64, r: f64) -> f64 {
+    let x0 = px - 0.5 - cx;
+    let x1 = px + 0.5 - cx;
+    let y0 = py - 0.5 - cy;
+    let y1 = py + 0.5 - cy;
+    let a = quadrant_area(x1, y1, r) - quadrant_area(x0, y1, r) - quadrant_area(x1, y0, r)
+        + quadrant_area(x0, y0, r);
+    a.clamp(0.0, 1.0)
+}
+
+/// How a stamp is clipped (a mirror image shows only inside the floor plate).
+#[derive(Debug, Clone, Copy)]
+pub struct Clip {
+    /// Pixel row of the floor's front edge as a line y = a + b x.
+    pub line_a: f64,
+    /// Slope of that line.
+    pub line_b: f64,
+    /// Visible depth of the plate below the line, pixels.
+    pub depth_px: f64,
+}
+
+/// One disc image painted into the exposure.
+#[derive(Debug, Clone, Copy)]
+pub struct Stamp {
+    /// Centre x, pixels.
+    pub x_px: f64,
+    /// Centre y, pixels.
+    pub y_px: f64,
+    /// Radius, pixels.
+    pub r_px: f64,
+    /// Exposure weight (linear exposure of a white surface).
+    pub weight: f64,
+    /// Albedo.
+    pub albedo: f64,
+    /// Colour multipliers.
+    pub rgb: [f64; 3],
+    /// Shade as a lit sphere (false: flat).
+    pub shaded: bool,
+    /// Hides the backdrop (false for a mirror image, which only adds light).
+    pub occludes: bool,
+    /// Optional clip.
+    pub clip: Option<Clip>,
+}
+
+/// Direction towards the flash, camera frame (x right, y down, z towards the camera).
+const LIGHT: [f64; 3] = [-0.3, -0.4, 1.0];
+/// Fraction of the light that is diffuse fill.
+const FILL: f64 = 0.3;
+
+fn shade(dx: f64, dy: f64, r: f64) -> f64 {
+    let ln = (LIGHT[0] * LIGHT[0] + LIGHT[1] * LIGHT[1] + LIGHT[2] * LIGHT[2]).sqrt();
+    let l = [LIGHT[0] / ln, LIGHT[1] / ln, LIGHT[2] / ln];
+    let (nx, ny) = (dx / r, dy / r);
+    let n2 = nx * nx + ny * ny;
+    let (nx, ny, nz) = if n2 >= 1.0 {
+        let s = n2.sqrt();
+        (nx / s, ny / s, 0.0)
+    } else {
+        (nx, ny, (1.0 - n2).sqrt())
+    };
+    let lambert = (nx * l[0] + ny * l[1] + nz * l[2]).max(0.0);
+    let hv = [l[0], l[1], l[2] + 1.0];
+    let hn = (hv[0] * hv[0] + hv[1] * hv[1] + hv[2] * hv[2]).sqrt();
+    let spec = ((nx * hv[0] + ny * hv[1] + nz * hv[2]) / hn)
+        .max(0.0)
+        .powi(40);
+    FILL + (1.0 - FILL) * lambert + 0.35 * spec
+}
+
+/// Accumulated light of one image row: ball light (RGB) and backdrop occlusion.
+#[derive(Debug, Clone)]
+pub struct Exposure {
+    /// Width, pixels.
+    pub width: usize,
+    /// Height, pixels.
+    pub height: usize,
+    /// Light from stamps, linear RGB per pixel.
+    pub light: Vec<[f32; 3]>,
+    /// Exposure weight by which the backdrop is hidden, per pixel.
+    pub hidden: Vec<f32>,
+}
+
+/// Paint all stamps into a fresh exposure, rows in parallel.
+pub fn paint(width: usize, height: usize, stamps: &[Stamp]) -> Exposure {
+    let mut light = vec![[0f32; 3]; width * height];
+    let mut hidden = vec![0f32; width * height];
+    // Stamps sorted by top row so each row scans only candidates.
+    let mut order: Vec<usize> = (0..stamps.len()).collect();
+    order.sort_by(|&a, &b| {
+        let ta = stamps[a].y_px - stamps[a].r_px;
+        let tb = stamps[b].y_px - stamps[b].r_px;
+        ta.total_cmp(&tb)
+    });
+    let tops: Vec<f64> = order
+        .iter()
+        .map(|&i| stamps[i].y_px - stamps[i].r_px - 1.0)
+        .collect();
+    let max_r = stamps.iter().map(|s| s.r_px).fold(0.0, f64::max);
+    light
+        .par_chunks_mut(width)
+        .zip(hidden.par_chunks_mut(width))
+        .enumerate()
+        .for_each(|(row, (lrow, hrow))| {
+            let y = row as f64;
+            let end = tops.partition_point(|&t| t <= y);
+            let start = tops.partition_point(|&t| t < y - 2.0 * max_r - 3.0);
+            for &si in &order[start..end] {
+                let s = &stamps[si];
+                if (y - s.y_px).abs() > s.r_px + 1.0 {
+                    continue;
+                }
+                let x0 = ((s.x_px - s.r_px - 1.0).floor().max(0.0)) as usize;
+                let x1 = ((s.x_px + s.r_px + 1.0).ceil().min(width as f64 - 1.0)).max(-1.0);
+                if x1 < 0.0 {
+                    continue;
+                }
+                for (x, (lp, hp)) in lrow
+                    .iter_mut()
+                    .zip(hrow.iter_mut())
+                    .enumerate()
+                    .take(x1 as usize + 1)
+                    .skip(x0)
+                {
+                    let xf = x as f64;
+                    let (dx, dy) = (xf - s.x_px, y - s.y_px);
+                    let d2 = dx * dx + dy * dy;
+                    let inner = s.r_px - std::f64::consts::FRAC_1_SQRT_2;
+                    let outer = s.r_px + std::f64::consts::FRAC_1_SQRT_2;
+                    let mut cov = if inner > 0.0 && d2 <= inner * inner {
+                        1.0
+                    } else if d2 >= outer * outer {
+                        continue;
+                    } else {
+                        disc_coverage(xf, y, s.x_px, s.y_px, s.r_px)
+                    };
+                    if let Some(c) = s.clip {
+                        let below = y - (c.line_a + c.line_b * xf);
+                        cov *= (below + 0.5).clamp(0.0, 1.0)
+                            * (c.depth_px - below + 0.5).clamp(0.0, 1.0);
+                    }
+                    if cov <= 0.0 {
+                        continue;
+                    }
+                    let sh = if s.shaded { shade(dx, dy, s.r_px) } else { 1.0 };
+                    let v = s.weight * cov * s.albedo * sh;
+                    for (l, tint) in lp.iter_mut().zip(s.rgb) {
+                        *l += (v * tint) as f32;
+                    }
+                    if s.occludes {
+                        *hp += (s.weight * cov) as f32;
+                    }
+                }
+            }
+        });
+    Exposure {
+        width,
+        height,
+        light,
+        hidden,
+    }
+}
+
+/// The finishing of a photo: lens, sensor and storage.
+#[derive(Debug, Clone, Copy)]
+pub struct Finish {
+    /// Relative darkening in the corners.
+    pub vignetting: f64,
+    /// Add photon and read noise.
+    pub noise: bool,
+    /// Full-well capacity, electrons.
+    pub full_well_e: f64,
+    /// Read noise, electrons RMS.
+    pub read_noise_e: f64,
+    /// Apply the sRGB transfer curve (false: linear).
+    pub srgb: bool,
+    /// Seed of the noise.
+    pub seed: u64,
+}
+
+/// sRGB transfer curve (IEC 61966-2-1).
+pub fn srgb_encode(v: f64) -> f64 {
+    if v <= 0.003_130_8 {
+        12.92 * v
+    } else {
+        1.055 * v.powf(1.0 / 2.4) - 0.055
+    }
+}
+
+/// Turn the exposure into stored channel values in 0..1: `backdrop(x, y)` gives the linear RGB
+/// level an unhidden backdrop pixel reaches over the whole exposure, `total_weight` the exposure
+/// weight that level stands for (the stamps hide part of it).
+pub fn finish<B>(
+    exposure: &Exposure,
+    total_weight: f64,
+    backdrop: B,
+    finish: Finish,
+) -> Vec<[f32; 3]>
+where
+    B: Fn(usize, usize) -> [f64; 3] + Sync,
+{
+    let (w, h) = (exposure.width, exposure.height);
+    let cx = (w as f64 - 1.0) / 2.0;
+    let cy = (h as f64 - 1.0) / 2.0;
+    let corner2 = cx * cx + cy * cy;
+    let mut out = vec![[0f32; 3]; w * h];
+    out.par_chunks_mut(w).enumerate().for_each(|(y, row)| {
+        let mut rng = ChaCha8Rng::seed_from_u64(
+            finish.seed ^ (y as u64 + 1).wrapping_mul(0x9E37_79B9_7F4A_7C15),
+        );
+        for (x, px) in row.iter_mut().enumerate() {
+            let i = y * w + x;
+            let bd = backdrop(x, y);
+            let open = (1.0 - exposure.hidden[i] as f64 / total_weight).max(0.0);
+            let (dx, dy) = (x as f64 - cx, y as f64 - cy);
+            let vig = 1.0 - finish.vignetting * (dx * dx + dy * dy) / corner2.max(1.0);
+            for c in 0..3 {
+                let mut v = (exposure.light[i][c] as f64 + open * bd[c]) * vig;
+                if finish.noise {
+                    let e = v.max(0.0) * finish.full_well_e;
+                    let n1: f64 = StandardNormal.sample(&mut rng);
+                    let n2: f64 = StandardNormal.sample(&mut rng);
+                    v = (e + e.sqrt() * n1 + finish.read_noise_e * n2) / finish.full_well_e;
+                } else {
+                    // Keep the random stream identical whether or not noise is on.
+                    let _: f64 = rng.random();
+                }
+                let v = v.clamp(0.0, 1.0);
+                px[c] = if finish.srgb { srgb_encode(v) } else { v } as f32;
+            }
+        }
+    });
+    out
+}
+
+/// Smooth value noise in about -1..1 at a lattice spacing of `cell` pixels (for backdrop texture).
+pub fn value_noise(x: f64, y: f64, cell: f64, seed: u64) -> f64 {
+    let (gx, gy) = (x / cell, y / cell);
+    let (ix, iy) = (gx.floor(), gy.floor());
+    let (fx, fy) = (gx - ix, gy - iy);
+    let lattice = |i: f64, j: f64| {
+        let mut z = seed
+            ^ ((i as i64 as u64).wrapping_mul(0x9E37_79B9_7F4A_7C15))
+            ^ ((j as i64 as u64).wrapping_mul(0xC2B2_AE3D_27D4_EB4F));
+        // splitmix64 finaliser
+        z = (z ^ (z >> 30)).wrapping_mul(0xBF58_476D_1CE4_E5B9);
+        z = (z ^ (z >> 27)).wrapping_mul(0x94D0_49BB_1331_11EB);
+        z ^= z >> 31;
+        (z >> 11) as f64 / (1u64 << 53) as f64 * 2.0 - 1.0
+    };
+    let s = |t: f64| t * t * (3.0 - 2.0 * t);
+    let (sx, sy) = (s(fx), s(fy));
+    let a = lattice(ix, iy) * (1.0 - sx) + lattice(ix + 1.0, iy) * sx;
+    let b = lattice(ix, iy + 1.0) * (1.0 - sx) + lattice(ix + 1.0, iy + 1.0) * sx;
+    a * (1.0 - sy) + b * sy
+}

@@ -1,0 +1,691 @@
+//! Scene description for the renderer and the shot planner: the ball, the incline, the floor, the
+//! strobe, the camera and the look of the photograph. Read from TOML; every quantity is SI with its
+//! unit in the key name (`_m`, `_s`, `_hz`, `_deg`, `_px`, `_mps`).
+//!
+//! Goes in: a TOML text. Comes out: a validated [`Scene`]. Unknown keys and absurd values are
+//! refused with the key named.
+
+use crate::error::{Error, Result};
+use serde::{Deserialize, Serialize};
+use std::path::Path;
+
+/// Standard acceleration of gravity, m/s^2 (3rd CGPM, 1901; ISO 80000-3).
+pub const STANDARD_GRAVITY_MPS2: f64 = 9.80665;
+
+/// A complete scene.
+#[derive(Debug, Clone, Serialize, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct Scene {
+    /// Seed of every random choice (texture, noise, random distractors).
+    #[serde(default)]
+    pub seed: u64,
+    /// The ball.
+    pub ball: Ball,
+    /// Straight incline the ball rolls down from rest; when absent, [`Scene::start`] is used.
+    #[serde(default)]
+    pub incline: Option<Incline>,
+    /// Free start (drop test or throw) when there is no incline.
+    #[serde(default)]
+    pub start: Option<Start>,
+    /// Free flight.
+    #[serde(default)]
+    pub flight: Flight,
+    /// Horizontal floor at world y = 0.
+    #[serde(default)]
+    pub floor: Floor,
+    /// The multi-flash strobe.
+    pub strobe: Strobe,
+    /// The camera.
+    pub camera: Camera,
+    /// The look of the photograph.
+    #[serde(default)]
+    pub photo: Photo,
+    /// Round objects that are not the ball.
+    #[serde(default)]
+    pub distractors: Vec<Distractor>,
+}
+
+/// Build of the ball, which sets its moment-of-inertia factor k = I / (m r^2).
+#[derive(Debug, Clone, Copy, PartialEq, Serialize, Deserialize, Default)]
+#[serde(rename_all = "lowercase")]
+pub enum Build {
+    /// Solid uniform sphere, k = 2/5.
+    #[default]
+    Solid,
+    /// Thin spherical shell, k = 2/3.
+    Shell,
+    /// Thick shell with an inner diameter, k = 0.4 (1 - q^5) / (1 - q^3), q = inner / outer.
+    Thick,
+}
+
+/// The ball.
+#[derive(Debug, Clone, Serialize, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct Ball {
+    /// Outer diameter, metres.
+    pub diameter_m: f64,
+    /// Build: solid, shell or thick.
+    #[serde(default)]
+    pub build: Build,
+    /// Inner diameter of a thick shell, metres.
+    #[serde(default)]
+    pub inner_diameter_m: Option<f64>,
+}
+
+impl Ball {
+    /// Radius, metres.
+    pub fn radius_m(&self) -> f64 {
+        self.diameter_m / 2.0
+    }
+
+    /// Moment-of-inertia factor k = I / (m r^2).
+    pub fn inertia_factor(&self) -> f64 {
+        inertia_factor(
+            self.build,
+            self.inner_diameter_m.map(|d| d / self.diameter_m),
+        )
+    }
+}
+
+/// Moment-of-inertia factor k = I / (m r^2) of a ball build; `inner_ratio` = inner / outer diameter
+/// for a thick shell (standard rigid-body formulas: solid sphere 2/5, thin shell 2/3, thick shell
+/// 2/5 (1 - q^5) / (1 - q^3)).
+pub fn inertia_factor(build: Build, inner_ratio: Option<f64>) -> f64 {
+    match build {
+        Build::Solid => 0.4,
+        Build::Shell => 2.0 / 3.0,
+        Build::Thick => {
+            let q = inner_ratio.unwrap_or(0.0);
+            if q < 1e-9 {
+                0.4
+            } else if (1.0 - q) < 1e-6 {
+                2.0 / 3.0
+            } else {
+                0.4 * (1.0 - q.powi(5)) / (1.0 - q.powi(3))
+            }
+        }
+    }
+}
+
+/// A straight incline descending to the right (+x), ending above the floor.
+#[derive(Debug, Clone, Serialize, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct Incline {
+    /// Rolling length along the slope, metres (the contact point travels this far).
+    pub length_m: f64,
+    /// Angle of the slope above horizontal, degrees.
+    pub angle_deg: f64,
+    /// Height of the incline's lower end above the floor, metres.
+    pub bottom_height_m: f64,
+    /// World x of the incline's lower end, metres.
+    #[serde(default)]
+    pub bottom_x_m: f64,
+    /// Rolling-resistance coefficient (dimensionless, resisting force / normal force).
+    #[serde(default)]
+    pub rolling_resistance: f64,
+}
+
+/// A free start: position of the ball's centre and its velocity at t = 0.
+#[derive(Debug, Clone, Serialize, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct Start {
+    /// Centre x, metres.
+    pub x_m: f64,
+    /// Centre y above the floor, metres.
+    pub y_m: f64,
+    /// Initial horizontal velocity, m/s.
+    #[serde(default)]
+    pub vx_mps: f64,
+    /// Initial vertical velocity (up positive), m/s.
+    #[serde(default)]
+    pub vy_mps: f64,
+}
+
+/// Free flight.
+#[derive(Debug, Clone, Serialize, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct Flight {
+    /// Acceleration of gravity, m/s^2.
+    #[serde(default = "default_gravity")]
+    pub gravity_mps2: f64,
+    /// Quadratic drag: acceleration = -drag_per_m * |v| * v, 1/m (0 = vacuum).
+    #[serde(default)]
+    pub drag_per_m: f64,
+}
+
+fn default_gravity() -> f64 {
+    STANDARD_GRAVITY_MPS2
+}
+
+impl Default for Flight {
+    fn default() -> Self {
+        Flight {
+            gravity_mps2: STANDARD_GRAVITY_MPS2,
+            drag_per_m: 0.0,
+        }
+    }
+}
+
+/// Horizontal floor at y = 0.
+#[derive(Debug, Clone, Serialize, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct Floor {
+    /// Normal coefficient of restitution at zero impact speed.
+    #[serde(default = "default_restitution")]
+    pub restitution: f64,
+    /// Change of restitution per m/s of impact speed, s/m (e = restitution + slope * v_in, clamped
+    /// to 0..1).
+    #[serde(default)]
+    pub restitution_slope_s_per_m: f64,
+    /// Tangential rule: horizontal velocity after a bounce = ratio * before.
+    #[serde(default = "one")]
+    pub tangential_ratio: f64,
+    /// Glossy floor: the ball's mirror image shows in it.
+    #[serde(default)]
+    pub glossy: bool,
+    /// Reflectance of a glossy floor (0..1).
+    #[serde(default = "default_reflectance")]
+    pub reflectance: f64,
+    /// Visible depth of the floor plate in the photo, metres below y = 0.
+    #[serde(default = "default_floor_depth")]
+    pub depth_m: f64,
+}
+
+fn default_restitution() -> f64 {
+    0.8
+}
+fn one() -> f64 {
+    1.0
+}
+fn default_reflectance() -> f64 {
+    0.3
+}
+fn default_floor_depth() -> f64 {
+    0.02
+}
+
+impl Default for Floor {
+    fn default() -> Self {
+        Floor {
+            restitution: default_restitution(),
+            restitution_slope_s_per_m: 0.0,
+            tangential_ratio: 1.0,
+            glossy: false,
+            reflectance: default_reflectance(),
+            depth_m: default_floor_depth(),
+        }
+    }
+}
+
+impl Floor {
+    /// Normal restitution for an impact at `speed_mps` (vertical component).
+    pub fn restitution_at(&self, speed_mps: f64) -> f64 {
+        (self.restitution + self.restitution_slope_s_per_m * speed_mps).clamp(0.0, 1.0)
+    }
+}
+
+/// The multi-flash strobe.
+#[derive(Debug, Clone, Serialize, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct Strobe {
+    /// Flash rate, hertz.
+    pub rate_hz: f64,
+    /// Time of the first flash after release, seconds.
+    #[serde(default)]
+    pub first_flash_s: f64,
+    /// Exposure length from the first flash, seconds; flashes fire while inside it.
+    pub exposure_s: f64,
+    /// Duration of one flash, seconds (motion blur within it).
+    #[serde(default = "default_flash_duration")]
+    pub flash_duration_s: f64,
+    /// Cap on the number of flashes (flash units have one).
+    #[serde(default)]
+    pub max_flashes: Option<usize>,
+}
+
+fn default_flash_duration() -> f64 {
+    20e-6
+}
+
+impl Strobe {
+    /// Flash interval, seconds.
+    pub fn interval_s(&self) -> f64 {
+        1.0 / self.rate_hz
+    }
+
+    /// Times of all flashes, seconds.
+    pub fn flash_times_s(&self) -> Vec<f64> {
+        let count = (self.exposure_s * self.rate_hz + 1e-9).floor() as usize + 1;
+        let count = self.max_flashes.map_or(count, |m| count.min(m));
+        (0..count)
+            .map(|i| self.first_flash_s + i as f64 / self.rate_hz)
+            .collect()
+    }
+}
+
+/// The camera looking at the vertical plane of motion.
+#[derive(Debug, Clone, Serialize, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct Camera {
+    /// Scale in the plane of motion at the image centre, pixels per metre.
+    pub px_per_m: f64,
+    /// Image width, pixels.
+    pub width_px: u32,
+    /// Image height, pixels.
+    pub height_px: u32,
+    /// Pixel x where the world origin (floor level, x = 0) falls.
+    pub origin_x_px: f64,
+    /// Pixel y where the world origin falls.
+    pub origin_y_px: f64,
+    /// Camera roll, degrees (positive turns the picture clockwise).
+    #[serde(default)]
+    pub roll_deg: f64,
+    /// Perspective tilt: rotation of the camera about its vertical axis, degrees.
+    #[serde(default)]
+    pub tilt_deg: f64,
+    /// Focal length in pixels for the perspective and distortion models (default: image width).
+    #[serde(default)]
+    pub focal_px: Option<f64>,
+    /// Radial distortion coefficient k1 (on coordinates normalised by the focal length).
+    #[serde(default)]
+    pub k1: f64,
+    /// Radial distortion coefficient k2.
+    #[serde(default)]
+    pub k2: f64,
+}
+
+/// Bright ball on a dark backdrop, or dark ball on a bright one.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize, Default)]
+#[serde(rename_all = "lowercase")]
+pub enum Polarity {
+    /// Bright ball, dark backdrop.
+    #[default]
+    Bright,
+    /// Dark ball, bright backdrop.
+    Dark,
+}
+
+/// Tone curve from linear sensor values to stored values.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize, Default)]
+#[serde(rename_all = "lowercase")]
+pub enum Tone {
+    /// The sRGB transfer curve, as a camera JPEG.
+    #[default]
+    Srgb,
+    /// Linear, as a raw sensor read-out.
+    Linear,
+}
+
+/// The look of the photograph.
+#[derive(Debug, Clone, Serialize, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct Photo {
+    /// Bright ball on dark, or dark on bright.
+    #[serde(default)]
+    pub polarity: Polarity,
+    /// Linear exposure of a white surface by one flash (default: 0.6 for bright polarity; for
+    /// dark polarity the backdrop level divided by the number of flashes).
+    #[serde(default)]
+    pub flash_exposure: Option<f64>,
+    /// Linear exposure of a white surface by ambient light over the whole exposure.
+    #[serde(default = "default_ambient")]
+    pub ambient_exposure: f64,
+    /// Ball albedo (default 0.9 bright, 0.08 dark).
+    #[serde(default)]
+    pub ball_albedo: Option<f64>,
+    /// Linear brightness the backdrop reaches over the whole exposure, 0..1 (default 0.05 bright,
+    /// 0.75 dark). A ball image hides the backdrop for its own flash only, so a dark ball on a
+    /// bright backdrop dims it by about 1/N of this level for N flashes, as in a real long exposure.
+    #[serde(default)]
+    pub backdrop_level: Option<f64>,
+    /// Linear brightness of the floor plate over the exposure, 0..1.
+    #[serde(default = "default_floor_level")]
+    pub floor_level: f64,
+    /// Linear brightness of the incline over the exposure, 0..1.
+    #[serde(default = "default_incline_level")]
+    pub incline_level: f64,
+    /// Relative amplitude of the backdrop texture.
+    #[serde(default = "default_texture")]
+    pub texture: f64,
+    /// Relative brightness change across the image width.
+    #[serde(default = "default_gradient")]
+    pub gradient: f64,
+    /// Relative darkening in the corners.
+    #[serde(default = "default_vignetting")]
+    pub vignetting: f64,
+    /// Shade the ball as a lit sphere with a highlight (false: flat disc).
+    #[serde(default = "yes")]
+    pub shading: bool,
+    /// Sensor noise on (photon + read noise).
+    #[serde(default = "yes")]
+    pub noise: bool,
+    /// Full-well capacity, electrons (sets the photon noise).
+    #[serde(default = "default_full_well")]
+    pub full_well_e: f64,
+    /// Read noise, electrons RMS.
+    #[serde(default = "default_read_noise")]
+    pub read_noise_e: f64,
+    /// Motion blur within each flash's duration.
+    #[serde(default = "yes")]
+    pub motion_blur: bool,
+    /// Draw the incline and the floor.
+    #[serde(default = "yes")]
+    pub draw_rig: bool,
+    /// Colour (RGB) photo; false writes grey.
+    #[serde(default = "yes")]
+    pub color: bool,
+    /// Ball colour (linear RGB multipliers).
+    #[serde(default = "default_ball_rgb")]
+    pub ball_rgb: [f64; 3],
+    /// Backdrop colour (linear RGB multipliers).
+    #[serde(default = "default_backdrop_rgb")]
+    pub backdrop_rgb: [f64; 3],
+    /// Tone curve.
+    #[serde(default)]
+    pub tone: Tone,
+    /// Bits per channel of a PNG or TIFF: 8 or 16.
+    #[serde(default = "default_bits")]
+    pub bit_depth: u8,
+    /// JPEG quality 1..100 when the output is a JPEG.
+    #[serde(default = "default_quality")]
+    pub jpeg_quality: u8,
+}
+
+fn yes() -> bool {
+    true
+}
+fn default_ambient() -> f64 {
+    0.03
+}
+fn default_floor_level() -> f64 {
+    0.22
+}
+fn default_incline_level() -> f64 {
+    0.3
+}
+fn default_texture() -> f64 {
+    0.15
+}
+fn default_gradient() -> f64 {
+    0.2
+}
+fn default_vignetting() -> f64 {
+    0.25
+}
+fn default_full_well() -> f64 {
+    20000.0
+}
+fn default_read_noise() -> f64 {
+    6.0
+}
+fn default_ball_rgb() -> [f64; 3] {
+    [1.0, 0.55, 0.25]
+}
+fn default_backdrop_rgb() -> [f64; 3] {
+    [0.9, 0.95, 1.0]
+}
+fn default_bits() -> u8 {
+    8
+}
+fn default_quality() -> u8 {
+    92
+}
+
+impl Default for Photo {
+    fn default() -> Self {
+        toml::from_str("").expect("every photo field has a default")
+    }
+}
+
+/// A round object that is not the ball, placed in pixels.
+#[derive(Debug, Clone, Serialize, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct Distractor {
+    /// Centre x, pixels.
+    pub x_px: f64,
+    /// Centre y, pixels.
+    pub y_px: f64,
+    /// Radius, pixels.
+    pub r_px: f64,
+    /// Albedo (0..1).
+    #[serde(default = "default_distractor_albedo")]
+    pub albedo: f64,
+}
+
+fn default_distractor_albedo() -> f64 {
+    0.5
+}
+
+impl Scene {
+    /// Parse and validate a scene from TOML text; `path` names the source in errors.
+    pub fn from_toml(text: &str, path: &Path) -> Result<Scene> {
+        let scene: Scene = toml::from_str(text).map_err(|e| {
+            let msg = e.message().to_string();
+            Error::config(path, format!("invalid scene: {msg}"))
+        })?;
+        scene.validate(path)?;
+        Ok(scene)
+    }
+
+    /// Read, parse and validate a scene file.
+    pub fn load(path: &Path) -> Result<Scene> {
+        let text = std::fs::read_to_string(path).map_err(|e| Error::io(path, e))?;
+        Scene::from_toml(&text, path)
+    }
+
+    /// Refuse absurd values, naming the key.
+    pub fn validate(&self, path: &Path) -> Result<()> {
+        let bad = |key: &str, why: &str| Err(Error::config(path, format!("{key}: {why}")));
+        let positive = |key: &str, v: f64| {
+            if v.is_finite() && v > 0.0 {
+                Ok(())
+            } else {
+                bad(key, "must be a positive finite number")
+            }
+        };
+        let finite = |key: &str, v: f64| {
+            if v.is_finite() {
+                Ok(())
+            } else {
+                bad(key, "must be a finite number")
+            }
+        };
+        let unit = |key: &str, v: f64| {
+            if v.is_finite() && (0.0..=1.0).contains(&v) {
+                Ok(())
+            } else {
+                bad(key, "must be between 0 and 1")
+            }
+        };
+        positive("ball.diameter_m", self.ball.diameter_m)?;
+        if self.ball.build == Build::Thick {
+            match self.ball.inner_diameter_m {
+                Some(d) if d.is_finite() && d >= 0.0 && d < self.ball.diameter_m => {}
+                _ => {
+                    return bad(
+                        "ball.inner_diameter_m",
+                        "a thick shell needs 0 <= inner diameter < diameter",
+                    );
+                }
+            }
+        }
+        match (&self.incline, &self.start) {
+            (Some(inc), None) => {
+                positive("incline.length_m", inc.length_m)?;
+                if !(inc.angle_deg.is_finite() && inc.angle_deg > 0.0 && inc.angle_deg < 90.0) {
+                    return bad("incline.angle_deg", "must be between 0 and 90 degrees");
+                }
+                positive("incline.bottom_height_m", inc.bottom_height_m)?;
+                finite("incline.bottom_x_m", inc.bottom_x_m)?;
+                if !(inc.rolling_resistance.is_finite() && inc.rolling_resistance >= 0.0) {
+                    return bad("incline.rolling_resistance", "must be >= 0");
+                }
+                let th = inc.angle_deg.to_radians();
+                if th.sin() - inc.rolling_resistance * th.cos() <= 0.0 {
+                    return bad(
+                        "incline.rolling_resistance",
+                        "too large: the ball would not start rolling",
+                    );
+                }
+            }
+            (None, Some(s)) => {
+                finite("start.x_m", s.x_m)?;
+                finite("start.vx_mps", s.vx_mps)?;
+                finite("start.vy_mps", s.vy_mps)?;
+                if !(s.y_m.is_finite() && s.y_m >= self.ball.radius_m()) {
+                    return bad(
+                        "start.y_m",
+                        "the ball's centre must start at or above one radius",
+                    );
+                }
+            }
+            (Some(_), Some(_)) => {
+                return bad("start", "give either [incline] or [start], not both");
+            }
+            (None, None) => return bad("incline", "give either [incline] or [start]"),
+        }
+        positive("flight.gravity_mps2", self.flight.gravity_mps2)?;
+        if !(self.flight.drag_per_m.is_finite() && self.flight.drag_per_m >= 0.0) {
+            return bad("flight.drag_per_m", "must be >= 0");
+        }
+        unit("floor.restitution", self.floor.restitution)?;
+        finite(
+            "floor.restitution_slope_s_per_m",
+            self.floor.restitution_slope_s_per_m,
+        )?;
+        unit("floor.tangential_ratio", self.floor.tangential_ratio)?;
+        unit("floor.reflectance", self.floor.reflectance)?;
+        positive("floor.depth_m", self.floor.depth_m)?;
+        positive("strobe.rate_hz", self.strobe.rate_hz)?;
+        if self.strobe.rate_hz > 1e5 {
+            return bad("strobe.rate_hz", "above 100 kHz is not a strobe");
+        }
+        finite("strobe.first_flash_s", self.strobe.first_flash_s)?;
+        if self.strobe.first_flash_s < 0.0 {
+            return bad("strobe.first_flash_s", "must be >= 0 (release is at t = 0)");
+        }
+        positive("strobe.exposure_s", self.strobe.exposure_s)?;
+        if self.strobe.exposure_s * self.strobe.rate_hz > 100_000.0 {
+            return bad("strobe.exposure_s", "more than 100000 flashes");
+        }
+        if !(self.strobe.flash_duration_s.is_finite()
+            && self.strobe.flash_duration_s >= 0.0
+            && self.strobe.flash_duration_s < self.strobe.interval_s())
+        {
+            return bad(
+                "strobe.flash_duration_s",
+                "must be >= 0 and shorter than the flash interval",
+            );
+        }
+        if self.strobe.max_flashes == Some(0) {
+            return bad("strobe.max_flashes", "must be at least 1");
+        }
+        let c = &self.camera;
+        positive("camera.px_per_m", c.px_per_m)?;
+        if c.width_px == 0 || c.height_px == 0 || c.width_px > 20000 || c.height_px > 20000 {
+            return bad("camera.width_px", "image sides must be 1..20000 pixels");
+        }
+        finite("camera.origin_x_px", c.origin_x_px)?;
+        finite("camera.origin_y_px", c.origin_y_px)?;
+        if !(c.roll_deg.is_finite() && c.roll_deg.abs() <= 45.0) {
+            return bad("camera.roll_deg", "must be within +-45 degrees");
+        }
+        if !(c.tilt_deg.is_finite() && c.tilt_deg.abs() <= 60.0) {
+            return bad("camera.tilt_deg", "must be within +-60 degrees");
+        }
+        if let Some(f) = c.focal_px {
+            positive("camera.focal_px", f)?;
+        }
+        if !(c.k1.is_finite() && c.k1.abs() < 1.0) {
+            return bad("camera.k1", "must be within +-1");
+        }
+        if !(c.k2.is_finite() && c.k2.abs() < 1.0) {
+            return bad("camera.k2", "must be within +-1");
+        }
+        let p = &self.photo;
+        if let Some(v) = p.flash_exposure {
+            positive("photo.flash_exposure", v)?;
+        }
+        if !(p.ambient_exposure.is_finite() && p.ambient_exposure >= 0.0) {
+            return bad("photo.ambient_exposure", "must be >= 0");
+        }
+        if let Some(v) = p.ball_albedo {
+            unit("photo.ball_albedo", v)?;
+        }
+        if let Some(v) = p.backdrop_level {
+            unit("photo.backdrop_level", v)?;
+        }
+        unit("photo.floor_level", p.floor_level)?;
+        unit("photo.incline_level", p.incline_level)?;
+        unit("photo.texture", p.texture)?;
+        unit("photo.gradient", p.gradient)?;
+        unit("photo.vignetting", p.vignetting)?;
+        positive("photo.full_well_e", p.full_well_e)?;
+        if !(p.read_noise_e.is_finite() && p.read_noise_e >= 0.0) {
+            return bad("photo.read_noise_e", "must be >= 0");
+        }
+        for (i, v) in p.ball_rgb.iter().chain(p.backdrop_rgb.iter()).enumerate() {
+            if !(v.is_finite() && (0.0..=1.0).contains(v)) {
+                let key = if i < 3 {
+                    "photo.ball_rgb"
+                } else {
+                    "photo.backdrop_rgb"
+                };
+                return bad(key, "colour multipliers must be between 0 and 1");
+            }
+        }
+        if p.bit_depth != 8 && p.bit_depth != 16 {
+            return bad("photo.bit_depth", "must be 8 or 16");
+        }
+        if p.jpeg_quality == 0 || p.jpeg_quality > 100 {
+            return bad("photo.jpeg_quality", "must be 1..100");
+        }
+        for (i, d) in self.distractors.iter().enumerate() {
+            finite(&format!("distractors[{i}].x_px"), d.x_px)?;
+            finite(&format!("distractors[{i}].y_px"), d.y_px)?;
+            positive(&format!("distractors[{i}].r_px"), d.r_px)?;
+            unit(&format!("distractors[{i}].albedo"), d.albedo)?;
+        }
+        Ok(())
+    }
+
+    /// The built-in demo scene: a quality-control rig where a solid rubber ball rolls down a short
+    /// aluminium launch chute and bounces along a steel floor plate under a 25 Hz strobe.
+    pub fn demo() -> Scene {
+        Scene::from_toml(DEMO_SCENE, Path::new("<built-in demo>"))
+            .expect("the built-in demo scene is valid")
+    }
+}
+
+/// TOML text of the built-in demo scene.
+pub const DEMO_SCENE: &str = r#"# Beadline demo: quality-control rig. A solid rubber ball (40 mm) rolls from rest down a
+# 0.25 m aluminium launch chute at 20 degrees, leaves it 0.45 m above a steel floor plate and
+# bounces along it. Strobe at 25 Hz for 1.45 s; camera square to the plane at 1000 px/m.
+seed = 2026
+
+[ball]
+diameter_m = 0.04
+build = "solid"
+
+[incline]
+length_m = 0.25
+angle_deg = 20.0
+bottom_height_m = 0.45
+bottom_x_m = 0.0
+
+[floor]
+restitution = 0.78
+tangential_ratio = 0.97
+
+[strobe]
+rate_hz = 25.0
+first_flash_s = 0.15
+exposure_s = 1.45
+
+[camera]
+px_per_m = 1000.0
+width_px = 1600
+height_px = 900
+origin_x_px = 300.0
+origin_y_px = 820.0
+"#;
