@@ -17,5 +17,6 @@
 pub mod error;
 pub mod output;
 pub mod render;
+pub mod spots;
 
 pub use error::{Error, Result};
