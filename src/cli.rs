@@ -1,8 +1,12 @@
 //! Command-line arguments (what the user typed) and their validation into library settings.
 
-use anyhow::{Context, Result};
+use anyhow::{Context, Result, bail};
+use beadline::background::Polarity;
+use beadline::load::LoadOptions;
 use beadline::render::{self, scene::Scene};
-use clap::{Parser, Subcommand};
+use beadline::report::SpotsDoc;
+use beadline::spots::{self, SpotOptions};
+use clap::{Args as ClapArgs, Parser, Subcommand, ValueEnum};
 use std::path::{Path, PathBuf};
 use std::process::ExitCode;
 
@@ -27,12 +31,282 @@ enum Command {
         #[arg(long)]
         truth: Option<PathBuf>,
     },
+    /// Find every image of the ball in a strobe photo.
+    Spots {
+        /// The photo (JPEG, PNG or TIFF).
+        photo: PathBuf,
+        #[command(flatten)]
+        detect: DetectArgs,
+        #[command(flatten)]
+        out: OutArgs,
+    },
     /// Render the built-in demo scene into a folder and measure it.
     Demo {
         /// Folder for the demo's files.
         #[arg(long, default_value = "beadline-demo")]
         dir: PathBuf,
     },
+}
+
+/// Output format.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, ValueEnum)]
+enum Format {
+    Text,
+    Json,
+    Csv,
+}
+
+/// Ball polarity as typed.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, ValueEnum)]
+enum PolarityArg {
+    Auto,
+    Bright,
+    Dark,
+}
+
+/// Where and how results go.
+#[derive(Debug, Clone, ClapArgs)]
+struct OutArgs {
+    /// Output format.
+    #[arg(long, value_enum, default_value = "text")]
+    format: Format,
+    /// Write the result to FILE (atomically) instead of standard output.
+    #[arg(short = 'o', long = "output", value_name = "FILE")]
+    output: Option<PathBuf>,
+    /// Draw what was found on the photo and write it as PNG.
+    #[arg(long, value_name = "PNG")]
+    overlay: Option<PathBuf>,
+}
+
+/// Detection settings as typed; see `SpotOptions` for what each does.
+#[derive(Debug, Clone, ClapArgs)]
+struct DetectArgs {
+    /// Clean plate: the same scene photographed without the ball.
+    #[arg(long, value_name = "PHOTO")]
+    plate: Option<PathBuf>,
+    /// Ball against background.
+    #[arg(long, value_enum, default_value = "auto")]
+    polarity: PolarityArg,
+    /// Radius range of the ball images, pixels, as MIN..MAX (default: estimated).
+    #[arg(long, value_name = "MIN..MAX")]
+    radius: Option<String>,
+    /// Threshold in robust sigmas of the noise.
+    #[arg(long, default_value_t = 4.5)]
+    threshold_sigma: f32,
+    /// Fixed threshold on the difference from the background, 0..1 (overrides --threshold-sigma).
+    #[arg(long)]
+    threshold_level: Option<f32>,
+    /// Background grid cell, pixels (0 = automatic).
+    #[arg(long, default_value_t = 0)]
+    background_cell: usize,
+    /// Gaussian smoothing before edges, pixels.
+    #[arg(long, default_value_t = 0.7)]
+    smooth: f32,
+    /// Edge points need a gradient above this many noise sigmas.
+    #[arg(long, default_value_t = 4.0)]
+    edge_sigma: f32,
+    /// Smallest fraction of the rim with edge support for a ball image, 0..1.
+    #[arg(long, default_value_t = 0.35)]
+    min_score: f64,
+    /// Ball images' radii may differ from the common radius by this fraction.
+    #[arg(long, default_value_t = 0.12)]
+    radius_tolerance: f64,
+    /// Images fainter than this fraction of the median rim contrast are rejected as reflections.
+    #[arg(long, default_value_t = 0.5)]
+    faint: f64,
+    /// Refuse photos with more candidate regions than this.
+    #[arg(long, default_value_t = 5000)]
+    max_candidates: usize,
+    /// Write each stage's intermediate image into DIR.
+    #[arg(long, value_name = "DIR")]
+    debug_dir: Option<PathBuf>,
+}
+
+/// Validated detection settings.
+struct Detect {
+    plate: Option<PathBuf>,
+    options: SpotOptions,
+    debug_dir: Option<PathBuf>,
+}
+
+fn parse_range(text: &str, name: &str) -> Result<(f64, f64)> {
+    let Some((a, b)) = text.split_once("..") else {
+        bail!("{name}: expected MIN..MAX, got '{text}'");
+    };
+    let (a, b): (f64, f64) = (
+        a.trim()
+            .parse()
+            .with_context(|| format!("{name}: '{a}' is not a number"))?,
+        b.trim()
+            .parse()
+            .with_context(|| format!("{name}: '{b}' is not a number"))?,
+    );
+    if !(a.is_finite() && b.is_finite()) || a > b {
+        bail!("{name}: '{text}' is not a range MIN..MAX with MIN <= MAX");
+    }
+    Ok((a, b))
+}
+
+impl DetectArgs {
+    fn validate(&self) -> Result<Detect> {
+        let mut o = SpotOptions::default();
+        o.background.polarity = match self.polarity {
+            PolarityArg::Auto => None,
+            PolarityArg::Bright => Some(Polarity::Bright),
+            PolarityArg::Dark => Some(Polarity::Dark),
+        };
+        if let Some(r) = &self.radius {
+            let (a, b) = parse_range(r, "--radius")?;
+            if a < 2.0 || b > 2000.0 {
+                bail!("--radius: ball images must be 2..2000 px in radius, got {r}");
+            }
+            o.radius_px = Some((a, b));
+        }
+        let positive = |v: f64, name: &str| -> Result<()> {
+            if v.is_finite() && v > 0.0 {
+                Ok(())
+            } else {
+                bail!("{name}: must be a positive number, got {v}")
+            }
+        };
+        let fraction = |v: f64, name: &str| -> Result<()> {
+            if v.is_finite() && (0.0..=1.0).contains(&v) {
+                Ok(())
+            } else {
+                bail!("{name}: must be between 0 and 1, got {v}")
+            }
+        };
+        positive(self.threshold_sigma as f64, "--threshold-sigma")?;
+        o.threshold.k_sigma = self.threshold_sigma;
+        if let Some(l) = self.threshold_level {
+            if !(l.is_finite() && l > 0.0 && l < 1.0) {
+                bail!("--threshold-level: must be between 0 and 1, got {l}");
+            }
+            o.threshold.level = Some(l);
+        }
+        if self.background_cell != 0 && !(4..=4096).contains(&self.background_cell) {
+            bail!("--background-cell: must be 0 (automatic) or 4..4096 px");
+        }
+        o.background.cell_px = self.background_cell;
+        if !(self.smooth.is_finite() && (0.0..=10.0).contains(&self.smooth)) {
+            bail!("--smooth: must be 0..10 px, got {}", self.smooth);
+        }
+        o.hough.smooth_px = self.smooth;
+        positive(self.edge_sigma as f64, "--edge-sigma")?;
+        o.hough.edge_k_sigma = self.edge_sigma;
+        fraction(self.min_score, "--min-score")?;
+        o.min_score = self.min_score;
+        fraction(self.radius_tolerance, "--radius-tolerance")?;
+        o.radius_tolerance = self.radius_tolerance;
+        fraction(self.faint, "--faint")?;
+        o.faint_fraction = self.faint;
+        if self.max_candidates == 0 {
+            bail!("--max-candidates: must be at least 1");
+        }
+        o.max_candidates = self.max_candidates;
+        Ok(Detect {
+            plate: self.plate.clone(),
+            options: o,
+            debug_dir: self.debug_dir.clone(),
+        })
+    }
+}
+
+/// Write `text` to the output file (atomically) or standard output.
+fn emit(out: &OutArgs, text: &str) -> Result<()> {
+    match &out.output {
+        Some(p) => beadline::output::write_text(p, text)?,
+        None => {
+            use std::io::Write;
+            let mut stdout = std::io::stdout().lock();
+            stdout.write_all(text.as_bytes())?;
+            stdout.flush()?;
+        }
+    }
+    Ok(())
+}
+
+/// Find spots, writing debug images when asked.
+fn detect(photo_path: &Path, detect: &Detect) -> Result<spots::SpotReport> {
+    let load = LoadOptions::default();
+    let photo = beadline::load::load(photo_path, &load)?;
+    let plate = detect
+        .plate
+        .as_deref()
+        .map(|p| beadline::load::load(p, &load))
+        .transpose()?;
+    let mut debug = detect
+        .debug_dir
+        .as_ref()
+        .map(|_| spots::DebugImages::default());
+    let report = spots::find_spots(&photo, plate.as_ref(), &detect.options, debug.as_mut())?;
+    if let (Some(dir), Some(d)) = (&detect.debug_dir, &debug) {
+        write_debug(dir, &photo, &report, d)?;
+    }
+    Ok(report)
+}
+
+fn write_debug(
+    dir: &Path,
+    photo: &beadline::load::Photo,
+    report: &spots::SpotReport,
+    d: &spots::DebugImages,
+) -> Result<()> {
+    use beadline::overlay::{Canvas, GREEN, RED};
+    std::fs::create_dir_all(dir)
+        .with_context(|| format!("{}: cannot create folder", dir.display()))?;
+    let (w, h) = (photo.width, photo.height);
+    let scaled = |v: &[f32]| -> Vec<f32> {
+        let max = v.iter().copied().fold(1e-9f32, f32::max);
+        v.iter().map(|x| x.max(0.0) / max / 0.75).collect()
+    };
+    Canvas::from_luma(
+        w,
+        h,
+        &d.background.iter().map(|v| v / 0.75).collect::<Vec<_>>(),
+    )
+    .save(&dir.join("1-background.png"))?;
+    Canvas::from_luma(w, h, &scaled(&d.difference)).save(&dir.join("2-difference.png"))?;
+    if let Some(m) = &d.mask {
+        let v: Vec<f32> = m
+            .as_raw()
+            .iter()
+            .map(|&b| b as f32 / 255.0 / 0.75)
+            .collect();
+        Canvas::from_luma(m.width() as usize, m.height() as usize, &v)
+            .save(&dir.join("3-threshold.png"))?;
+    }
+    Canvas::from_luma(w, h, &scaled(&d.votes)).save(&dir.join("4-votes.png"))?;
+    let mut c = Canvas::from_luma(w, h, &photo.luma);
+    for s in &report.spots {
+        c.circle(s.x_px, s.y_px, s.r_px, GREEN);
+    }
+    for s in &report.rejected {
+        c.circle(s.x_px, s.y_px, s.r_px, RED);
+    }
+    c.save(&dir.join("5-spots.png"))?;
+    Ok(())
+}
+
+fn spots_overlay(photo: &Path, report: &spots::SpotReport, out: &Path) -> Result<()> {
+    use beadline::overlay::{Canvas, GREEN, RED, YELLOW};
+    let mut c = Canvas::open(photo)?;
+    for (i, s) in report.spots.iter().enumerate() {
+        c.circle(s.x_px, s.y_px, s.r_px, GREEN);
+        c.cross(s.x_px, s.y_px, 3.0, GREEN);
+        c.text(
+            s.x_px + 3.0,
+            s.y_px - s.r_px - 12.0,
+            &i.to_string(),
+            2,
+            YELLOW,
+        );
+    }
+    for s in &report.rejected {
+        c.circle(s.x_px, s.y_px, s.r_px, RED);
+    }
+    c.save(out)?;
+    Ok(())
 }
 
 /// Parse, run, and map the outcome to an exit status.
@@ -64,6 +338,30 @@ fn dispatch(args: Args) -> Result<ExitCode> {
         Command::Render { scene, out, truth } => {
             let scene = Scene::load(&scene)?;
             render_to(&scene, &out, truth.as_deref())?;
+            Ok(ExitCode::SUCCESS)
+        }
+        Command::Spots {
+            photo,
+            detect: d,
+            out,
+        } => {
+            let d = d.validate()?;
+            let report = detect(&photo, &d)?;
+            let doc = SpotsDoc::new(
+                &photo.display().to_string(),
+                &report,
+                &d.options,
+                d.plate.is_some(),
+            );
+            let text = match out.format {
+                Format::Text => doc.text(),
+                Format::Json => serde_json::to_string_pretty(&doc)? + "\n",
+                Format::Csv => doc.csv()?,
+            };
+            if let Some(o) = &out.overlay {
+                spots_overlay(&photo, &report, o)?;
+            }
+            emit(&out, &text)?;
             Ok(ExitCode::SUCCESS)
         }
         Command::Demo { dir } => demo(&dir),

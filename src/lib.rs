@@ -4,6 +4,12 @@
 //! It also renders synthetic strobe photos with exact ground truth.
 //!
 //! Stages, one module each:
+//! - [`load`]: photo file -> grey f32 working image (EXIF orientation, decoding limits).
+//! - [`background`]: background estimate or clean plate, polarity, noise level.
+//! - [`threshold`]: regions that differ from the background (blobs).
+//! - [`hough`]: sub-pixel edge points and the circular Hough transform.
+//! - [`refine`]: joint geometric circle fits with uncertainties.
+//! - [`spots`]: the detection pipeline end to end: photo -> ball images.
 //! - [`render`]: synthetic photos from a scene (physics, camera, exact disc coverage, noise).
 //!
 //! # Examples
@@ -14,9 +20,16 @@
 //! ```
 #![deny(missing_docs)]
 
+pub mod background;
 pub mod error;
+pub mod hough;
+pub mod load;
 pub mod output;
+pub mod overlay;
+pub mod refine;
 pub mod render;
+pub mod report;
 pub mod spots;
+pub mod threshold;
 
 pub use error::{Error, Result};

@@ -19,3 +19,345 @@ pub struct Spot {
     /// Confidence 0..1 (fraction of the rim supported by edge evidence).
     pub score: f64,
 }
+
+use crate::background::{self, Background, BackgroundOptions, Polarity};
+use crate::error::{Error, Result};
+use crate::hough::{self, HoughOptions};
+use crate::load::Photo;
+use crate::refine::{self, CircleFit, RefineOptions};
+use crate::threshold::{self, Blobs, ThresholdOptions};
+use rayon::prelude::*;
+use std::path::Path;
+
+/// Why a candidate was not kept as a ball image.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize)]
+#[serde(rename_all = "snake_case")]
+pub enum Reason {
+    /// Its radius differs from the common radius of the ball images.
+    Radius,
+    /// Too little of its rim is supported by edge points (texture, a straight edge).
+    WeakRim,
+    /// Much fainter than the ball images (a reflection, a shadow).
+    Faint,
+    /// Its centre lies outside the photo.
+    OutsideFrame,
+}
+
+/// A candidate that was not kept, with the reason.
+#[derive(Debug, Clone, Copy, PartialEq, Serialize, Deserialize)]
+pub struct Rejected {
+    /// Centre x, pixels.
+    pub x_px: f64,
+    /// Centre y, pixels.
+    pub y_px: f64,
+    /// Radius, pixels.
+    pub r_px: f64,
+    /// Rim coverage 0..1.
+    pub score: f64,
+    /// Why it was dropped.
+    pub reason: Reason,
+}
+
+/// Every knob of spot finding.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct SpotOptions {
+    /// Background stage.
+    pub background: BackgroundOptions,
+    /// Threshold stage.
+    pub threshold: ThresholdOptions,
+    /// Hough stage.
+    pub hough: HoughOptions,
+    /// Refinement stage.
+    pub refine: RefineOptions,
+    /// Radius range to search, pixels (None: estimated from the isolated blobs).
+    pub radius_px: Option<(f64, f64)>,
+    /// Keep images whose radius is within this fraction of the common radius.
+    pub radius_tolerance: f64,
+    /// Smallest rim coverage of a ball image, 0..1.
+    pub min_score: f64,
+    /// Images whose rim contrast is below this fraction of the median are faint (reflections).
+    pub faint_fraction: f64,
+    /// Refuse photos with more candidate blobs than this (noise or texture, not a strobe photo).
+    pub max_candidates: usize,
+}
+
+impl Default for SpotOptions {
+    fn default() -> Self {
+        SpotOptions {
+            background: BackgroundOptions::default(),
+            threshold: ThresholdOptions::default(),
+            hough: HoughOptions::default(),
+            refine: RefineOptions::default(),
+            radius_px: None,
+            radius_tolerance: 0.12,
+            min_score: 0.35,
+            faint_fraction: 0.5,
+            max_candidates: 5000,
+        }
+    }
+}
+
+/// What spot finding found.
+#[derive(Debug, Clone)]
+pub struct SpotReport {
+    /// Width, pixels.
+    pub width_px: usize,
+    /// Height, pixels.
+    pub height_px: usize,
+    /// Polarity used.
+    pub polarity: Polarity,
+    /// Noise level around the background, luma units.
+    pub noise_sigma: f32,
+    /// Threshold used on the block means, luma units.
+    pub threshold_level: f32,
+    /// Radius range searched, pixels.
+    pub radius_range_px: (f64, f64),
+    /// Common radius of the ball images, pixels (None when nothing was found).
+    pub common_radius_px: Option<f64>,
+    /// Ball images, sorted by x.
+    pub spots: Vec<Spot>,
+    /// Candidates dropped, with the reason.
+    pub rejected: Vec<Rejected>,
+}
+
+/// Intermediate images of the stages, for `--debug-dir`.
+#[derive(Debug, Clone, Default)]
+pub struct DebugImages {
+    /// Background estimate, luma.
+    pub background: Vec<f32>,
+    /// Ball-positive difference.
+    pub difference: Vec<f32>,
+    /// Block mask of the threshold.
+    pub mask: Option<image::GrayImage>,
+    /// Hough accumulator, assembled over the regions.
+    pub votes: Vec<f32>,
+}
+
+/// Estimate the radius range from the compact, isolated blobs.
+fn auto_radius(blobs: &Blobs) -> Option<(f64, f64)> {
+    let mut radii: Vec<f64> = blobs
+        .blobs
+        .iter()
+        .filter(|b| b.is_compact())
+        .map(|b| 0.25 * (b.width_px() + b.height_px()))
+        .collect();
+    if radii.is_empty() {
+        radii = blobs
+            .blobs
+            .iter()
+            .filter(|b| b.blocks >= 4)
+            .map(|b| 0.5 * b.width_px().min(b.height_px()))
+            .collect();
+    }
+    if radii.is_empty() {
+        return None;
+    }
+    radii.sort_by(f64::total_cmp);
+    let r0 = radii[radii.len() / 2];
+    let slack = blobs.block_px as f64;
+    Some(((0.7 * r0 - slack).max(3.0), 1.3 * r0 + slack + 1.0))
+}
+
+/// Find every ball image in `photo`; `plate` is an optional clean plate of the same size.
+pub fn find_spots(
+    photo: &Photo,
+    plate: Option<&Photo>,
+    options: &SpotOptions,
+    mut debug: Option<&mut DebugImages>,
+) -> Result<SpotReport> {
+    let bg: Background = match plate {
+        Some(p) => {
+            if p.width != photo.width || p.height != photo.height {
+                return Err(Error::measure(
+                    &p.path,
+                    format!(
+                        "clean plate is {} x {} px but the photo is {} x {} px",
+                        p.width, p.height, photo.width, photo.height
+                    ),
+                ));
+            }
+            background::from_plate(photo, p, &options.background)
+        }
+        None => background::estimate(photo, &options.background),
+    };
+    let blobs = threshold::find_blobs(photo, &bg, &options.threshold);
+    if blobs.blobs.len() > options.max_candidates {
+        return Err(Error::measure(
+            &photo.path,
+            format!(
+                "{} candidate regions, over the limit of {}: this looks like noise or texture, not a \
+                 strobe photo (raise the limit, the threshold, or give the radius range)",
+                blobs.blobs.len(),
+                options.max_candidates
+            ),
+        ));
+    }
+    let radius = options.radius_px.or_else(|| auto_radius(&blobs));
+    let mut report = SpotReport {
+        width_px: photo.width,
+        height_px: photo.height,
+        polarity: bg.polarity,
+        noise_sigma: bg.noise_sigma,
+        threshold_level: blobs.level,
+        radius_range_px: radius.unwrap_or((0.0, 0.0)),
+        common_radius_px: None,
+        spots: Vec::new(),
+        rejected: Vec::new(),
+    };
+    if let Some(d) = debug.as_deref_mut() {
+        let (w, h) = (photo.width, photo.height);
+        d.background = (0..w * h).map(|i| bg.at(i % w, i / w)).collect();
+        d.difference = (0..w * h)
+            .map(|i| bg.difference(photo, i % w, i / w))
+            .collect();
+        d.mask = Some(blobs.mask.clone());
+        d.votes = vec![0.0; w * h];
+    }
+    let Some((r_min, r_max)) = radius else {
+        return Ok(report);
+    };
+    let margin = (r_max + 4.0).ceil() as usize;
+    let regions: Vec<hough::Region> = blobs
+        .blobs
+        .par_iter()
+        .map(|b| hough::prepare_region(photo, &bg, b, margin, &options.hough))
+        .collect();
+    let voted: Vec<(Vec<hough::Candidate>, Vec<f32>)> = regions
+        .par_iter()
+        .map(|r| hough::vote(r, r_min, r_max, &options.hough))
+        .collect();
+    // Pass 1: free radii, to learn the common radius.
+    let first: Vec<Vec<CircleFit>> = regions
+        .par_iter()
+        .zip(&voted)
+        .map(|(r, (c, _))| refine::refine_region(r, c, None, &options.refine))
+        .collect();
+    let mut good_r: Vec<f64> = first
+        .iter()
+        .flatten()
+        .filter(|f| f.coverage >= 0.7 && f.circle.r_px >= r_min && f.circle.r_px <= r_max)
+        .map(|f| f.circle.r_px)
+        .collect();
+    if good_r.is_empty() {
+        good_r = first
+            .iter()
+            .flatten()
+            .filter(|f| f.coverage >= options.min_score)
+            .map(|f| f.circle.r_px)
+            .collect();
+    }
+    if good_r.is_empty() {
+        return Ok(report);
+    }
+    good_r.sort_by(f64::total_cmp);
+    let common = good_r[good_r.len() / 2];
+    report.common_radius_px = Some(common);
+    // Pass 2: from the first fits, holding the common radius where the rim is short.
+    let fits: Vec<CircleFit> = regions
+        .par_iter()
+        .zip(&first)
+        .zip(&voted)
+        .flat_map_iter(|((r, f), (c, _))| {
+            let mut starts: Vec<hough::Candidate> = f
+                .iter()
+                .map(|f| hough::Candidate {
+                    x_px: f.circle.x_px,
+                    y_px: f.circle.y_px,
+                    r_px: f.circle.r_px,
+                    strength: f.coverage,
+                })
+                .collect();
+            // Hough peaks that pass 1 lost (too few points with the wrong radius) get a retry.
+            for cand in c {
+                if starts
+                    .iter()
+                    .all(|s| (s.x_px - cand.x_px).hypot(s.y_px - cand.y_px) > 0.3 * common)
+                {
+                    starts.push(*cand);
+                }
+            }
+            refine::refine_region(r, &starts, Some(common), &options.refine)
+        })
+        .collect();
+    if let Some(d) = debug {
+        let w = photo.width;
+        for (r, (_, acc)) in regions.iter().zip(&voted) {
+            for y in 0..r.height {
+                for x in 0..r.width {
+                    let v = &mut d.votes[(r.y0 + y) * w + r.x0 + x];
+                    *v = v.max(acc[y * r.width + x]);
+                }
+            }
+        }
+    }
+    // Regions overlap at their margins: one image may be fitted twice.
+    let mut fits = fits;
+    fits.sort_by(|a, b| b.coverage.total_cmp(&a.coverage));
+    let mut unique: Vec<CircleFit> = Vec::new();
+    for f in fits {
+        if unique.iter().all(|u| {
+            (u.circle.x_px - f.circle.x_px).hypot(u.circle.y_px - f.circle.y_px) > 0.3 * common
+        }) {
+            unique.push(f);
+        }
+    }
+    let mut strengths: Vec<f64> = unique
+        .iter()
+        .filter(|f| {
+            f.coverage >= options.min_score
+                && (f.circle.r_px - common).abs() <= options.radius_tolerance * common
+        })
+        .map(|f| f.edge_strength)
+        .collect();
+    strengths.sort_by(f64::total_cmp);
+    let median_strength = strengths.get(strengths.len() / 2).copied().unwrap_or(0.0);
+    for f in unique {
+        let c = f.circle;
+        let reason = if c.x_px < -0.5
+            || c.y_px < -0.5
+            || c.x_px > photo.width as f64 - 0.5
+            || c.y_px > photo.height as f64 - 0.5
+        {
+            Some(Reason::OutsideFrame)
+        } else if (c.r_px - common).abs() > options.radius_tolerance * common {
+            Some(Reason::Radius)
+        } else if f.coverage < options.min_score {
+            Some(Reason::WeakRim)
+        } else if f.edge_strength < options.faint_fraction * median_strength {
+            Some(Reason::Faint)
+        } else {
+            None
+        };
+        match reason {
+            Some(reason) => report.rejected.push(Rejected {
+                x_px: c.x_px,
+                y_px: c.y_px,
+                r_px: c.r_px,
+                score: f.coverage,
+                reason,
+            }),
+            None => report.spots.push(Spot {
+                x_px: c.x_px,
+                y_px: c.y_px,
+                r_px: c.r_px,
+                sigma_px: f.sigma_px,
+                score: f.coverage,
+            }),
+        }
+    }
+    report.spots.sort_by(|a, b| a.x_px.total_cmp(&b.x_px));
+    report.rejected.sort_by(|a, b| a.x_px.total_cmp(&b.x_px));
+    Ok(report)
+}
+
+/// Load a photo (and an optional plate) and find its spots.
+pub fn find_spots_in_file(
+    path: &Path,
+    plate: Option<&Path>,
+    load: &crate::load::LoadOptions,
+    options: &SpotOptions,
+) -> Result<SpotReport> {
+    let photo = crate::load::load(path, load)?;
+    let plate = plate.map(|p| crate::load::load(p, load)).transpose()?;
+    find_spots(&photo, plate.as_ref(), options, None)
+}

@@ -1,0 +1,309 @@
+//! Circular Hough transform (ours): edge points of a region vote for circle centres along their
+//! gradient direction.
+//!
+//! Goes in: a region of the photo around one blob, its background and a radius range. Comes out:
+//! a [`Region`] with sub-pixel edge points and [`Candidate`] centres.
+//!
+//! Method: the ball-positive difference is smoothed with a Gaussian (imageproc), differentiated
+//! with the Sobel operator, thinned by non-maximum suppression along the gradient, and each edge
+//! point is placed at sub-pixel precision by a parabola through the gradient magnitude across the
+//! edge (after Devernay, "A non-maxima suppression method for edge detection with sub-pixel
+//! accuracy", INRIA RR-2724, 1995). Every edge point then votes, with bilinear splatting, for the
+//! centres at distances rmin..rmax along its gradient (the gradient of a bright disc points at its
+//! centre: Kimme, Ballard & Sklansky, "Finding circles by an array of accumulators", CACM 18, 1975).
+//! Peaks are local maxima of the smoothed accumulator within a disc of `nms_fraction` x radius, so
+//! neighbours down to 0.8 radius apart stay separate.
+
+use crate::background::{Background, robust_sigma};
+use crate::load::Photo;
+use crate::threshold::Blob;
+use image::{ImageBuffer, Luma};
+
+/// Settings of the Hough stage.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct HoughOptions {
+    /// Gaussian smoothing before differentiation, pixels (sigma).
+    pub smooth_px: f32,
+    /// Edge points need a gradient above this many robust sigmas of the gradient noise.
+    pub edge_k_sigma: f32,
+    /// Step between voted radii, pixels.
+    pub radius_step_px: f64,
+    /// Peaks are maxima within this fraction of the radius.
+    pub nms_fraction: f64,
+    /// Smallest peak, as a fraction of the votes a complete rim would give.
+    pub min_peak_fraction: f64,
+}
+
+impl Default for HoughOptions {
+    fn default() -> Self {
+        HoughOptions {
+            smooth_px: 0.7,
+            edge_k_sigma: 4.0,
+            radius_step_px: 0.5,
+            nms_fraction: 0.35,
+            min_peak_fraction: 0.12,
+        }
+    }
+}
+
+/// A sub-pixel edge point; the unit gradient points into the ball (to brighter difference).
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct EdgePoint {
+    /// x, pixels (photo coordinates).
+    pub x_px: f64,
+    /// y, pixels.
+    pub y_px: f64,
+    /// Unit gradient x.
+    pub ux: f64,
+    /// Unit gradient y.
+    pub uy: f64,
+    /// Gradient magnitude, luma per pixel.
+    pub magnitude: f32,
+}
+
+/// A crop of the photo around a blob, with its edge points.
+#[derive(Debug, Clone)]
+pub struct Region {
+    /// Left column of the crop in the photo, pixels.
+    pub x0: usize,
+    /// Top row of the crop, pixels.
+    pub y0: usize,
+    /// Width of the crop, pixels.
+    pub width: usize,
+    /// Height of the crop, pixels.
+    pub height: usize,
+    /// Edge points inside the crop.
+    pub edges: Vec<EdgePoint>,
+    /// Smoothed ball-positive difference, row-major over the crop.
+    pub difference: Vec<f32>,
+}
+
+/// A centre proposed by the vote.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct Candidate {
+    /// Centre x, pixels (photo coordinates).
+    pub x_px: f64,
+    /// Centre y, pixels.
+    pub y_px: f64,
+    /// Radius guess, pixels.
+    pub r_px: f64,
+    /// Peak height as a fraction of a complete rim's votes.
+    pub strength: f64,
+}
+
+/// Cut the region around `blob` (with `margin_px`), smooth, differentiate and extract edge points.
+pub fn prepare_region(
+    photo: &Photo,
+    background: &Background,
+    blob: &Blob,
+    margin_px: usize,
+    options: &HoughOptions,
+) -> Region {
+    let x0 = blob.x0.saturating_sub(margin_px);
+    let y0 = blob.y0.saturating_sub(margin_px);
+    let x1 = (blob.x1 + margin_px).min(photo.width - 1);
+    let y1 = (blob.y1 + margin_px).min(photo.height - 1);
+    let (w, h) = (x1 - x0 + 1, y1 - y0 + 1);
+    let mut raw = Vec::with_capacity(w * h);
+    for y in y0..=y1 {
+        for x in x0..=x1 {
+            raw.push(background.difference(photo, x, y));
+        }
+    }
+    let img: ImageBuffer<Luma<f32>, Vec<f32>> =
+        ImageBuffer::from_raw(w as u32, h as u32, raw).expect("crop size matches");
+    let smooth = if options.smooth_px > 0.0 {
+        imageproc::filter::gaussian_blur_f32(&img, options.smooth_px)
+    } else {
+        img
+    };
+    let d = smooth.into_raw();
+    let mut gx = vec![0f32; w * h];
+    let mut gy = vec![0f32; w * h];
+    if w >= 3 && h >= 3 {
+        for y in 1..h - 1 {
+            for x in 1..w - 1 {
+                let p = |dx: isize, dy: isize| {
+                    d[(y as isize + dy) as usize * w + (x as isize + dx) as usize]
+                };
+                gx[y * w + x] =
+                    (p(1, -1) + 2.0 * p(1, 0) + p(1, 1) - p(-1, -1) - 2.0 * p(-1, 0) - p(-1, 1))
+                        / 8.0;
+                gy[y * w + x] =
+                    (p(-1, 1) + 2.0 * p(0, 1) + p(1, 1) - p(-1, -1) - 2.0 * p(0, -1) - p(1, -1))
+                        / 8.0;
+            }
+        }
+    }
+    let mag: Vec<f32> = gx.iter().zip(&gy).map(|(a, b)| a.hypot(*b)).collect();
+    // Noise of one gradient component: robust sigma over the crop (edges are a minority).
+    let mut sample: Vec<f32> = gx.iter().step_by(3).copied().collect();
+    let sigma_g = robust_sigma(&mut sample).max(1e-7);
+    let mut sorted: Vec<f32> = mag.iter().step_by(2).copied().collect();
+    let k = sorted.len().saturating_sub(1) * 98 / 100;
+    let strong = if sorted.is_empty() {
+        0.0
+    } else {
+        *sorted.select_nth_unstable_by(k, f32::total_cmp).1
+    };
+    let threshold = (options.edge_k_sigma * sigma_g).max(0.08 * strong);
+    let interp = |x: f64, y: f64| -> f32 {
+        let (fx, fy) = (x.floor(), y.floor());
+        if fx < 0.0 || fy < 0.0 || fx as usize + 1 >= w || fy as usize + 1 >= h {
+            return 0.0;
+        }
+        let (ix, iy) = (fx as usize, fy as usize);
+        let (ax, ay) = ((x - fx) as f32, (y - fy) as f32);
+        let v = |i: usize, j: usize| mag[j * w + i];
+        (v(ix, iy) * (1.0 - ax) + v(ix + 1, iy) * ax) * (1.0 - ay)
+            + (v(ix, iy + 1) * (1.0 - ax) + v(ix + 1, iy + 1) * ax) * ay
+    };
+    let mut edges = Vec::new();
+    for y in 2..h.saturating_sub(2) {
+        for x in 2..w.saturating_sub(2) {
+            let m = mag[y * w + x];
+            if m <= threshold {
+                continue;
+            }
+            let (ux, uy) = ((gx[y * w + x] / m) as f64, (gy[y * w + x] / m) as f64);
+            let (xf, yf) = (x as f64, y as f64);
+            let before = interp(xf - ux, yf - uy);
+            let after = interp(xf + ux, yf + uy);
+            if m < before || m <= after {
+                continue;
+            }
+            let denom = before - 2.0 * m + after;
+            let offset = if denom < 0.0 {
+                (0.5 * (before - after) / denom).clamp(-0.5, 0.5) as f64
+            } else {
+                0.0
+            };
+            edges.push(EdgePoint {
+                x_px: (x0 + x) as f64 + offset * ux,
+                y_px: (y0 + y) as f64 + offset * uy,
+                ux,
+                uy,
+                magnitude: m,
+            });
+        }
+    }
+    Region {
+        x0,
+        y0,
+        width: w,
+        height: h,
+        edges,
+        difference: d,
+    }
+}
+
+/// Vote for centres of circles with radii in `r_min_px..r_max_px` and return the peaks, strongest
+/// first, plus the accumulator (row-major over the region) for debugging.
+pub fn vote(
+    region: &Region,
+    r_min_px: f64,
+    r_max_px: f64,
+    options: &HoughOptions,
+) -> (Vec<Candidate>, Vec<f32>) {
+    let (w, h) = (region.width, region.height);
+    let mut acc = vec![0f32; w * h];
+    let steps = (((r_max_px - r_min_px) / options.radius_step_px).ceil() as usize).max(1);
+    // Radius histogram per accumulator cell is too costly; keep the vote-weighted mean radius.
+    let mut rsum = vec![0f32; w * h];
+    for e in &region.edges {
+        let (ex, ey) = (e.x_px - region.x0 as f64, e.y_px - region.y0 as f64);
+        for s in 0..=steps {
+            let r = r_min_px + (r_max_px - r_min_px) * s as f64 / steps as f64;
+            let (cx, cy) = (ex + r * e.ux, ey + r * e.uy);
+            let (fx, fy) = (cx.floor(), cy.floor());
+            if fx < 0.0 || fy < 0.0 || fx as usize + 1 >= w || fy as usize + 1 >= h {
+                continue;
+            }
+            let (ix, iy) = (fx as usize, fy as usize);
+            let (ax, ay) = ((cx - fx) as f32, (cy - fy) as f32);
+            for (i, j, wgt) in [
+                (ix, iy, (1.0 - ax) * (1.0 - ay)),
+                (ix + 1, iy, ax * (1.0 - ay)),
+                (ix, iy + 1, (1.0 - ax) * ay),
+                (ix + 1, iy + 1, ax * ay),
+            ] {
+                acc[j * w + i] += wgt;
+                rsum[j * w + i] += wgt * r as f32;
+            }
+        }
+    }
+    // Smooth the accumulator with a 3 x 3 box.
+    let mut sm = vec![0f32; w * h];
+    for y in 1..h.saturating_sub(1) {
+        for x in 1..w.saturating_sub(1) {
+            let mut s = 0.0;
+            for j in y - 1..=y + 1 {
+                for i in x - 1..=x + 1 {
+                    s += acc[j * w + i];
+                }
+            }
+            sm[y * w + x] = s;
+        }
+    }
+    let r_mid = 0.5 * (r_min_px + r_max_px);
+    // A complete rim: about 2 pi r edge points, each landing (steps + 1) votes spread over the
+    // radii; the ones near the true radius (within the 3 x 3 box) count.
+    let per_point =
+        (1.5 / ((r_max_px - r_min_px) / steps as f64).max(1e-9)).min(steps as f64 + 1.0);
+    let full = (2.0 * std::f64::consts::PI * r_mid * per_point) as f32;
+    let min_peak = (options.min_peak_fraction as f32) * full;
+    let nms = (options.nms_fraction * r_min_px).max(1.5);
+    let nms_i = nms.ceil() as isize;
+    let mut peaks = Vec::new();
+    for y in 1..h.saturating_sub(1) {
+        for x in 1..w.saturating_sub(1) {
+            let v = sm[y * w + x];
+            if v < min_peak {
+                continue;
+            }
+            let mut is_max = true;
+            'scan: for dy in -nms_i..=nms_i {
+                for dx in -nms_i..=nms_i {
+                    if (dx == 0 && dy == 0) || ((dx * dx + dy * dy) as f64) > nms * nms {
+                        continue;
+                    }
+                    let (xx, yy) = (x as isize + dx, y as isize + dy);
+                    if xx < 0 || yy < 0 || xx as usize >= w || yy as usize >= h {
+                        continue;
+                    }
+                    let o = sm[yy as usize * w + xx as usize];
+                    // Ties go to the first in scan order.
+                    if o > v || (o == v && (dy < 0 || (dy == 0 && dx < 0))) {
+                        is_max = false;
+                        break 'scan;
+                    }
+                }
+            }
+            if !is_max {
+                continue;
+            }
+            // Sub-pixel peak: centroid of the raw votes in the 3 x 3 box.
+            let (mut sx, mut sy, mut s, mut sr) = (0.0, 0.0, 0.0, 0.0);
+            for j in y - 1..=y + 1 {
+                for i in x - 1..=x + 1 {
+                    let a = acc[j * w + i] as f64;
+                    sx += a * i as f64;
+                    sy += a * j as f64;
+                    s += a;
+                    sr += rsum[j * w + i] as f64;
+                }
+            }
+            if s <= 0.0 {
+                continue;
+            }
+            peaks.push(Candidate {
+                x_px: region.x0 as f64 + sx / s,
+                y_px: region.y0 as f64 + sy / s,
+                r_px: sr / s,
+                strength: (v / full) as f64,
+            });
+        }
+    }
+    peaks.sort_by(|a, b| b.strength.total_cmp(&a.strength));
+    (peaks, sm)
+}

@@ -1,0 +1,406 @@
+//! Sub-pixel refinement: circles fitted to the edge points each ball image owns.
+//!
+//! Goes in: a [`Region`]'s sub-pixel edge points and the Hough [`Candidate`]s in it. Comes out:
+//! [`CircleFit`]s with centre, radius, a 1-sigma centre uncertainty and a rim-coverage score.
+//!
+//! Method: an algebraic start (Kasa's fit, "A circle fitting procedure and its error analysis",
+//! IEEE Trans. Instrum. Meas. 25, 1976) and a geometric fit minimising the orthogonal distances by
+//! Levenberg-Marquardt (Gander, Golub & Strebel, "Least-squares fitting of circles and ellipses",
+//! BIT 34, 1994). The images of a cluster are fitted jointly by alternation: every edge point is
+//! given to the one circle whose rim it lies on and whose centre its gradient points at; points
+//! that two rims claim are left out, so each circle is fitted to the arcs it owns; circles that own
+//! too little of their rim keep the photo's common radius. The covariance is the Gauss-Newton one
+//! scaled by the residual variance and inflated for the correlation of neighbouring edge points
+//! (lag-1 autocorrelation of the residuals along the rim, AR(1) variance factor (1 + rho)/(1 - rho)).
+
+use crate::hough::{Candidate, EdgePoint, Region};
+use nalgebra::{Matrix3, Vector3};
+
+/// A circle.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct Circle {
+    /// Centre x, pixels.
+    pub x_px: f64,
+    /// Centre y, pixels.
+    pub y_px: f64,
+    /// Radius, pixels.
+    pub r_px: f64,
+}
+
+/// Result of a geometric fit.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct GeometricFit {
+    /// The fitted circle.
+    pub circle: Circle,
+    /// Covariance of (x, y, r) (r row and column zero when the radius was held), pixels^2.
+    pub covariance: Matrix3<f64>,
+    /// RMS orthogonal residual, pixels.
+    pub rms_px: f64,
+}
+
+/// Kasa's algebraic fit: least squares of x^2 + y^2 + D x + E y + F = 0. Needs 3 points not on
+/// one line.
+pub fn kasa_fit(points: &[[f64; 2]]) -> Option<Circle> {
+    if points.len() < 3 {
+        return None;
+    }
+    let n = points.len() as f64;
+    let (mx, my) = points
+        .iter()
+        .fold((0.0, 0.0), |(a, b), p| (a + p[0] / n, b + p[1] / n));
+    let mut ata = Matrix3::<f64>::zeros();
+    let mut atb = Vector3::<f64>::zeros();
+    for p in points {
+        let (x, y) = (p[0] - mx, p[1] - my);
+        let row = Vector3::new(x, y, 1.0);
+        let z = -(x * x + y * y);
+        ata += row * row.transpose();
+        atb += row * z;
+    }
+    let sol = ata.lu().solve(&atb)?;
+    let (cx, cy) = (-sol[0] / 2.0, -sol[1] / 2.0);
+    let r2 = cx * cx + cy * cy - sol[2];
+    if r2.is_nan() || r2 <= 0.0 || !r2.is_finite() {
+        return None;
+    }
+    Some(Circle {
+        x_px: cx + mx,
+        y_px: cy + my,
+        r_px: r2.sqrt(),
+    })
+}
+
+/// Geometric circle fit by Levenberg-Marquardt from `start`; `fixed_r` holds the radius.
+pub fn geometric_fit(
+    points: &[[f64; 2]],
+    start: Circle,
+    fixed_r: Option<f64>,
+) -> Option<GeometricFit> {
+    let p = if fixed_r.is_some() { 2 } else { 3 };
+    if points.len() <= p {
+        return None;
+    }
+    let mut c = start;
+    if let Some(r) = fixed_r {
+        c.r_px = r;
+    }
+    let cost = |c: &Circle| -> f64 {
+        points
+            .iter()
+            .map(|q| {
+                let d = (q[0] - c.x_px).hypot(q[1] - c.y_px) - c.r_px;
+                d * d
+            })
+            .sum()
+    };
+    let normal = |c: &Circle| -> (Matrix3<f64>, Vector3<f64>) {
+        let mut jtj = Matrix3::zeros();
+        let mut jtr = Vector3::zeros();
+        for q in points {
+            let (dx, dy) = (q[0] - c.x_px, q[1] - c.y_px);
+            let rho = dx.hypot(dy).max(1e-12);
+            let res = rho - c.r_px;
+            let j = Vector3::new(
+                -dx / rho,
+                -dy / rho,
+                if fixed_r.is_some() { 0.0 } else { -1.0 },
+            );
+            jtj += j * j.transpose();
+            jtr += j * res;
+        }
+        if fixed_r.is_some() {
+            jtj[(2, 2)] = 1.0;
+        }
+        (jtj, jtr)
+    };
+    let mut lambda = 1e-3;
+    let mut f = cost(&c);
+    for _ in 0..100 {
+        let (jtj, jtr) = normal(&c);
+        let mut a = jtj;
+        for i in 0..3 {
+            a[(i, i)] *= 1.0 + lambda;
+        }
+        let Some(step) = a.lu().solve(&(-jtr)) else {
+            break;
+        };
+        let trial = Circle {
+            x_px: c.x_px + step[0],
+            y_px: c.y_px + step[1],
+            r_px: if fixed_r.is_some() {
+                c.r_px
+            } else {
+                c.r_px + step[2]
+            },
+        };
+        let ft = cost(&trial);
+        if ft <= f {
+            let small = step.norm() < 1e-10 * (1.0 + c.r_px);
+            c = trial;
+            let done = (f - ft) <= 1e-14 * f.max(1e-300) || small;
+            f = ft;
+            lambda = (lambda * 0.3).max(1e-12);
+            if done {
+                break;
+            }
+        } else {
+            lambda *= 10.0;
+            if lambda > 1e12 {
+                break;
+            }
+        }
+    }
+    if c.r_px.is_nan() || c.r_px <= 0.0 || !c.x_px.is_finite() || !c.y_px.is_finite() {
+        return None;
+    }
+    let (jtj, _) = normal(&c);
+    let dof = (points.len() - p) as f64;
+    let s2 = f / dof;
+    let mut cov = jtj.try_inverse()? * s2;
+    if fixed_r.is_some() {
+        for i in 0..3 {
+            cov[(2, i)] = 0.0;
+            cov[(i, 2)] = 0.0;
+        }
+    }
+    Some(GeometricFit {
+        circle: c,
+        covariance: cov,
+        rms_px: (f / points.len() as f64).sqrt(),
+    })
+}
+
+/// Settings of the refinement stage.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct RefineOptions {
+    /// Largest distance of an edge point from a rim to belong to it, pixels.
+    pub rim_tolerance_px: f64,
+    /// Smallest cosine between an edge point's gradient and the direction to the centre.
+    pub min_cosine: f64,
+    /// Rounds of assignment and fitting in a cluster.
+    pub rounds: usize,
+    /// Below this rim coverage the radius is held at the photo's common radius.
+    pub free_radius_coverage: f64,
+    /// Fewest owned edge points for a fit.
+    pub min_points: usize,
+}
+
+impl Default for RefineOptions {
+    fn default() -> Self {
+        RefineOptions {
+            rim_tolerance_px: 1.5,
+            min_cosine: 0.75,
+            rounds: 4,
+            free_radius_coverage: 0.6,
+            min_points: 8,
+        }
+    }
+}
+
+/// A refined ball image candidate.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct CircleFit {
+    /// The circle.
+    pub circle: Circle,
+    /// 1-sigma centre uncertainty per axis, pixels.
+    pub sigma_px: f64,
+    /// Fraction of the rim (64 angular bins) with owned edge points within 1 px.
+    pub coverage: f64,
+    /// RMS residual, pixels.
+    pub rms_px: f64,
+    /// Owned edge points.
+    pub points: usize,
+    /// Median gradient magnitude of the owned points (contrast of the rim).
+    pub edge_strength: f64,
+    /// The radius was held at the common radius.
+    pub radius_held: bool,
+}
+
+const BINS: usize = 64;
+
+fn coverage_of(c: &Circle, pts: &[[f64; 2]]) -> f64 {
+    let mut bins = [false; BINS];
+    for q in pts {
+        let (dx, dy) = (q[0] - c.x_px, q[1] - c.y_px);
+        if (dx.hypot(dy) - c.r_px).abs() <= 1.0 {
+            let a = dy.atan2(dx) + std::f64::consts::PI;
+            let b = ((a / (2.0 * std::f64::consts::PI)) * BINS as f64) as usize % BINS;
+            bins[b] = true;
+        }
+    }
+    bins.iter().filter(|b| **b).count() as f64 / BINS as f64
+}
+
+/// Variance inflation for residuals correlated along the rim (AR(1) model).
+fn correlation_factor(c: &Circle, pts: &[[f64; 2]]) -> f64 {
+    let mut r: Vec<(f64, f64)> = pts
+        .iter()
+        .map(|q| {
+            let (dx, dy) = (q[0] - c.x_px, q[1] - c.y_px);
+            (dy.atan2(dx), dx.hypot(dy) - c.r_px)
+        })
+        .collect();
+    if r.len() < 6 {
+        return 1.0;
+    }
+    r.sort_by(|a, b| a.0.total_cmp(&b.0));
+    let mean = r.iter().map(|v| v.1).sum::<f64>() / r.len() as f64;
+    let var: f64 = r.iter().map(|v| (v.1 - mean).powi(2)).sum();
+    if var <= 0.0 {
+        return 1.0;
+    }
+    let lag: f64 = r
+        .windows(2)
+        .map(|w| (w[0].1 - mean) * (w[1].1 - mean))
+        .sum();
+    let rho = (lag / var).clamp(0.0, 0.9);
+    (1.0 + rho) / (1.0 - rho)
+}
+
+/// Fit all candidates of a region jointly. `common_r_px` is the photo's common radius when known.
+pub fn refine_region(
+    region: &Region,
+    candidates: &[Candidate],
+    common_r_px: Option<f64>,
+    options: &RefineOptions,
+) -> Vec<CircleFit> {
+    let mut circles: Vec<Circle> = candidates
+        .iter()
+        .map(|c| Circle {
+            x_px: c.x_px,
+            y_px: c.y_px,
+            r_px: common_r_px.unwrap_or(c.r_px),
+        })
+        .collect();
+    let mut held = vec![false; circles.len()];
+    let mut alive = vec![true; circles.len()];
+    let mut result: Vec<Option<CircleFit>> = vec![None; circles.len()];
+    for round in 0..options.rounds {
+        let tol = if round == 0 {
+            2.0 * options.rim_tolerance_px
+        } else {
+            options.rim_tolerance_px
+        };
+        let owned = assign(&region.edges, &circles, &alive, tol, options.min_cosine);
+        for (i, pts_idx) in owned.iter().enumerate() {
+            if !alive[i] {
+                continue;
+            }
+            if pts_idx.len() < options.min_points {
+                alive[i] = false;
+                result[i] = None;
+                continue;
+            }
+            let pts: Vec<[f64; 2]> = pts_idx
+                .iter()
+                .map(|&k| [region.edges[k].x_px, region.edges[k].y_px])
+                .collect();
+            let cov = coverage_of(&circles[i], &pts);
+            let hold = match common_r_px {
+                Some(r) if cov < options.free_radius_coverage => Some(r),
+                _ => None,
+            };
+            let Some(fit) = geometric_fit(&pts, circles[i], hold) else {
+                alive[i] = false;
+                result[i] = None;
+                continue;
+            };
+            // Drop gross outliers (beyond 3 robust sigmas) and refit once.
+            let mut res: Vec<f64> = pts
+                .iter()
+                .map(|q| {
+                    ((q[0] - fit.circle.x_px).hypot(q[1] - fit.circle.y_px) - fit.circle.r_px).abs()
+                })
+                .collect();
+            let mut sorted = res.clone();
+            sorted.sort_by(f64::total_cmp);
+            let cut = (3.0 * 1.4826 * sorted[sorted.len() / 2]).max(0.05);
+            let kept: Vec<[f64; 2]> = pts
+                .iter()
+                .zip(res.iter_mut())
+                .filter(|(_, r)| **r <= cut)
+                .map(|(q, _)| *q)
+                .collect();
+            let fit = if kept.len() >= options.min_points && kept.len() < pts.len() {
+                geometric_fit(&kept, fit.circle, hold).unwrap_or(fit)
+            } else {
+                fit
+            };
+            let used = if kept.len() >= options.min_points {
+                &kept
+            } else {
+                &pts
+            };
+            circles[i] = fit.circle;
+            held[i] = hold.is_some();
+            let mut mags: Vec<f32> = pts_idx.iter().map(|&k| region.edges[k].magnitude).collect();
+            let mid = mags.len() / 2;
+            let strength = *mags.select_nth_unstable_by(mid, f32::total_cmp).1 as f64;
+            let inflation = correlation_factor(&fit.circle, used);
+            let var = 0.5 * (fit.covariance[(0, 0)] + fit.covariance[(1, 1)]) * inflation;
+            result[i] = Some(CircleFit {
+                circle: fit.circle,
+                sigma_px: var.max(0.0).sqrt(),
+                coverage: coverage_of(&fit.circle, used),
+                rms_px: fit.rms_px,
+                points: used.len(),
+                edge_strength: strength,
+                radius_held: held[i],
+            });
+        }
+        // Merge circles that converged onto one image: keep the better supported.
+        for i in 0..circles.len() {
+            for j in i + 1..circles.len() {
+                if !(alive[i] && alive[j]) {
+                    continue;
+                }
+                let d =
+                    (circles[i].x_px - circles[j].x_px).hypot(circles[i].y_px - circles[j].y_px);
+                if d < 0.3 * circles[i].r_px.min(circles[j].r_px) {
+                    let pi = result[i].map_or(0, |f| f.points);
+                    let pj = result[j].map_or(0, |f| f.points);
+                    let drop = if pi >= pj { j } else { i };
+                    alive[drop] = false;
+                    result[drop] = None;
+                }
+            }
+        }
+    }
+    result.into_iter().flatten().collect()
+}
+
+/// Give each edge point to the one circle whose rim it lies on and whose centre its gradient
+/// points at; points claimed by two rims are left out.
+fn assign(
+    edges: &[EdgePoint],
+    circles: &[Circle],
+    alive: &[bool],
+    tol: f64,
+    min_cos: f64,
+) -> Vec<Vec<usize>> {
+    let mut owned = vec![Vec::new(); circles.len()];
+    for (k, e) in edges.iter().enumerate() {
+        let mut owner = None;
+        let mut claims = 0;
+        for (i, c) in circles.iter().enumerate() {
+            if !alive[i] {
+                continue;
+            }
+            let (dx, dy) = (c.x_px - e.x_px, c.y_px - e.y_px);
+            let rho = dx.hypot(dy);
+            if (rho - c.r_px).abs() > tol || rho < 1e-9 {
+                continue;
+            }
+            let cos = (dx * e.ux + dy * e.uy) / rho;
+            if cos < min_cos {
+                continue;
+            }
+            claims += 1;
+            owner = Some(i);
+        }
+        if claims == 1 {
+            owned[owner.expect("one claim")].push(k);
+        }
+    }
+    owned
+}

@@ -1,0 +1,131 @@
+//! Report: the output documents of every command, in one place, so their layout is pinned.
+//!
+//! Goes in: stage results. Comes out: serde types (the JSON interface for rig pipelines, versioned
+//! by [`SCHEMA_VERSION`]), text for a person and CSV rows.
+
+use crate::background::Polarity;
+use crate::spots::{Rejected, Spot, SpotOptions, SpotReport};
+use serde::{Deserialize, Serialize};
+
+/// Version of every JSON document Beadline writes; raised when a key changes meaning or goes.
+pub const SCHEMA_VERSION: u32 = 1;
+
+/// The settings spot finding used, as they were resolved.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct SpotSettings {
+    /// Polarity used (detected or given).
+    pub polarity: Polarity,
+    /// Radius range searched, pixels.
+    pub radius_min_px: f64,
+    /// Radius range searched, pixels.
+    pub radius_max_px: f64,
+    /// Threshold in robust sigmas.
+    pub threshold_sigma: f32,
+    /// Threshold used, luma units.
+    pub threshold_level: f32,
+    /// Noise level around the background, luma units.
+    pub noise_sigma: f32,
+    /// Smoothing before the gradient, pixels.
+    pub smooth_px: f32,
+    /// Smallest rim coverage kept.
+    pub min_score: f64,
+    /// Radius tolerance around the common radius (fraction).
+    pub radius_tolerance: f64,
+    /// Faint fraction.
+    pub faint_fraction: f64,
+    /// A clean plate was used.
+    pub clean_plate: bool,
+}
+
+/// `beadline spots --format json`.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct SpotsDoc {
+    /// Schema version.
+    pub schema_version: u32,
+    /// The photo.
+    pub file: String,
+    /// Width, pixels.
+    pub width_px: usize,
+    /// Height, pixels.
+    pub height_px: usize,
+    /// Common radius of the ball images, pixels.
+    pub common_radius_px: Option<f64>,
+    /// Settings used.
+    pub settings: SpotSettings,
+    /// Ball images (x right, y down, pixel centres at integer coordinates).
+    pub spots: Vec<Spot>,
+    /// Candidates dropped, with the reason.
+    pub rejected: Vec<Rejected>,
+}
+
+impl SpotsDoc {
+    /// Build the document from a report.
+    pub fn new(file: &str, report: &SpotReport, options: &SpotOptions, plate: bool) -> SpotsDoc {
+        SpotsDoc {
+            schema_version: SCHEMA_VERSION,
+            file: file.to_string(),
+            width_px: report.width_px,
+            height_px: report.height_px,
+            common_radius_px: report.common_radius_px,
+            settings: SpotSettings {
+                polarity: report.polarity,
+                radius_min_px: report.radius_range_px.0,
+                radius_max_px: report.radius_range_px.1,
+                threshold_sigma: options.threshold.k_sigma,
+                threshold_level: report.threshold_level,
+                noise_sigma: report.noise_sigma,
+                smooth_px: options.hough.smooth_px,
+                min_score: options.min_score,
+                radius_tolerance: options.radius_tolerance,
+                faint_fraction: options.faint_fraction,
+                clean_plate: plate,
+            },
+            spots: report.spots.clone(),
+            rejected: report.rejected.clone(),
+        }
+    }
+
+    /// Text for a person.
+    pub fn text(&self) -> String {
+        let mut s = format!(
+            "{}: {} x {} px, {} ball images",
+            self.file,
+            self.width_px,
+            self.height_px,
+            self.spots.len()
+        );
+        if let Some(r) = self.common_radius_px {
+            s += &format!(", radius {r:.2} px");
+        }
+        s += &format!(
+            ", {} rejected ({:?} ball, noise {:.4})\n",
+            self.rejected.len(),
+            self.settings.polarity,
+            self.settings.noise_sigma
+        );
+        s += "    #      x_px      y_px    r_px  sigma_px  score\n";
+        for (i, p) in self.spots.iter().enumerate() {
+            s += &format!(
+                "{:5} {:9.3} {:9.3} {:7.3} {:9.4} {:6.2}\n",
+                i, p.x_px, p.y_px, p.r_px, p.sigma_px, p.score
+            );
+        }
+        for r in &self.rejected {
+            s += &format!(
+                "rejected {:9.3} {:9.3} {:7.3}  {:?}\n",
+                r.x_px, r.y_px, r.r_px, r.reason
+            );
+        }
+        s
+    }
+
+    /// CSV of the spots.
+    pub fn csv(&self) -> std::io::Result<String> {
+        let mut w = csv::Writer::from_writer(Vec::new());
+        for p in &self.spots {
+            w.serialize(p)?;
+        }
+        let bytes = w.into_inner().map_err(|e| e.into_error())?;
+        Ok(String::from_utf8_lossy(&bytes).into_owned())
+    }
+}
