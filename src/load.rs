@@ -70,17 +70,34 @@ fn decode_error(path: &Path, message: impl std::fmt::Display) -> Error {
 
 /// Load a photo file.
 pub fn load(path: &Path, options: &LoadOptions) -> Result<Photo> {
-    let file = std::fs::File::open(path).map_err(|e| Error::io(path, e))?;
-    let meta = file.metadata().map_err(|e| Error::io(path, e))?;
+    let meta = std::fs::metadata(path).map_err(|e| Error::io(path, e))?;
     if meta.is_dir() {
         return Err(decode_error(path, "is a folder, not a photo"));
     }
     if meta.len() == 0 {
         return Err(decode_error(path, "empty file"));
     }
-    let mut reader = image::ImageReader::new(std::io::BufReader::new(file))
+    if meta.len() > options.max_alloc_bytes {
+        return Err(decode_error(
+            path,
+            format!("{} bytes is over the file size limit", meta.len()),
+        ));
+    }
+    let bytes = std::fs::read(path).map_err(|e| Error::io(path, e))?;
+    let mut reader = image::ImageReader::new(std::io::Cursor::new(&bytes))
         .with_guessed_format()
         .map_err(|e| Error::io(path, e))?;
+    // The JPEG decoder fills a truncated file with grey; refuse it instead (no end-of-image
+    // marker FF D9 near the end of the file).
+    if reader.format() == Some(image::ImageFormat::Jpeg) {
+        let tail = &bytes[bytes.len().saturating_sub(4096)..];
+        if !tail.windows(2).any(|w| w == [0xFF, 0xD9]) {
+            return Err(decode_error(
+                path,
+                "truncated JPEG (no end-of-image marker)",
+            ));
+        }
+    }
     if reader.format().is_none() {
         return Err(decode_error(
             path,

@@ -35,7 +35,8 @@ use std::path::Path;
 pub enum Reason {
     /// Its radius differs from the common radius of the ball images.
     Radius,
-    /// Too little of its rim is supported by edge points (texture, a straight edge).
+    /// Too little of its rim is supported by edge points, or they do not lie on a circle
+    /// (texture, a straight edge).
     WeakRim,
     /// Much fainter than the ball images (a reflection, a shadow).
     Faint,
@@ -75,6 +76,9 @@ pub struct SpotOptions {
     pub radius_tolerance: f64,
     /// Smallest rim coverage of a ball image, 0..1.
     pub min_score: f64,
+    /// Largest RMS distance of the rim's edge points from the fitted circle, pixels (straight
+    /// edges, such as the two sides of a floor plate, fit a circle badly).
+    pub max_rms_px: f64,
     /// Images whose rim contrast is below this fraction of the median are faint (reflections).
     pub faint_fraction: f64,
     /// Refuse photos with more candidate blobs than this (noise or texture, not a strobe photo).
@@ -91,6 +95,7 @@ impl Default for SpotOptions {
             radius_px: None,
             radius_tolerance: 0.12,
             min_score: 0.35,
+            max_rms_px: 0.4,
             faint_fraction: 0.5,
             max_candidates: 5000,
         }
@@ -321,7 +326,7 @@ pub fn find_spots(
             Some(Reason::OutsideFrame)
         } else if (c.r_px - common).abs() > options.radius_tolerance * common {
             Some(Reason::Radius)
-        } else if f.coverage < options.min_score {
+        } else if f.coverage < options.min_score || f.rms_px > options.max_rms_px {
             Some(Reason::WeakRim)
         } else if f.edge_strength < options.faint_fraction * median_strength {
             Some(Reason::Faint)

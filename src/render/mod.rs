@@ -201,7 +201,7 @@ pub fn render(scene: &Scene) -> Rendered {
                 weight: flash / subs as f64,
                 albedo: ball_albedo,
                 rgb: p.ball_rgb,
-                shaded: p.shading,
+                light: p.shading.then_some(p.light_dir),
                 occludes: true,
                 clip: None,
             });
@@ -214,7 +214,7 @@ pub fn render(scene: &Scene) -> Rendered {
                     weight: flash * scene.floor.reflectance / subs as f64,
                     albedo: ball_albedo,
                     rgb: p.ball_rgb,
-                    shaded: p.shading,
+                    light: p.shading.then_some(p.light_dir),
                     occludes: false,
                     clip: Some(floor_clip(ms.x_m)),
                 });
@@ -271,7 +271,7 @@ pub fn render(scene: &Scene) -> Rendered {
                 weight: p.ambient_exposure * dt / span,
                 albedo: ball_albedo,
                 rgb: p.ball_rgb,
-                shaded: false,
+                light: None,
                 occludes: true,
                 clip: None,
             });
@@ -286,7 +286,7 @@ pub fn render(scene: &Scene) -> Rendered {
             weight: total_weight,
             albedo: d.albedo,
             rgb: [1.0, 1.0, 1.0],
-            shaded: p.shading,
+            light: p.shading.then_some(p.light_dir),
             occludes: true,
             clip: None,
         });

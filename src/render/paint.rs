@@ -78,22 +78,21 @@ pub struct Stamp {
     pub albedo: f64,
     /// Colour multipliers.
     pub rgb: [f64; 3],
-    /// Shade as a lit sphere (false: flat).
-    pub shaded: bool,
+    /// Direction towards the flash, camera frame (x right, y down, z towards the camera), for a
+    /// lit sphere; None paints a flat disc.
+    pub light: Option<[f64; 3]>,
     /// Hides the backdrop (false for a mirror image, which only adds light).
     pub occludes: bool,
     /// Optional clip.
     pub clip: Option<Clip>,
 }
 
-/// Direction towards the flash, camera frame (x right, y down, z towards the camera).
-const LIGHT: [f64; 3] = [-0.3, -0.4, 1.0];
 /// Fraction of the light that is diffuse fill.
 const FILL: f64 = 0.3;
 
-fn shade(dx: f64, dy: f64, r: f64) -> f64 {
-    let ln = (LIGHT[0] * LIGHT[0] + LIGHT[1] * LIGHT[1] + LIGHT[2] * LIGHT[2]).sqrt();
-    let l = [LIGHT[0] / ln, LIGHT[1] / ln, LIGHT[2] / ln];
+fn shade(dx: f64, dy: f64, r: f64, light: [f64; 3]) -> f64 {
+    let ln = (light[0] * light[0] + light[1] * light[1] + light[2] * light[2]).sqrt();
+    let l = [light[0] / ln, light[1] / ln, light[2] / ln];
     let (nx, ny) = (dx / r, dy / r);
     let n2 = nx * nx + ny * ny;
     let (nx, ny, nz) = if n2 >= 1.0 {
@@ -185,7 +184,7 @@ pub fn paint(width: usize, height: usize, stamps: &[Stamp]) -> Exposure {
                     if cov <= 0.0 {
                         continue;
                     }
-                    let sh = if s.shaded { shade(dx, dy, s.r_px) } else { 1.0 };
+                    let sh = s.light.map_or(1.0, |l| shade(dx, dy, s.r_px, l));
                     let v = s.weight * cov * s.albedo * sh;
                     for (l, tint) in lp.iter_mut().zip(s.rgb) {
                         *l += (v * tint) as f32;

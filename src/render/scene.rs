@@ -356,6 +356,10 @@ pub struct Photo {
     /// Shade the ball as a lit sphere with a highlight (false: flat disc).
     #[serde(default = "yes")]
     pub shading: bool,
+    /// Direction towards the flash in the camera frame (x right, y down, z towards the camera);
+    /// the default is a flash up and to the left of the lens, about 27 degrees off its axis.
+    #[serde(default = "default_light")]
+    pub light_dir: [f64; 3],
     /// Sensor noise on (photon + read noise).
     #[serde(default = "yes")]
     pub noise: bool,
@@ -393,6 +397,9 @@ pub struct Photo {
 
 fn yes() -> bool {
     true
+}
+fn default_light() -> [f64; 3] {
+    [-0.3, -0.4, 1.0]
 }
 fn default_ambient() -> f64 {
     0.03
@@ -633,6 +640,12 @@ impl Scene {
                 };
                 return bad(key, "colour multipliers must be between 0 and 1");
             }
+        }
+        if !(p.light_dir.iter().all(|v| v.is_finite()) && p.light_dir[2] > 0.0) {
+            return bad(
+                "photo.light_dir",
+                "must be finite with z > 0 (the flash is on the camera's side)",
+            );
         }
         if p.bit_depth != 8 && p.bit_depth != 16 {
             return bad("photo.bit_depth", "must be 8 or 16");

@@ -1,0 +1,93 @@
+//! The `beadline` command end to end: outputs a rig pipeline can read back, and one-line errors.
+
+use beadline::report::SpotsDoc;
+use std::path::Path;
+use std::process::Command;
+
+fn beadline(args: &[&str], dir: &Path) -> std::process::Output {
+    Command::new(env!("CARGO_BIN_EXE_beadline"))
+        .args(args)
+        .current_dir(dir)
+        .output()
+        .expect("the binary runs")
+}
+
+#[test]
+fn render_then_spots_json_reads_back_with_the_schema_types() {
+    let dir = tempfile::tempdir().unwrap();
+    std::fs::write(
+        dir.path().join("scene.toml"),
+        beadline::render::scene::DEMO_SCENE,
+    )
+    .unwrap();
+    let out = beadline(
+        &[
+            "render",
+            "scene.toml",
+            "--out",
+            "p.png",
+            "--truth",
+            "t.json",
+        ],
+        dir.path(),
+    );
+    assert!(
+        out.status.success(),
+        "{}",
+        String::from_utf8_lossy(&out.stderr)
+    );
+    let out = beadline(
+        &[
+            "spots",
+            "p.png",
+            "--format",
+            "json",
+            "-o",
+            "s.json",
+            "--overlay",
+            "o.png",
+        ],
+        dir.path(),
+    );
+    assert!(
+        out.status.success(),
+        "{}",
+        String::from_utf8_lossy(&out.stderr)
+    );
+    let doc: SpotsDoc =
+        serde_json::from_str(&std::fs::read_to_string(dir.path().join("s.json")).unwrap()).unwrap();
+    assert_eq!(doc.schema_version, beadline::report::SCHEMA_VERSION);
+    assert_eq!((doc.width_px, doc.height_px), (1600, 900));
+    let truth: beadline::render::Truth =
+        serde_json::from_str(&std::fs::read_to_string(dir.path().join("t.json")).unwrap()).unwrap();
+    assert!(doc.spots.len() + 1 >= truth.flashes.len());
+    assert!(image::open(dir.path().join("o.png")).is_ok());
+    // CSV has a header and one row per spot.
+    let out = beadline(&["spots", "p.png", "--format", "csv"], dir.path());
+    let csv = String::from_utf8(out.stdout).unwrap();
+    assert!(csv.starts_with("x_px,y_px,r_px,sigma_px,score"));
+    assert_eq!(csv.lines().count(), doc.spots.len() + 1);
+}
+
+#[test]
+fn bad_input_gives_one_line_naming_the_file_and_a_failing_status() {
+    let dir = tempfile::tempdir().unwrap();
+    std::fs::write(dir.path().join("bad.jpg"), b"not a photo").unwrap();
+    let out = beadline(&["spots", "bad.jpg", "-o", "s.json"], dir.path());
+    assert!(!out.status.success());
+    let err = String::from_utf8_lossy(&out.stderr);
+    assert_eq!(err.trim().lines().count(), 1, "{err}");
+    assert!(err.contains("bad.jpg"), "{err}");
+    assert!(!dir.path().join("s.json").exists(), "nothing half-written");
+    let out = beadline(&["spots", "bad.jpg", "--radius", "30..10"], dir.path());
+    assert!(!out.status.success());
+    assert!(String::from_utf8_lossy(&out.stderr).contains("--radius"));
+    let out = beadline(&["spots", "bad.jpg", "--min-score", "NaN"], dir.path());
+    assert!(!out.status.success());
+    std::fs::write(dir.path().join("s.toml"), "[ball]\ndiameter_m = -1\n").unwrap();
+    let out = beadline(&["render", "s.toml", "--out", "x.png"], dir.path());
+    assert!(!out.status.success());
+    let err = String::from_utf8_lossy(&out.stderr);
+    assert!(err.contains("s.toml"), "{err}");
+    assert!(!dir.path().join("x.png").exists());
+}

@@ -1,0 +1,307 @@
+//! Spot finding against rendered ground truth (exact centres from the renderer's physics and
+//! camera model) and against bad input.
+
+use beadline::load::{LoadOptions, load};
+use beadline::render::{self, Truth, scene::Scene};
+use beadline::spots::{Reason, SpotOptions, SpotReport, find_spots};
+use std::path::{Path, PathBuf};
+
+/// Render `scene` into `dir/name`, load it back and find its spots.
+fn detect(scene: &Scene, dir: &Path, name: &str) -> (SpotReport, Truth, PathBuf) {
+    let photo = render::render(scene);
+    let path = dir.join(name);
+    photo.save(&path).unwrap();
+    let img = load(&path, &LoadOptions::default()).unwrap();
+    let report = find_spots(&img, None, &SpotOptions::default(), None).unwrap();
+    (report, photo.truth, path)
+}
+
+struct Score {
+    found: usize,
+    expected: usize,
+    false_spots: usize,
+    isolated_rms_px: f64,
+    overlap_rms_px: f64,
+    max_err_px: f64,
+    sigma_rms_px: f64,
+}
+
+/// Match spots to in-frame truth flashes (nearest within half a radius).
+fn score(report: &SpotReport, truth: &Truth) -> Score {
+    let flashes: Vec<_> = truth.flashes.iter().filter(|f| f.in_frame).collect();
+    let mut used = vec![false; report.spots.len()];
+    let (mut iso, mut ovl, mut sig) = (Vec::new(), Vec::new(), Vec::new());
+    let mut max_err: f64 = 0.0;
+    for f in &flashes {
+        let best = report
+            .spots
+            .iter()
+            .enumerate()
+            .filter(|(i, _)| !used[*i])
+            .map(|(i, s)| (i, (s.x_px - f.x_px).hypot(s.y_px - f.y_px)))
+            .filter(|(_, d)| *d < 0.5 * f.r_px)
+            .min_by(|a, b| a.1.total_cmp(&b.1));
+        let Some((i, d)) = best else { continue };
+        used[i] = true;
+        max_err = max_err.max(d);
+        let nearest = flashes
+            .iter()
+            .filter(|g| g.n != f.n)
+            .map(|g| (g.x_px - f.x_px).hypot(g.y_px - f.y_px))
+            .fold(f64::INFINITY, f64::min);
+        // Per-axis squared error.
+        let e2 = d * d / 2.0;
+        if nearest < 2.0 * f.r_px {
+            ovl.push(e2);
+        } else {
+            iso.push(e2);
+        }
+        sig.push(report.spots[i].sigma_px.powi(2));
+    }
+    let rms = |v: &[f64]| {
+        if v.is_empty() {
+            0.0
+        } else {
+            (v.iter().sum::<f64>() / v.len() as f64).sqrt()
+        }
+    };
+    Score {
+        found: iso.len() + ovl.len(),
+        expected: flashes.len(),
+        false_spots: used.iter().filter(|u| !**u).count(),
+        isolated_rms_px: rms(&iso),
+        overlap_rms_px: rms(&ovl),
+        max_err_px: max_err,
+        sigma_rms_px: rms(&sig),
+    }
+}
+
+/// A throw across the frame: well separated images at sub-pixel positions.
+fn throw_scene(radius_m: f64, flashes: usize) -> Scene {
+    let text = format!(
+        r#"
+seed = 11
+[ball]
+diameter_m = {}
+[start]
+x_m = 0.1
+y_m = 0.5
+vx_mps = 1.3
+vy_mps = 1.1
+[strobe]
+rate_hz = 20.0
+first_flash_s = 0.013
+exposure_s = {}
+[camera]
+px_per_m = 1000.0
+width_px = 1000
+height_px = 700
+origin_x_px = 17.3
+origin_y_px = 650.6
+"#,
+        2.0 * radius_m,
+        (flashes as f64 - 0.5) / 20.0
+    );
+    Scene::from_toml(&text, Path::new("throw.toml")).unwrap()
+}
+
+#[test]
+fn discs_at_known_subpixel_centres_are_found_within_a_twentieth_of_a_pixel() {
+    // Truth: the renderer's exact centres (area coverage painted in closed form).
+    let dir = tempfile::tempdir().unwrap();
+    for radius_m in [0.008, 0.015, 0.03] {
+        let mut scene = throw_scene(radius_m, 12);
+        scene.photo.full_well_e = 200_000.0;
+        scene.photo.shading = false;
+        let (report, truth, _) = detect(&scene, dir.path(), "throw.png");
+        let s = score(&report, &truth);
+        assert_eq!(
+            s.found, s.expected,
+            "radius {radius_m}: found {}/{}",
+            s.found, s.expected
+        );
+        assert_eq!(s.false_spots, 0);
+        assert!(
+            s.max_err_px < 0.05,
+            "radius {radius_m}: worst error {} px",
+            s.max_err_px
+        );
+    }
+}
+
+#[test]
+fn demo_photo_meets_the_accuracy_targets_lossless_and_jpeg() {
+    // The demo: a slow, overlapping start on the incline, flight and bounces. Targets from the
+    // spots issue: isolated RMS <= 0.05 px, overlapping <= 0.15 px.
+    let dir = tempfile::tempdir().unwrap();
+    for (name, quality) in [("demo.png", 92), ("demo.jpg", 85)] {
+        let mut scene = Scene::demo();
+        scene.photo.jpeg_quality = quality;
+        let (report, truth, _) = detect(&scene, dir.path(), name);
+        let s = score(&report, &truth);
+        assert!(
+            s.found + 1 >= s.expected,
+            "{name}: found {}/{}",
+            s.found,
+            s.expected
+        );
+        assert_eq!(s.false_spots, 0, "{name}");
+        assert!(
+            s.isolated_rms_px <= 0.05,
+            "{name}: isolated {}",
+            s.isolated_rms_px
+        );
+        assert!(
+            s.overlap_rms_px <= 0.15,
+            "{name}: overlap {}",
+            s.overlap_rms_px
+        );
+        // Honest sigma: the reported 1-sigma and the actual error agree within a factor 2 here
+        // (the bench measures the factor over the whole suite).
+        let all_rms = ((s.isolated_rms_px.powi(2) + s.overlap_rms_px.powi(2)) / 2.0).sqrt();
+        let ratio = all_rms / s.sigma_rms_px;
+        assert!((0.5..=2.0).contains(&ratio), "{name}: error/sigma {ratio}");
+    }
+}
+
+#[test]
+fn dark_ball_on_bright_backdrop_is_found() {
+    // Few flashes: each image dims the backdrop by about 1/N (physics of the long exposure).
+    let dir = tempfile::tempdir().unwrap();
+    let mut scene = throw_scene(0.02, 6);
+    scene.photo.polarity = render::scene::Polarity::Dark;
+    scene.photo.texture = 0.03;
+    let (report, truth, _) = detect(&scene, dir.path(), "dark.png");
+    assert_eq!(report.polarity, beadline::background::Polarity::Dark);
+    let s = score(&report, &truth);
+    assert_eq!(s.found, s.expected);
+    assert_eq!(s.false_spots, 0);
+    assert!(s.isolated_rms_px < 0.1, "{}", s.isolated_rms_px);
+}
+
+#[test]
+fn a_photo_with_no_ball_gives_an_empty_result() {
+    let dir = tempfile::tempdir().unwrap();
+    let mut scene = throw_scene(0.02, 3);
+    // The ball flies outside the frame.
+    scene.camera.origin_x_px = -5000.0;
+    let (report, truth, _) = detect(&scene, dir.path(), "empty.png");
+    assert!(truth.flashes.iter().all(|f| !f.in_frame));
+    assert!(report.spots.is_empty(), "{:?}", report.spots);
+}
+
+#[test]
+fn a_photo_with_one_ball_gives_one_spot() {
+    let dir = tempfile::tempdir().unwrap();
+    let scene = throw_scene(0.02, 1);
+    let (report, truth, _) = detect(&scene, dir.path(), "one.png");
+    let s = score(&report, &truth);
+    assert_eq!((s.found, s.expected, report.spots.len()), (1, 1, 1));
+}
+
+#[test]
+fn distractors_of_another_size_and_reflections_are_not_kept() {
+    let dir = tempfile::tempdir().unwrap();
+    let mut scene = Scene::demo();
+    scene.floor.glossy = true;
+    scene.distractors = vec![
+        render::scene::Distractor {
+            x_px: 1300.0,
+            y_px: 150.0,
+            r_px: 36.0,
+            albedo: 0.02,
+        },
+        render::scene::Distractor {
+            x_px: 900.0,
+            y_px: 120.0,
+            r_px: 11.0,
+            albedo: 0.02,
+        },
+    ];
+    let (report, truth, _) = detect(&scene, dir.path(), "distract.png");
+    let s = score(&report, &truth);
+    assert!(
+        s.found + 1 >= s.expected,
+        "found {}/{}",
+        s.found,
+        s.expected
+    );
+    assert_eq!(s.false_spots, 0, "{:?}", report.spots);
+    // Nothing kept near a distractor or a mirror image in the glossy floor.
+    let near = |x: f64, y: f64, r: f64| {
+        report
+            .spots
+            .iter()
+            .any(|s| (s.x_px - x).hypot(s.y_px - y) < 0.5 * r)
+    };
+    for d in truth.distractors.iter().chain(&truth.reflections) {
+        assert!(
+            !near(d.x_px, d.y_px, d.r_px),
+            "kept a non-ball at {} {}",
+            d.x_px,
+            d.y_px
+        );
+    }
+    assert!(!truth.reflections.is_empty());
+}
+
+#[test]
+fn bad_files_get_an_error_naming_the_file() {
+    let dir = tempfile::tempdir().unwrap();
+    let empty = dir.path().join("empty.jpg");
+    std::fs::write(&empty, b"").unwrap();
+    let text = dir.path().join("notes.jpg");
+    std::fs::write(&text, b"this is not a photo\n").unwrap();
+    let scene = throw_scene(0.02, 3);
+    let good = dir.path().join("good.jpg");
+    render::render(&scene).save(&good).unwrap();
+    let bytes = std::fs::read(&good).unwrap();
+    let truncated = dir.path().join("truncated.jpg");
+    std::fs::write(&truncated, &bytes[..bytes.len() / 3]).unwrap();
+    for p in [&empty, &text, &truncated, &dir.path().join("missing.png")] {
+        let err = load(p, &LoadOptions::default()).unwrap_err().to_string();
+        assert!(err.contains(&p.display().to_string()), "{err}");
+    }
+    // A PNG header claiming 100000 x 100000 pixels is refused by the limits before decoding.
+    let mut bomb = Vec::new();
+    bomb.extend_from_slice(b"\x89PNG\r\n\x1a\n\0\0\0\x0dIHDR");
+    bomb.extend_from_slice(&100_000u32.to_be_bytes());
+    bomb.extend_from_slice(&100_000u32.to_be_bytes());
+    bomb.extend_from_slice(&[8, 2, 0, 0, 0, 0, 0, 0, 0]);
+    let bomb_path = dir.path().join("bomb.png");
+    std::fs::write(&bomb_path, &bomb).unwrap();
+    let err = load(&bomb_path, &LoadOptions::default())
+        .unwrap_err()
+        .to_string();
+    assert!(err.contains("bomb.png"), "{err}");
+}
+
+#[test]
+fn a_photo_of_noise_is_refused_with_a_clear_message() {
+    use rand::{RngExt, SeedableRng};
+    let mut rng = rand_chacha::ChaCha8Rng::seed_from_u64(3);
+    // Ten thousand small bright blobs on a noisy grey field.
+    let (w, h) = (1000, 1000);
+    let mut luma: Vec<f32> = (0..w * h)
+        .map(|_| 0.1 + 0.01 * rng.random::<f32>())
+        .collect();
+    for gy in 0..100 {
+        for gx in 0..100 {
+            let (x, y) = (
+                gx * 10 + rng.random_range(1..5),
+                gy * 10 + rng.random_range(1..5),
+            );
+            for (dx, dy) in [(0, 0), (1, 0), (0, 1), (1, 1)] {
+                luma[(y + dy) * w + x + dx] = 0.9;
+            }
+        }
+    }
+    let photo = beadline::load::Photo::from_luma(Path::new("noise.png"), w, h, luma);
+    let err = find_spots(&photo, None, &SpotOptions::default(), None)
+        .unwrap_err()
+        .to_string();
+    assert!(
+        err.contains("noise.png") && err.contains("candidate"),
+        "{err}"
+    );
+}
