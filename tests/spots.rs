@@ -3,7 +3,7 @@
 
 use beadline::load::{LoadOptions, load};
 use beadline::render::{self, Truth, scene::Scene};
-use beadline::spots::{Reason, SpotOptions, SpotReport, find_spots};
+use beadline::spots::{SpotOptions, SpotReport, find_spots};
 use std::path::{Path, PathBuf};
 
 /// Render `scene` into `dir/name`, load it back and find its spots.
