@@ -10,6 +10,7 @@
 //! - [`hough`]: sub-pixel edge points and the circular Hough transform.
 //! - [`refine`]: joint geometric circle fits with uncertainties.
 //! - [`spots`]: the detection pipeline end to end: photo -> ball images.
+//! - [`plan`]: choose flash rate, count and exposure before the shot.
 //! - [`render`]: synthetic photos from a scene (physics, camera, exact disc coverage, noise).
 //!
 //! # Examples
@@ -26,6 +27,7 @@ pub mod hough;
 pub mod load;
 pub mod output;
 pub mod overlay;
+pub mod plan;
 pub mod refine;
 pub mod render;
 pub mod report;

@@ -43,6 +43,65 @@ pub struct Scene {
     /// Round objects that are not the ball.
     #[serde(default)]
     pub distractors: Vec<Distractor>,
+    /// The flash unit's limits (used by `beadline plan`; the renderer ignores it).
+    #[serde(default)]
+    pub flash_unit: Option<FlashUnit>,
+    /// What the photo must show (used by `beadline plan`; the renderer ignores it).
+    #[serde(default)]
+    pub wishes: Option<Wishes>,
+}
+
+/// A flash unit: at each power level it can fire a limited number of flashes at a limited rate.
+#[derive(Debug, Clone, Serialize, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct FlashUnit {
+    /// Power levels, strongest first is customary; at least one.
+    pub levels: Vec<PowerLevel>,
+}
+
+/// One power setting of a flash unit.
+#[derive(Debug, Clone, Serialize, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct PowerLevel {
+    /// Name shown in the plan (for example "1/4").
+    pub name: String,
+    /// Fastest flash rate at this power, hertz.
+    pub max_rate_hz: f64,
+    /// Most flashes in one burst at this power.
+    pub max_flashes: usize,
+    /// Duration of one flash at this power, seconds.
+    pub flash_duration_s: f64,
+}
+
+/// What the user wants the photo to show.
+#[derive(Debug, Clone, Serialize, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct Wishes {
+    /// At least this many images on every flight arc covered.
+    #[serde(default = "default_images_per_arc")]
+    pub min_images_per_arc: usize,
+    /// Where the ball is fastest, consecutive images at least this many diameters apart.
+    #[serde(default = "default_separation")]
+    pub min_separation_diameters: f64,
+    /// Cover the path up to this bounce (0: only the launch arc to the first bounce).
+    #[serde(default = "default_bounces")]
+    pub bounces: usize,
+    /// Largest motion blur within one flash, pixels.
+    #[serde(default = "default_blur")]
+    pub max_blur_px: f64,
+}
+
+fn default_images_per_arc() -> usize {
+    5
+}
+fn default_separation() -> f64 {
+    1.0
+}
+fn default_bounces() -> usize {
+    2
+}
+fn default_blur() -> f64 {
+    0.5
 }
 
 /// Build of the ball, which sets its moment-of-inertia factor k = I / (m r^2).
@@ -652,6 +711,33 @@ impl Scene {
         }
         if p.jpeg_quality == 0 || p.jpeg_quality > 100 {
             return bad("photo.jpeg_quality", "must be 1..100");
+        }
+        if let Some(u) = &self.flash_unit {
+            if u.levels.is_empty() {
+                return bad("flash_unit.levels", "give at least one power level");
+            }
+            for (i, l) in u.levels.iter().enumerate() {
+                positive(&format!("flash_unit.levels[{i}].max_rate_hz"), l.max_rate_hz)?;
+                positive(
+                    &format!("flash_unit.levels[{i}].flash_duration_s"),
+                    l.flash_duration_s,
+                )?;
+                if l.max_flashes < 2 {
+                    return bad(
+                        &format!("flash_unit.levels[{i}].max_flashes"),
+                        "a strobe photo needs at least 2 flashes",
+                    );
+                }
+            }
+        }
+        if let Some(w) = &self.wishes {
+            if w.min_images_per_arc == 0 {
+                return bad("wishes.min_images_per_arc", "must be at least 1");
+            }
+            if !(w.min_separation_diameters.is_finite() && w.min_separation_diameters >= 0.0) {
+                return bad("wishes.min_separation_diameters", "must be >= 0");
+            }
+            positive("wishes.max_blur_px", w.max_blur_px)?;
         }
         for (i, d) in self.distractors.iter().enumerate() {
             finite(&format!("distractors[{i}].x_px"), d.x_px)?;

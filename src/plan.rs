@@ -1,0 +1,345 @@
+//! Plan a shot: the flash rate, the number of flashes, the exposure and the first-flash delay that
+//! give a usable strobe photo, before taking it.
+//!
+//! Goes in: a [`Scene`] with its `[flash_unit]` limits and `[wishes]`. Comes out: a [`Plan`] that
+//! says what each choice buys (images per arc, closest images, motion blur, what is left of the
+//! path after the last image) or which wish to drop when no setting meets them all.
+//!
+//! Method: the motion is simulated from physics ([`crate::render::sim`]); every power level and
+//! every flash rate on a 0.25 Hz grid up to the level's limit is tried; the first flash waits until
+//! consecutive images are at least 0.8 radius apart (closer piles cannot be separated, see the
+//! spot finder); among the settings that meet every wish the one with the most images on its
+//! poorest arc wins (ties: the lower rate, which needs fewer flashes).
+
+use crate::render::camera::Projection;
+use crate::render::scene::{PowerLevel, Scene, Wishes};
+use crate::render::sim::Motion;
+use serde::{Deserialize, Serialize};
+
+/// Rates from about 3 to 60 Hz are the band most likely to trigger photosensitive seizures
+/// (common practice in lighting safety guidance, no single source).
+pub const CAUTION_BAND_HZ: (f64, f64) = (3.0, 60.0);
+
+/// The caution printed with every plan whose rate lies in [`CAUTION_BAND_HZ`].
+pub const CAUTION: &str = "CAUTION: a strobe flashing at a few to tens of hertz can trigger \
+seizures in people with photosensitive epilepsy. Warn everyone in the room before it runs, keep it \
+out of view of corridors and windows, and follow your local lab safety rules.";
+
+/// A recommended setting and what it buys.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct Plan {
+    /// Power level chosen (its name).
+    pub power_level: String,
+    /// Flash rate, hertz.
+    pub rate_hz: f64,
+    /// Number of flashes.
+    pub flashes: usize,
+    /// Exposure length from the first flash, seconds.
+    pub exposure_s: f64,
+    /// Delay of the first flash after release, seconds.
+    pub first_flash_s: f64,
+    /// Flash duration at that power, seconds.
+    pub flash_duration_s: f64,
+    /// Images on each flight arc covered (arc 0 from launch to the first bounce).
+    pub images_per_arc: Vec<usize>,
+    /// Closest consecutive images, in ball diameters (below 1 they overlap).
+    pub closest_spacing_diameters: f64,
+    /// Consecutive images where the ball is fastest, in ball diameters.
+    pub fast_spacing_diameters: f64,
+    /// Motion blur within one flash where the ball is fastest, pixels.
+    pub blur_px: f64,
+    /// Path left between the last image and the end of the wanted coverage, metres.
+    pub uncovered_path_m: f64,
+    /// Every wish is met.
+    pub meets_wishes: bool,
+    /// What could not be met and which wish to drop.
+    pub warnings: Vec<String>,
+    /// Safety caution for the rate, when it applies.
+    pub caution: Option<String>,
+}
+
+/// Why a plan cannot be made at all.
+#[derive(Debug, Clone, PartialEq, Eq)]
+pub enum PlanError {
+    /// The scene has no `[flash_unit]`.
+    NoFlashUnit,
+}
+
+impl std::fmt::Display for PlanError {
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        match self {
+            PlanError::NoFlashUnit => write!(f, "the scene has no [flash_unit] section to plan with"),
+        }
+    }
+}
+
+/// The motion and what the wishes cover of it.
+struct Coverage {
+    motion: Motion,
+    /// Start and end time of each wanted arc.
+    arcs: Vec<(f64, f64)>,
+    t_end_s: f64,
+    radius_m: f64,
+    warnings: Vec<String>,
+}
+
+fn coverage(scene: &Scene, wishes: &Wishes) -> Coverage {
+    let motion = Motion::simulate(scene, 60.0);
+    let proj = Projection::new(&scene.camera);
+    let mut edges = vec![motion.launch.t_s];
+    edges.extend(motion.bounces.iter().map(|b| b.t_s));
+    let mut warnings = Vec::new();
+    let wanted = wishes.bounces + 1;
+    if edges.len() < wanted + 1 {
+        warnings.push(format!(
+            "the ball bounces only {} times before it rolls: covering those",
+            motion.bounces.len()
+        ));
+    }
+    let mut arcs: Vec<(f64, f64)> = edges.windows(2).take(wanted).map(|w| (w[0], w[1])).collect();
+    if arcs.is_empty() {
+        arcs.push((motion.launch.t_s, motion.launch.t_s + 1.0));
+    }
+    let mut t_end = arcs.last().map(|a| a.1).unwrap_or(1.0);
+    // Stay inside the frame.
+    let (w, h) = (scene.camera.width_px as f64, scene.camera.height_px as f64);
+    let r_m = scene.ball.radius_m();
+    let step = 1e-3;
+    let mut t = 0.0;
+    while t < t_end {
+        let p = motion.at(t);
+        let c = proj.to_pixel(p.x_m, p.y_m);
+        let r = r_m * proj.scale_px_per_m(p.x_m, p.y_m);
+        if c[0] - r < 0.0 || c[1] - r < 0.0 || c[0] + r > w || c[1] + r > h {
+            if t > motion.launch.t_s {
+                warnings.push(format!(
+                    "the ball leaves the frame at t = {t:.3} s: the plan covers the path up to there"
+                ));
+                t_end = t;
+                arcs.retain(|a| a.0 < t_end);
+                if let Some(last) = arcs.last_mut() {
+                    last.1 = last.1.min(t_end);
+                }
+                break;
+            }
+        }
+        t += step;
+    }
+    Coverage {
+        motion,
+        arcs,
+        t_end_s: t_end,
+        radius_m: r_m,
+        warnings,
+    }
+}
+
+/// What one setting gives.
+struct Trial {
+    level: usize,
+    rate_hz: f64,
+    t0: f64,
+    flashes: usize,
+    images_per_arc: Vec<usize>,
+    closest_d: f64,
+    fast_d: f64,
+    blur_px: f64,
+    uncovered_m: f64,
+}
+
+fn speed_at(m: &Motion, t: f64) -> f64 {
+    let p = m.at(t);
+    p.vx_mps.hypot(p.vy_mps)
+}
+
+fn try_setting(cov: &Coverage, scene: &Scene, level: usize, l: &PowerLevel, rate: f64) -> Trial {
+    let m = &cov.motion;
+    let dt = 1.0 / rate;
+    let gap = |t: f64| {
+        let (a, b) = (m.at(t), m.at(t + dt));
+        (b.x_m - a.x_m).hypot(b.y_m - a.y_m)
+    };
+    // First flash: once consecutive images are 0.8 radius apart (or at release).
+    let mut t0 = 0.0;
+    while t0 < cov.t_end_s && gap(t0) < 0.8 * cov.radius_m {
+        t0 += 1e-3;
+    }
+    let n_needed = ((cov.t_end_s - t0) * rate).floor() as usize + 1;
+    let flashes = n_needed.min(l.max_flashes);
+    let times: Vec<f64> = (0..flashes).map(|i| t0 + i as f64 * dt).collect();
+    let images_per_arc = cov
+        .arcs
+        .iter()
+        .map(|(a, b)| times.iter().filter(|&&t| t > *a && t < *b).count())
+        .collect();
+    let d = 2.0 * cov.radius_m;
+    let mut closest = f64::INFINITY;
+    let (mut v_max, mut fast_gap) = (0.0, f64::INFINITY);
+    for w in times.windows(2) {
+        let (a, b) = (m.at(w[0]), m.at(w[1]));
+        let g = (b.x_m - a.x_m).hypot(b.y_m - a.y_m);
+        closest = closest.min(g);
+        let v = speed_at(m, w[0]);
+        if v > v_max {
+            v_max = v;
+            fast_gap = g;
+        }
+    }
+    let t_last = times.last().copied().unwrap_or(t0);
+    let mut uncovered = 0.0;
+    let mut t = t_last;
+    while t < cov.t_end_s {
+        uncovered += speed_at(m, t) * 1e-3;
+        t += 1e-3;
+    }
+    Trial {
+        level,
+        rate_hz: rate,
+        t0,
+        flashes,
+        images_per_arc,
+        closest_d: closest / d,
+        fast_d: fast_gap / d,
+        blur_px: v_max * l.flash_duration_s * scene.camera.px_per_m,
+        uncovered_m: uncovered,
+    }
+}
+
+/// Which wishes a trial misses.
+fn misses(t: &Trial, w: &Wishes, cov: &Coverage, max_flashes: usize) -> Vec<&'static str> {
+    let mut out = Vec::new();
+    if t.images_per_arc.iter().any(|&n| n < w.min_images_per_arc) {
+        out.push("min_images_per_arc");
+    }
+    if t.fast_d < w.min_separation_diameters {
+        out.push("min_separation_diameters");
+    }
+    if t.blur_px > w.max_blur_px {
+        out.push("max_blur_px");
+    }
+    let needed = ((cov.t_end_s - t.t0) * t.rate_hz).floor() as usize + 1;
+    if needed > max_flashes {
+        out.push("bounces");
+    }
+    out
+}
+
+/// Plan the shot for `scene`.
+pub fn plan(scene: &Scene) -> Result<Plan, PlanError> {
+    let unit = scene.flash_unit.as_ref().ok_or(PlanError::NoFlashUnit)?;
+    let wishes = scene.wishes.clone().unwrap_or(Wishes {
+        min_images_per_arc: 5,
+        min_separation_diameters: 1.0,
+        bounces: 2,
+        max_blur_px: 0.5,
+    });
+    let cov = coverage(scene, &wishes);
+    let mut best: Option<(Trial, Vec<&'static str>)> = None;
+    for (li, l) in unit.levels.iter().enumerate() {
+        let steps = (l.max_rate_hz / 0.25).floor() as usize;
+        for s in 1..=steps.min(40_000) {
+            let rate = s as f64 * 0.25;
+            let t = try_setting(&cov, scene, li, l, rate);
+            let miss = misses(&t, &wishes, &cov, l.max_flashes);
+            let poorest = t.images_per_arc.iter().copied().min().unwrap_or(0);
+            let better = match &best {
+                None => true,
+                Some((b, bm)) => {
+                    let bp = b.images_per_arc.iter().copied().min().unwrap_or(0);
+                    (miss.len(), std::cmp::Reverse(poorest)) < (bm.len(), std::cmp::Reverse(bp))
+                }
+            };
+            if better {
+                best = Some((t, miss));
+            }
+        }
+    }
+    let (t, miss) = best.expect("every level has a rate of at least 0.25 Hz");
+    let l = &unit.levels[t.level];
+    let mut warnings = cov.warnings.clone();
+    for m in &miss {
+        warnings.push(match *m {
+            "min_images_per_arc" => format!(
+                "no setting gives {} images on every arc (best: {:?}): lower wishes.min_images_per_arc",
+                wishes.min_images_per_arc, t.images_per_arc
+            ),
+            "min_separation_diameters" => format!(
+                "fast images are only {:.2} diameters apart: lower wishes.min_separation_diameters",
+                t.fast_d
+            ),
+            "max_blur_px" => format!(
+                "motion blur {:.2} px over the limit: raise wishes.max_blur_px or use a shorter flash",
+                t.blur_px
+            ),
+            _ => format!(
+                "{} flashes at {} cannot cover the path to bounce {}: lower wishes.bounces",
+                l.max_flashes, l.name, wishes.bounces
+            ),
+        });
+    }
+    let in_band = t.rate_hz >= CAUTION_BAND_HZ.0 && t.rate_hz <= CAUTION_BAND_HZ.1;
+    Ok(Plan {
+        power_level: l.name.clone(),
+        rate_hz: t.rate_hz,
+        flashes: t.flashes,
+        exposure_s: (t.flashes as f64 - 0.5) / t.rate_hz,
+        first_flash_s: t.t0,
+        flash_duration_s: l.flash_duration_s,
+        images_per_arc: t.images_per_arc,
+        closest_spacing_diameters: t.closest_d,
+        fast_spacing_diameters: t.fast_d,
+        blur_px: t.blur_px,
+        uncovered_path_m: t.uncovered_m,
+        meets_wishes: miss.is_empty(),
+        warnings,
+        caution: in_band.then(|| CAUTION.to_string()),
+    })
+}
+
+impl Plan {
+    /// The scene with this plan's strobe settings, for a preview render.
+    pub fn apply(&self, scene: &Scene) -> Scene {
+        let mut s = scene.clone();
+        s.strobe.rate_hz = self.rate_hz;
+        s.strobe.first_flash_s = self.first_flash_s;
+        s.strobe.exposure_s = self.exposure_s;
+        s.strobe.flash_duration_s = self.flash_duration_s;
+        s.strobe.max_flashes = Some(self.flashes);
+        s
+    }
+
+    /// Text for a person.
+    pub fn text(&self) -> String {
+        let mut s = format!(
+            "Plan: {} flashes at {:.2} Hz (power {}), first flash {:.3} s after release, exposure {:.3} s\n",
+            self.flashes, self.rate_hz, self.power_level, self.first_flash_s, self.exposure_s
+        );
+        s += &format!("  images per arc        {:?}\n", self.images_per_arc);
+        s += &format!(
+            "  closest images        {:.2} diameters apart\n",
+            self.closest_spacing_diameters
+        );
+        s += &format!(
+            "  where fastest         {:.2} diameters apart, blur {:.2} px in a {:.0} us flash\n",
+            self.fast_spacing_diameters,
+            self.blur_px,
+            self.flash_duration_s * 1e6
+        );
+        s += &format!(
+            "  path after last image {:.3} m\n",
+            self.uncovered_path_m
+        );
+        s += if self.meets_wishes {
+            "  meets every wish\n"
+        } else {
+            "  does NOT meet every wish\n"
+        };
+        for w in &self.warnings {
+            s += &format!("  warning: {w}\n");
+        }
+        if let Some(c) = &self.caution {
+            s += &format!("\n{c}\n");
+        }
+        s
+    }
+}
