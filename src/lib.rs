@@ -12,6 +12,8 @@
 //! - [`spots`]: the detection pipeline end to end: photo -> ball images.
 //! - [`plan`]: choose flash rate, count and exposure before the shot.
 //! - [`render`]: synthetic photos from a scene (physics, camera, exact disc coverage, noise).
+//! - [`calibrate`]: pixels to world metres (uniform scale, plane homography by DLT, distortion).
+//! - [`physics`]: timed path to phases, fits and physics numbers with 1-sigma uncertainties.
 //!
 //! # Examples
 //! ```
@@ -22,11 +24,13 @@
 #![deny(missing_docs)]
 
 pub mod background;
+pub mod calibrate;
 pub mod error;
 pub mod hough;
 pub mod load;
 pub mod output;
 pub mod overlay;
+pub mod physics;
 pub mod plan;
 pub mod refine;
 pub mod render;

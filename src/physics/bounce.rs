@@ -1,0 +1,173 @@
+//! Bounces: the arcs before and after each bounce extrapolated to the contact.
+//!
+//! Method: the contact centre height of a bounce is where its two fitted parabolas cross (the ball
+//! is on both at contact); the floor line is the weighted mean contact height minus the radius
+//! (unless given). The contact level is floor + radius; the pre-bounce arc reaches it descending
+//! at t_in and the post-bounce arc leaves it ascending at t_out. The normal restitution is
+//! e = -v_out_y(t_out) / v_in_y(t_in) (Newton's experimental law), the tangential ratio
+//! vx_out / vx_in; 1-sigma by first-order propagation of both arcs' covariances and the floor
+//! sigma. Cross-checks from the same arcs: apex heights above the contact level,
+//! e ~ sqrt(h_after / h_before) (h = v^2 / 2g), and flight times between the two crossings of the
+//! contact level by each parabola, e ~ T_after / T_before (T = 2 v / g); both hold exactly in
+//! vacuum.
+
+use super::fit::{block_diagonal, poly_slope, poly_value, propagate_sigma};
+use super::flight::ArcFit;
+use serde::Serialize;
+
+/// One bounce on the floor.
+#[derive(Debug, Clone, Serialize)]
+pub struct Bounce {
+    /// Contact time (mean of the two arcs' contact times), seconds (path time).
+    pub t_s: f64,
+    /// Centre x at contact, metres.
+    pub x_m: f64,
+    /// Normal coefficient of restitution -v_out_y / v_in_y.
+    pub restitution: f64,
+    /// Its 1-sigma.
+    pub restitution_sigma: f64,
+    /// Speed just before contact, m/s.
+    pub impact_speed_mps: f64,
+    /// Speed just after contact, m/s.
+    pub rebound_speed_mps: f64,
+    /// Normal (vertical) impact speed |v_in_y|, m/s.
+    pub impact_normal_speed_mps: f64,
+    /// Its 1-sigma, m/s.
+    pub impact_normal_speed_sigma_mps: f64,
+    /// Velocity (x, y) just before contact, m/s.
+    pub impact_velocity_mps: [f64; 2],
+    /// Velocity (x, y) just after contact, m/s.
+    pub rebound_velocity_mps: [f64; 2],
+    /// Horizontal velocity after / before (None when the ball barely moves sideways).
+    pub tangential_ratio: Option<f64>,
+    /// Its 1-sigma.
+    pub tangential_ratio_sigma: Option<f64>,
+    /// Apex of the arc before, above the contact level, metres (vertex of its parabola).
+    pub apex_before_m: f64,
+    /// Apex of the arc after, above the contact level, metres.
+    pub apex_after_m: f64,
+    /// Cross-check sqrt(apex_after / apex_before).
+    pub restitution_from_apex: Option<f64>,
+    /// Time between the two crossings of the contact level by the arc before, seconds.
+    pub flight_time_before_s: f64,
+    /// The same for the arc after, seconds.
+    pub flight_time_after_s: f64,
+    /// Cross-check flight_time_after / flight_time_before.
+    pub restitution_from_flight_times: Option<f64>,
+}
+
+/// Roots of c0 + c1 t + c2 t^2 = level (discriminant clamped at zero), smaller first.
+fn crossings(c: &[f64], level: f64) -> (f64, f64) {
+    let (a, b, k) = (c[2], c[1], c[0] - level);
+    if a == 0.0 {
+        let t = -k / b;
+        return (t, t);
+    }
+    let disc = (b * b - 4.0 * a * k).max(0.0).sqrt();
+    let q = -0.5 * (b + b.signum() * disc);
+    let (r1, r2) = if q == 0.0 {
+        (-b / (2.0 * a), -b / (2.0 * a))
+    } else {
+        (q / a, k / q)
+    };
+    (r1.min(r2), r1.max(r2))
+}
+
+/// Parameter vector [pre x (2), pre y (3), post x (2), post y (3)] and its covariance.
+fn parameters(pre: &ArcFit, post: &ArcFit) -> (Vec<f64>, nalgebra::DMatrix<f64>) {
+    let mut p = Vec::with_capacity(10);
+    for f in [&pre.x, &pre.y, &post.x, &post.y] {
+        p.extend_from_slice(&f.coefficients);
+    }
+    let cov = block_diagonal(&[
+        &pre.x.covariance,
+        &pre.y.covariance,
+        &post.x.covariance,
+        &post.y.covariance,
+    ]);
+    (p, cov)
+}
+
+/// Where the two arcs cross near the gap between them: (time, centre height, its 1-sigma).
+pub(crate) fn contact_height(
+    pre: &ArcFit,
+    post: &ArcFit,
+    t_gap: (f64, f64),
+) -> Option<(f64, f64, f64)> {
+    let (p, cov) = parameters(pre, post);
+    let mid = 0.5 * (t_gap.0 + t_gap.1);
+    let cross = move |p: &[f64]| {
+        let d = [p[2] - p[7], p[3] - p[8], p[4] - p[9]];
+        let (r1, r2) = crossings(&d, 0.0);
+        let t = if (r1 - mid).abs() < (r2 - mid).abs() {
+            r1
+        } else {
+            r2
+        };
+        (t, poly_value(&p[2..5], t))
+    };
+    let (t, y) = cross(&p);
+    let sigma = propagate_sigma(|p| cross(p).1, &p, &cov);
+    let window = (t_gap.1 - t_gap.0).abs() + 1e-9;
+    (t.is_finite() && y.is_finite() && (t - mid).abs() <= window).then_some((t, y, sigma))
+}
+
+/// Measure the bounce between `pre` and `post` for a contact level `level_m` (floor + radius)
+/// with 1-sigma `level_sigma_m`.
+pub(crate) fn measure_bounce(
+    pre: &ArcFit,
+    post: &ArcFit,
+    level_m: f64,
+    level_sigma_m: f64,
+) -> Bounce {
+    let (mut p, cov10) = parameters(pre, post);
+    p.push(level_m);
+    let mut extra = nalgebra::DMatrix::zeros(1, 1);
+    extra[(0, 0)] = level_sigma_m * level_sigma_m;
+    let cov = block_diagonal(&[&cov10, &extra]);
+    let state = |p: &[f64]| {
+        let t_in = crossings(&p[2..5], p[10]).1;
+        let t_out = crossings(&p[7..10], p[10]).0;
+        let v_in = [p[1], poly_slope(&p[2..5], t_in)];
+        let v_out = [p[6], poly_slope(&p[7..10], t_out)];
+        (t_in, t_out, v_in, v_out)
+    };
+    let (t_in, t_out, v_in, v_out) = state(&p);
+    let e = |p: &[f64]| {
+        let (_, _, vi, vo) = state(p);
+        -vo[1] / vi[1]
+    };
+    let apex = |c: &[f64]| c[0] - c[1] * c[1] / (4.0 * c[2]) - level_m;
+    let duration = |c: &[f64]| {
+        let (a, b) = crossings(c, level_m);
+        b - a
+    };
+    let (h_before, h_after) = (apex(&pre.y.coefficients), apex(&post.y.coefficients));
+    let (t_before, t_after) = (
+        duration(&pre.y.coefficients),
+        duration(&post.y.coefficients),
+    );
+    let ratio = |p: &[f64]| p[6] / p[1];
+    let sideways = v_in[0].abs() > 1e-3 * v_in[1].abs().max(1e-9);
+    Bounce {
+        t_s: 0.5 * (t_in + t_out),
+        x_m: poly_value(&p[0..2], t_in),
+        restitution: e(&p),
+        restitution_sigma: propagate_sigma(e, &p, &cov),
+        impact_speed_mps: v_in[0].hypot(v_in[1]),
+        rebound_speed_mps: v_out[0].hypot(v_out[1]),
+        impact_normal_speed_mps: v_in[1].abs(),
+        impact_normal_speed_sigma_mps: propagate_sigma(|p| state(p).2[1].abs(), &p, &cov),
+        impact_velocity_mps: v_in,
+        rebound_velocity_mps: v_out,
+        tangential_ratio: sideways.then(|| ratio(&p)),
+        tangential_ratio_sigma: sideways.then(|| propagate_sigma(ratio, &p, &cov)),
+        apex_before_m: h_before,
+        apex_after_m: h_after,
+        restitution_from_apex: (h_before > 0.0 && h_after > 0.0)
+            .then(|| (h_after / h_before).sqrt()),
+        flight_time_before_s: t_before,
+        flight_time_after_s: t_after,
+        restitution_from_flight_times: (t_before > 0.0).then(|| t_after / t_before),
+    }
+}

@@ -1,0 +1,273 @@
+//! Incline: the ball rolling from rest down a straight chute, and its launch into flight.
+//!
+//! Method: the slope direction is the principal axis of the incline points (total least squares
+//! line); the distance along it is fitted by a parabola in t (constant acceleration). The launch
+//! time is where the incline's velocity (x and y quadratics in t) and the first arc's velocity
+//! agree best in least squares: position and velocity are continuous at the launch, only the
+//! acceleration jumps, so matching velocities is well conditioned where matching positions (a
+//! double root) is not. Rolling without slipping (standard rigid-body mechanics) gives
+//! a = g (sin theta - c cos theta) / (1 + k) and v = sqrt(2 g h / (1 + k)) at c = 0, with k the
+//! moment-of-inertia factor and c an effective rolling-loss coefficient, solved from the measured a.
+
+use super::TimedPoint;
+use super::fit::{
+    CovarianceScaling, FitOptions, PolyFit, block_diagonal, poly_slope, poly_value, polynomial_fit,
+    propagate_sigma,
+};
+use super::flight::ArcFit;
+use crate::error::Result;
+use nalgebra::DMatrix;
+use serde::Serialize;
+use std::ops::Range;
+
+/// Quick incline model for the phase split: chi-square of x and y parabolas in t, and the
+/// magnitude of the acceleration.
+pub(crate) struct InclineModel {
+    pub chi_square: f64,
+    pub accel_mps2: f64,
+}
+
+/// The incline model on `points`, None when it cannot be fitted.
+pub(crate) fn incline_model(points: &[TimedPoint]) -> Option<InclineModel> {
+    let t: Vec<f64> = points.iter().map(|p| p.t_s).collect();
+    let s: Vec<f64> = points.iter().map(|p| p.sigma_m).collect();
+    let x: Vec<f64> = points.iter().map(|p| p.x_m).collect();
+    let y: Vec<f64> = points.iter().map(|p| p.y_m).collect();
+    let o = FitOptions::default();
+    let fx = polynomial_fit(&t, &x, Some(&s), 2, &o).ok()?;
+    let fy = polynomial_fit(&t, &y, Some(&s), 2, &o).ok()?;
+    Some(InclineModel {
+        chi_square: fx.chi_square + fy.chi_square,
+        accel_mps2: 2.0 * fx.coefficients[2].hypot(fy.coefficients[2]),
+    })
+}
+
+/// A fitted incline.
+pub(crate) struct InclineFit {
+    pub range: Range<usize>,
+    x: PolyFit,
+    y: PolyFit,
+    along: PolyFit,
+    angle_rad: f64,
+    angle_sigma_rad: f64,
+    straightness_rms_m: f64,
+}
+
+/// Fit the incline on `points[range]`.
+pub(crate) fn fit_incline(
+    points: &[TimedPoint],
+    range: Range<usize>,
+    covariance: CovarianceScaling,
+) -> Result<InclineFit> {
+    let pts = &points[range.clone()];
+    let n = pts.len() as f64;
+    let t: Vec<f64> = pts.iter().map(|p| p.t_s).collect();
+    let s: Vec<f64> = pts.iter().map(|p| p.sigma_m).collect();
+    let x: Vec<f64> = pts.iter().map(|p| p.x_m).collect();
+    let y: Vec<f64> = pts.iter().map(|p| p.y_m).collect();
+    let o = FitOptions { covariance };
+    let fx = polynomial_fit(&t, &x, Some(&s), 2, &o)?;
+    let fy = polynomial_fit(&t, &y, Some(&s), 2, &o)?;
+    let cx = x.iter().sum::<f64>() / n;
+    let cy = y.iter().sum::<f64>() / n;
+    let (mut sxx, mut syy, mut sxy) = (0.0, 0.0, 0.0);
+    for p in pts {
+        sxx += (p.x_m - cx).powi(2);
+        syy += (p.y_m - cy).powi(2);
+        sxy += (p.x_m - cx) * (p.y_m - cy);
+    }
+    let phi = 0.5 * (2.0 * sxy).atan2(sxx - syy);
+    let mut u = [phi.cos(), phi.sin()];
+    let last = pts[pts.len() - 1];
+    if (last.x_m - pts[0].x_m) * u[0] + (last.y_m - pts[0].y_m) * u[1] < 0.0 {
+        u = [-u[0], -u[1]];
+    }
+    let along: Vec<f64> = pts
+        .iter()
+        .map(|p| (p.x_m - cx) * u[0] + (p.y_m - cy) * u[1])
+        .collect();
+    let perp: Vec<f64> = pts
+        .iter()
+        .map(|p| -(p.x_m - cx) * u[1] + (p.y_m - cy) * u[0])
+        .collect();
+    let fa = polynomial_fit(&t, &along, Some(&s), 2, &o)?;
+    let chi_perp: f64 = perp.iter().zip(&s).map(|(d, s)| (d / s).powi(2)).sum();
+    let mean_var = s.iter().map(|v| v * v).sum::<f64>() / n;
+    let inflate = if n > 2.0 {
+        (chi_perp / (n - 2.0)).max(1.0)
+    } else {
+        1.0
+    };
+    let spread: f64 = along.iter().map(|a| a * a).sum();
+    Ok(InclineFit {
+        range,
+        x: fx,
+        y: fy,
+        along: fa,
+        angle_rad: (-u[1]).clamp(-1.0, 1.0).asin(),
+        angle_sigma_rad: (mean_var * inflate / spread.max(1e-300)).sqrt(),
+        straightness_rms_m: (perp.iter().map(|d| d * d).sum::<f64>() / n).sqrt(),
+    })
+}
+
+/// The ball leaving the incline.
+#[derive(Debug, Clone, Serialize)]
+pub struct Launch {
+    /// Launch time, seconds (path time).
+    pub t_s: f64,
+    /// Its 1-sigma, seconds.
+    pub t_sigma_s: f64,
+    /// Centre x at launch, metres.
+    pub x_m: f64,
+    /// Centre y at launch, metres.
+    pub y_m: f64,
+    /// Velocity (x, y) at launch, m/s.
+    pub velocity_mps: [f64; 2],
+    /// Speed at launch, m/s.
+    pub speed_mps: f64,
+    /// Its 1-sigma, m/s.
+    pub speed_sigma_mps: f64,
+    /// Direction above horizontal, degrees (negative: downward).
+    pub angle_deg: f64,
+    /// Its 1-sigma, degrees.
+    pub angle_sigma_deg: f64,
+}
+
+/// Launch time from the parameter vector [incline x (3), incline y (3), arc x (2), arc y (3)].
+fn launch_time(p: &[f64], bounds: (f64, f64)) -> f64 {
+    let bx = p[1] - p[7];
+    let gx = 2.0 * p[2];
+    let by = p[4] - p[9];
+    let gy = 2.0 * (p[5] - p[10]);
+    let den = gx * gx + gy * gy;
+    let t = if den > 0.0 {
+        -(bx * gx + by * gy) / den
+    } else {
+        0.5 * (bounds.0 + bounds.1)
+    };
+    if t.is_finite() {
+        t.clamp(bounds.0, bounds.1)
+    } else {
+        0.5 * (bounds.0 + bounds.1)
+    }
+}
+
+/// Launch between the incline and the first arc, with 1-sigma from both fits' covariances.
+pub(crate) fn launch(points: &[TimedPoint], inc: &InclineFit, arc: &ArcFit) -> Launch {
+    let bounds = (points[inc.range.end - 1].t_s, points[arc.range.start].t_s);
+    let mut p = Vec::new();
+    for f in [&inc.x, &inc.y, &arc.x, &arc.y] {
+        p.extend_from_slice(&f.coefficients);
+    }
+    let cov = block_diagonal(&[
+        &inc.x.covariance,
+        &inc.y.covariance,
+        &arc.x.covariance,
+        &arc.y.covariance,
+    ]);
+    let velocity = move |p: &[f64]| {
+        let t = launch_time(p, bounds);
+        (t, [p[7], p[9] + 2.0 * p[10] * t])
+    };
+    let (t, v) = velocity(&p);
+    let speed = |p: &[f64]| {
+        let v = velocity(p).1;
+        v[0].hypot(v[1])
+    };
+    let angle = |p: &[f64]| {
+        let v = velocity(p).1;
+        v[1].atan2(v[0]).to_degrees()
+    };
+    Launch {
+        t_s: t,
+        t_sigma_s: propagate_sigma(|p| velocity(p).0, &p, &cov),
+        x_m: poly_value(&arc.x.coefficients, t),
+        y_m: poly_value(&arc.y.coefficients, t),
+        velocity_mps: v,
+        speed_mps: v[0].hypot(v[1]),
+        speed_sigma_mps: propagate_sigma(speed, &p, &cov),
+        angle_deg: v[1].atan2(v[0]).to_degrees(),
+        angle_sigma_deg: propagate_sigma(angle, &p, &cov),
+    }
+}
+
+/// The incline measured against ideal rolling without slipping.
+#[derive(Debug, Clone, Serialize)]
+pub struct InclineResult {
+    /// First flash index on the incline.
+    pub first_n: usize,
+    /// Last flash index on the incline.
+    pub last_n: usize,
+    /// Slope angle above horizontal, degrees (from the path).
+    pub angle_deg: f64,
+    /// Its 1-sigma, degrees.
+    pub angle_sigma_deg: f64,
+    /// Root-mean-square distance of the points from a straight line, metres.
+    pub straightness_rms_m: f64,
+    /// Measured acceleration along the slope, m/s^2.
+    pub accel_mps2: f64,
+    /// Its 1-sigma, m/s^2.
+    pub accel_sigma_mps2: f64,
+    /// Speed along the slope at the launch time, m/s.
+    pub end_speed_mps: f64,
+    /// Its 1-sigma, m/s.
+    pub end_speed_sigma_mps: f64,
+    /// Time the ball was at rest, extrapolated from the fit, seconds (path time).
+    pub rest_t_s: f64,
+    /// Height the centre dropped from rest to the launch, metres.
+    pub drop_height_m: f64,
+    /// Moment-of-inertia factor k = I / (m r^2) used.
+    pub inertia_factor: f64,
+    /// Ideal rolling acceleration g sin(theta) / (1 + k), m/s^2.
+    pub ideal_accel_mps2: f64,
+    /// Ideal end speed sqrt(2 g h / (1 + k)) for the measured drop height, m/s.
+    pub ideal_end_speed_mps: f64,
+    /// Effective rolling-loss coefficient c from a = g (sin theta - c cos theta) / (1 + k).
+    pub rolling_loss: f64,
+    /// Its 1-sigma.
+    pub rolling_loss_sigma: f64,
+}
+
+/// Compare the incline with rolling without slipping for gravity `g` (1-sigma `g_sigma`) and
+/// inertia factor `k`, up to the launch time `t_launch_s`.
+pub(crate) fn incline_result(
+    points: &[TimedPoint],
+    inc: &InclineFit,
+    t_launch_s: f64,
+    g: f64,
+    g_sigma: f64,
+    k: f64,
+) -> InclineResult {
+    let a = &inc.along.coefficients;
+    let accel = 2.0 * a[2];
+    let end_speed = poly_slope(a, t_launch_s);
+    let rest_t = -a[1] / (2.0 * a[2]);
+    let st = inc.angle_rad.sin();
+    let drop = end_speed * end_speed / (4.0 * a[2]) * st;
+    let mut p = a.clone();
+    p.extend([inc.angle_rad, g]);
+    let extra = DMatrix::from_diagonal(&nalgebra::DVector::from_vec(vec![
+        inc.angle_sigma_rad.powi(2),
+        g_sigma * g_sigma,
+    ]));
+    let cov = block_diagonal(&[&inc.along.covariance, &extra]);
+    let loss = |p: &[f64]| (p[3].sin() - 2.0 * p[2] * (1.0 + k) / p[4]) / p[3].cos();
+    InclineResult {
+        first_n: points[inc.range.start].n,
+        last_n: points[inc.range.end - 1].n,
+        angle_deg: inc.angle_rad.to_degrees(),
+        angle_sigma_deg: inc.angle_sigma_rad.to_degrees(),
+        straightness_rms_m: inc.straightness_rms_m,
+        accel_mps2: accel,
+        accel_sigma_mps2: 2.0 * inc.along.sigma(2),
+        end_speed_mps: end_speed,
+        end_speed_sigma_mps: propagate_sigma(|p| poly_slope(&p[..3], t_launch_s), &p, &cov),
+        rest_t_s: rest_t,
+        drop_height_m: drop,
+        inertia_factor: k,
+        ideal_accel_mps2: g * st / (1.0 + k),
+        ideal_end_speed_mps: (2.0 * g * drop.max(0.0) / (1.0 + k)).sqrt(),
+        rolling_loss: loss(&p),
+        rolling_loss_sigma: propagate_sigma(loss, &p, &cov),
+    }
+}

@@ -1,0 +1,678 @@
+//! Physics of the timed path: from the ball's centres at known flash times to launch speed,
+//! gravity (or flash interval, or scale), restitution of every bounce, rolling loss on the
+//! incline, camera roll and optional air drag, each with a 1-sigma uncertainty, and acceptance
+//! verdicts.
+//!
+//! Goes in: [`TimedPoint`]s in the world frame (metres, x right, y up; t_s = n * interval, so
+//! missing flashes leave gaps), the ball radius and [`MeasureOptions`]. Comes out: a
+//! [`Measurement`] (serialisable).
+//!
+//! Steps: split the path into phases ([`phases`]); unless the camera is declared level, estimate
+//! the direction of "down" from the common acceleration vector of the flight arcs (joint fit of x
+//! and y parabolas with shared quadratic coefficients) and rotate the frame to correct the roll;
+//! fit the flight arcs jointly with one common quadratic coefficient c, whose value
+//! -2c = g_apparent ties gravity, flash interval and scale (a length scale s and time scale dt
+//! enter as g dt^2 s / 2 in pixels per flash^2), so given any two the third is estimated and the
+//! path rescaled; then fit each arc ([`flight`]), the bounces ([`bounce`]), the incline and the
+//! launch ([`incline`]), the optional drag model, and check acceptance [`bands`].
+
+pub mod bands;
+pub mod bounce;
+pub mod fit;
+pub mod flight;
+pub mod incline;
+pub mod phases;
+
+use crate::error::{Error, Result};
+use crate::render::scene::{Build, STANDARD_GRAVITY_MPS2, inertia_factor};
+use bands::{Band, Verdict};
+use bounce::Bounce;
+use fit::{CovarianceScaling, FitOptions, polynomial_fit};
+use flight::{ArcFit, DragFit};
+use incline::{InclineResult, Launch};
+use serde::{Deserialize, Serialize};
+use std::ops::Range;
+use std::path::{Path, PathBuf};
+
+/// Version of the measurement JSON layout.
+pub const SCHEMA_VERSION: u32 = 1;
+
+/// One centre of the ball on the timed path.
+#[derive(Debug, Clone, Copy, PartialEq, Serialize, Deserialize)]
+pub struct TimedPoint {
+    /// Flash index (0 = first flash).
+    pub n: usize,
+    /// Time, seconds: n * flash interval.
+    pub t_s: f64,
+    /// Centre x, metres (world, x right).
+    pub x_m: f64,
+    /// Centre y, metres (world, y up).
+    pub y_m: f64,
+    /// 1-sigma of each coordinate, metres.
+    pub sigma_m: f64,
+}
+
+/// A calibration quantity with its 1-sigma and where it came from.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct Quantity {
+    /// Value (NaN, written as null, when unknown).
+    pub value: f64,
+    /// 1-sigma (0 when exact).
+    pub sigma: f64,
+    /// Where the value came from, e.g. "given" or "estimated from 3 flight arcs".
+    pub source: String,
+}
+
+impl Quantity {
+    /// A quantity with its sigma and source.
+    pub fn new(value: f64, sigma: f64, source: impl Into<String>) -> Self {
+        Quantity {
+            value,
+            sigma,
+            source: source.into(),
+        }
+    }
+
+    fn relative_sigma(&self) -> f64 {
+        let r = self.sigma / self.value;
+        if r.is_finite() { r.abs() } else { 0.0 }
+    }
+}
+
+/// Which calibration quantity is estimated from the flight arcs (the other two are given).
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Default, Serialize, Deserialize)]
+#[serde(rename_all = "lowercase")]
+pub enum Unknown {
+    /// Gravity, from the given scale and interval.
+    #[default]
+    Gravity,
+    /// Flash interval, from the given gravity and scale.
+    Interval,
+    /// Scale, from the given gravity and interval.
+    Scale,
+}
+
+/// Options of [`measure`].
+#[derive(Debug, Clone)]
+pub struct MeasureOptions {
+    /// The quantity to estimate.
+    pub unknown: Unknown,
+    /// Gravity, m/s^2 (used unless estimated; also sets the phase thresholds).
+    pub gravity: Quantity,
+    /// Flash interval the path times were computed with, seconds (None: t_s / n of the points).
+    pub interval: Option<Quantity>,
+    /// Scale the path metres were computed with, pixels per metre (None: not known).
+    pub scale: Option<Quantity>,
+    /// Ball build, for the inertia factor of the rolling model.
+    pub build: Build,
+    /// Inner / outer diameter of a thick shell.
+    pub inner_ratio: Option<f64>,
+    /// The camera is level: do not estimate and correct its roll.
+    pub camera_level: bool,
+    /// Floor height in the (corrected) world frame, metres (None: estimated from the bounces).
+    pub floor_y_m: Option<f64>,
+    /// Fit a quadratic drag coefficient (otherwise drag is neglected, residuals reported).
+    pub fit_drag: bool,
+    /// Acceptance bands.
+    pub bands: Vec<Band>,
+    /// Covariance scaling of every fit.
+    pub covariance: CovarianceScaling,
+    /// Names the data in errors (the photo).
+    pub source: PathBuf,
+}
+
+impl Default for MeasureOptions {
+    fn default() -> Self {
+        MeasureOptions {
+            unknown: Unknown::Gravity,
+            gravity: Quantity::new(STANDARD_GRAVITY_MPS2, 0.0, "standard gravity (ISO 80000-3)"),
+            interval: None,
+            scale: None,
+            build: Build::Solid,
+            inner_ratio: None,
+            camera_level: false,
+            floor_y_m: None,
+            fit_drag: false,
+            bands: Vec::new(),
+            covariance: CovarianceScaling::Conservative,
+            source: PathBuf::from("<timed path>"),
+        }
+    }
+}
+
+/// Kind of a phase of the path.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize)]
+#[serde(rename_all = "lowercase")]
+pub enum PhaseKind {
+    /// Rolling down the incline.
+    Incline,
+    /// A flight arc.
+    Flight,
+    /// A bounce (between two arcs).
+    Bounce,
+    /// Rolling or resting on the floor (no vertical acceleration).
+    Floor,
+    /// Too few points (under 3) to fit.
+    Unfitted,
+}
+
+/// A phase of the path.
+#[derive(Debug, Clone, Serialize)]
+pub struct PhaseSpan {
+    /// Kind.
+    pub kind: PhaseKind,
+    /// First flash index (for a bounce: the last flash before it).
+    pub first_n: usize,
+    /// Last flash index (for a bounce: the first flash after it).
+    pub last_n: usize,
+    /// Start time, seconds.
+    pub t_start_s: f64,
+    /// End time, seconds.
+    pub t_end_s: f64,
+}
+
+/// A fitted arc.
+#[derive(Debug, Clone, Serialize)]
+pub struct ArcResult {
+    /// Flight or floor.
+    pub kind: PhaseKind,
+    /// First flash index.
+    pub first_n: usize,
+    /// Last flash index.
+    pub last_n: usize,
+    /// Horizontal velocity, m/s.
+    pub vx_mps: f64,
+    /// Vertical acceleration 2 c2, m/s^2.
+    pub accel_y_mps2: f64,
+    /// Its 1-sigma.
+    pub accel_y_sigma_mps2: f64,
+    /// Root-mean-square residual of the vacuum model, metres (drag shows here).
+    pub rms_residual_m: f64,
+    /// Chi-square per degree of freedom of the vacuum model.
+    pub reduced_chi_square: f64,
+}
+
+/// Camera roll estimated from the direction of gravity.
+#[derive(Debug, Clone, Serialize)]
+pub struct Level {
+    /// Roll, degrees (positive: picture turned clockwise), None without flight arcs.
+    pub roll_deg: Option<f64>,
+    /// Its 1-sigma, degrees.
+    pub roll_sigma_deg: Option<f64>,
+    /// The frame was rotated by the roll.
+    pub corrected: bool,
+}
+
+/// The floor line (horizontal in the corrected frame).
+#[derive(Debug, Clone, Serialize)]
+pub struct FloorLine {
+    /// Floor height, metres.
+    pub y_m: f64,
+    /// Its 1-sigma, metres.
+    pub sigma_m: f64,
+    /// "given" or "contact heights of N bounces".
+    pub source: String,
+}
+
+/// A linear trend of restitution against normal impact speed, e = intercept + slope v.
+#[derive(Debug, Clone, Serialize)]
+pub struct RestitutionTrend {
+    /// Slope, s/m.
+    pub slope_s_per_m: f64,
+    /// Its 1-sigma (from the restitution sigmas; no degree of freedom with 2 bounces).
+    pub slope_sigma_s_per_m: f64,
+    /// Restitution extrapolated to zero impact speed.
+    pub intercept: f64,
+    /// Its 1-sigma.
+    pub intercept_sigma: f64,
+    /// Bounces in the fit.
+    pub bounces: usize,
+}
+
+/// Everything measured from one timed path.
+#[derive(Debug, Clone, Serialize)]
+pub struct Measurement {
+    /// Layout version ([`SCHEMA_VERSION`]).
+    pub schema_version: u32,
+    /// Phases in time order.
+    pub phases: Vec<PhaseSpan>,
+    /// Camera roll.
+    pub level: Level,
+    /// Gravity, m/s^2.
+    pub gravity_mps2: Quantity,
+    /// Flash interval, seconds.
+    pub flash_interval_s: Quantity,
+    /// Scale, pixels per metre.
+    pub scale_px_per_m: Quantity,
+    /// Floor line.
+    pub floor: FloorLine,
+    /// Launch off the incline (None without an incline).
+    pub launch: Option<Launch>,
+    /// The incline against ideal rolling (None without an incline).
+    pub incline: Option<InclineResult>,
+    /// Every arc after the incline.
+    pub arcs: Vec<ArcResult>,
+    /// Every measurable bounce (both neighbouring arcs fitted).
+    pub bounces: Vec<Bounce>,
+    /// Restitution against impact speed (two or more bounces).
+    pub restitution_trend: Option<RestitutionTrend>,
+    /// Drag fit when asked.
+    pub drag: Option<DragFit>,
+    /// Acceptance verdicts.
+    pub verdicts: Vec<Verdict>,
+}
+
+fn fail(options: &MeasureOptions, what: &str, e: Error) -> Error {
+    let message = match e {
+        Error::Measure { message, .. } => message,
+        other => other.to_string(),
+    };
+    Error::measure(&options.source, format!("{what}: {message}"))
+}
+
+fn validate(points: &[TimedPoint], radius_m: f64, options: &MeasureOptions) -> Result<()> {
+    let src: &Path = &options.source;
+    if points.len() < 6 {
+        return Err(Error::measure(
+            src,
+            format!(
+                "a measurement needs at least 6 points, got {}",
+                points.len()
+            ),
+        ));
+    }
+    for (i, p) in points.iter().enumerate() {
+        if !(p.t_s.is_finite() && p.x_m.is_finite() && p.y_m.is_finite()) {
+            return Err(Error::measure(
+                src,
+                format!("point {i}: not a finite number"),
+            ));
+        }
+        if !(p.sigma_m.is_finite() && p.sigma_m > 0.0) {
+            return Err(Error::measure(
+                src,
+                format!("point {i}: sigma must be positive"),
+            ));
+        }
+        if i > 0 && p.t_s <= points[i - 1].t_s {
+            return Err(Error::measure(
+                src,
+                format!("point {i}: times must increase"),
+            ));
+        }
+    }
+    if !(radius_m.is_finite() && radius_m > 0.0) {
+        return Err(Error::setting(
+            "ball radius",
+            "must be a positive number of metres",
+        ));
+    }
+    let g = &options.gravity;
+    if !(g.value.is_finite() && g.value > 0.0) {
+        return Err(Error::setting(
+            "gravity",
+            "must be a positive number of m/s^2",
+        ));
+    }
+    if options.unknown == Unknown::Scale && options.scale.is_none() {
+        return Err(Error::setting(
+            "scale",
+            "estimating the scale needs the scale the path was computed with",
+        ));
+    }
+    Ok(())
+}
+
+/// Arcs of a segmentation with their fits (None when too short) and whether each is a flight arc.
+fn fit_arcs(
+    points: &[TimedPoint],
+    arcs: &[Range<usize>],
+    g: f64,
+    cov: CovarianceScaling,
+) -> Vec<(Option<ArcFit>, bool)> {
+    arcs.iter()
+        .map(|r| {
+            let fit = if r.len() >= 3 {
+                flight::fit_arc(points, r.clone(), cov).ok()
+            } else {
+                None
+            };
+            let flying = fit
+                .as_ref()
+                .is_some_and(|f| 2.0 * f.y.coefficients[2] < -0.5 * g);
+            (fit, flying)
+        })
+        .collect()
+}
+
+fn flight_ranges(fits: &[(Option<ArcFit>, bool)]) -> Vec<Range<usize>> {
+    fits.iter()
+        .filter(|(f, flying)| *flying && f.as_ref().is_some_and(|f| f.range.len() >= 4))
+        .filter_map(|(f, _)| f.as_ref().map(|f| f.range.clone()))
+        .collect()
+}
+
+/// Measure the physics of a timed path for a ball of radius `radius_m`.
+pub fn measure(
+    points: &[TimedPoint],
+    radius_m: f64,
+    options: &MeasureOptions,
+) -> Result<Measurement> {
+    validate(points, radius_m, options)?;
+    let cov = options.covariance;
+    let g_hint = options.gravity.value;
+    let mut pts = points.to_vec();
+
+    // Level: direction of the common acceleration of the flight arcs.
+    let seg = phases::segment(&pts, g_hint);
+    let fits = fit_arcs(&pts, &seg.arcs, g_hint, cov);
+    let flights = flight_ranges(&fits);
+    if flights.is_empty() {
+        return Err(Error::measure(
+            &options.source,
+            "no flight arc with 4 or more points: nothing to measure",
+        ));
+    }
+    let roll = {
+        let ax = flight::joint_quadratic(&pts, &flights, |p| p.x_m, cov);
+        let ay = flight::joint_quadratic(&pts, &flights, |p| p.y_m, cov);
+        match (ax, ay) {
+            (Ok((cx, sx)), Ok((cy, sy))) => {
+                let rho = (-cx).atan2(-cy);
+                let r2 = cx * cx + cy * cy;
+                let sigma = ((cy * sx).powi(2) + (cx * sy).powi(2)).sqrt() / r2;
+                Some((rho, sigma))
+            }
+            _ => None,
+        }
+    };
+    if let (false, Some((rho, _))) = (options.camera_level, roll) {
+        let (s, c) = rho.sin_cos();
+        for p in &mut pts {
+            let (x, y) = (p.x_m, p.y_m);
+            p.x_m = c * x - s * y;
+            p.y_m = s * x + c * y;
+        }
+    }
+
+    // Calibration unknown from the common curvature of the flight arcs.
+    let seg = phases::segment(&pts, g_hint);
+    let fits = fit_arcs(&pts, &seg.arcs, g_hint, cov);
+    let flights = flight_ranges(&fits);
+    if flights.is_empty() {
+        return Err(Error::measure(
+            &options.source,
+            "no flight arc after the level correction",
+        ));
+    }
+    let (c2, c2_sigma) = flight::joint_quadratic(&pts, &flights, |p| p.y_m, cov)
+        .map_err(|e| fail(options, "joint fit of the flight arcs", e))?;
+    let g_app = -2.0 * c2;
+    let g_app_sigma = 2.0 * c2_sigma;
+    if g_app.is_nan() || g_app <= 0.0 {
+        return Err(Error::measure(
+            &options.source,
+            "the flight arcs do not fall",
+        ));
+    }
+    let interval_nominal = options.interval.clone().unwrap_or_else(|| {
+        let mut r: Vec<f64> = points
+            .iter()
+            .filter(|p| p.n > 0)
+            .map(|p| p.t_s / p.n as f64)
+            .collect();
+        r.sort_by(f64::total_cmp);
+        Quantity::new(
+            r.get(r.len() / 2).copied().unwrap_or(f64::NAN),
+            0.0,
+            "given",
+        )
+    });
+    let scale_nominal = options
+        .scale
+        .clone()
+        .unwrap_or_else(|| Quantity::new(f64::NAN, f64::NAN, "not given"));
+    let arcs_word = format!("estimated from {} flight arcs", flights.len());
+    let rel_g = g_app_sigma / g_app;
+    let (gravity, interval, scale) = match options.unknown {
+        Unknown::Gravity => (
+            Quantity::new(g_app, g_app_sigma, arcs_word),
+            interval_nominal,
+            scale_nominal,
+        ),
+        Unknown::Interval => {
+            let tau = (g_app / g_hint).sqrt();
+            for p in &mut pts {
+                p.t_s *= tau;
+            }
+            let v = interval_nominal.value * tau;
+            let rel = (rel_g.powi(2) + options.gravity.relative_sigma().powi(2)).sqrt() / 2.0;
+            (
+                options.gravity.clone(),
+                Quantity::new(v, v * rel, arcs_word),
+                scale_nominal,
+            )
+        }
+        Unknown::Scale => {
+            let lambda = g_hint / g_app;
+            for p in &mut pts {
+                p.x_m *= lambda;
+                p.y_m *= lambda;
+                p.sigma_m *= lambda;
+            }
+            let v = scale_nominal.value / lambda;
+            let rel = (rel_g.powi(2) + options.gravity.relative_sigma().powi(2)).sqrt();
+            (
+                options.gravity.clone(),
+                interval_nominal,
+                Quantity::new(v, v * rel, arcs_word),
+            )
+        }
+    };
+    let g = gravity.value;
+    // Relative sigmas of length and time units, added in quadrature to speeds and accelerations.
+    let (rel_len, rel_time) = (scale.relative_sigma(), interval.relative_sigma());
+    let widen = |v: f64, s: f64, time_power: f64| {
+        (s * s + (v * rel_len).powi(2) + (v * time_power * rel_time).powi(2)).sqrt()
+    };
+
+    // Final phases and fits.
+    let seg = phases::segment(&pts, g);
+    let fits = fit_arcs(&pts, &seg.arcs, g, cov);
+    let mut phases_out = Vec::new();
+    let span = |kind, r: &Range<usize>| PhaseSpan {
+        kind,
+        first_n: pts[r.start].n,
+        last_n: pts[r.end - 1].n,
+        t_start_s: pts[r.start].t_s,
+        t_end_s: pts[r.end - 1].t_s,
+    };
+    let incline_fit = match &seg.incline {
+        Some(r) => {
+            phases_out.push(span(PhaseKind::Incline, r));
+            Some(
+                incline::fit_incline(&pts, r.clone(), cov)
+                    .map_err(|e| fail(options, "incline", e))?,
+            )
+        }
+        None => None,
+    };
+    let mut arcs_out = Vec::new();
+    for (r, (fit, flying)) in seg.arcs.iter().zip(&fits) {
+        let kind = if *flying {
+            PhaseKind::Flight
+        } else {
+            PhaseKind::Floor
+        };
+        phases_out.push(span(kind, r));
+        if let Some(f) = fit {
+            arcs_out.push(ArcResult {
+                kind,
+                first_n: pts[r.start].n,
+                last_n: pts[r.end - 1].n,
+                vx_mps: f.x.coefficients[1],
+                accel_y_mps2: 2.0 * f.y.coefficients[2],
+                accel_y_sigma_mps2: 2.0 * f.y.sigma(2),
+                rms_residual_m: (0.5 * (f.x.rms_residual.powi(2) + f.y.rms_residual.powi(2)))
+                    .sqrt(),
+                reduced_chi_square: f.chi_square() / (f.x.dof + f.y.dof).max(1) as f64,
+            });
+        }
+    }
+
+    // Bounces: consecutive fitted flight arcs.
+    let pairs: Vec<(usize, &ArcFit, &ArcFit)> = fits
+        .windows(2)
+        .enumerate()
+        .filter_map(|(k, w)| match (&w[0], &w[1]) {
+            ((Some(a), true), (Some(b), true)) => Some((k, a, b)),
+            _ => None,
+        })
+        .collect();
+    let contacts: Vec<(f64, f64, f64)> = pairs
+        .iter()
+        .filter_map(|(_, a, b)| {
+            let gap = (pts[a.range.end - 1].t_s, pts[b.range.start].t_s);
+            bounce::contact_height(a, b, gap)
+        })
+        .collect();
+    let floor = match options.floor_y_m {
+        Some(y) => FloorLine {
+            y_m: y,
+            sigma_m: 0.0,
+            source: "given".into(),
+        },
+        None => {
+            let w: Vec<f64> = contacts
+                .iter()
+                .map(|c| 1.0 / c.2.max(1e-12).powi(2))
+                .collect();
+            let sw: f64 = w.iter().sum();
+            if contacts.is_empty() || sw.is_nan() || sw <= 0.0 {
+                FloorLine {
+                    y_m: f64::NAN,
+                    sigma_m: f64::NAN,
+                    source: "no bounce: not estimated".into(),
+                }
+            } else {
+                let mean = contacts.iter().zip(&w).map(|(c, w)| c.1 * w).sum::<f64>() / sw;
+                let chi2: f64 = contacts
+                    .iter()
+                    .zip(&w)
+                    .map(|(c, w)| (c.1 - mean).powi(2) * w)
+                    .sum();
+                let inflate = if contacts.len() > 1 {
+                    (chi2 / (contacts.len() - 1) as f64).max(1.0)
+                } else {
+                    1.0
+                };
+                FloorLine {
+                    y_m: mean - radius_m,
+                    sigma_m: (inflate / sw).sqrt(),
+                    source: format!("contact heights of {} bounces", contacts.len()),
+                }
+            }
+        }
+    };
+    let mut bounces = Vec::new();
+    if floor.y_m.is_finite() {
+        for (k, a, b) in &pairs {
+            let mut bo = bounce::measure_bounce(a, b, floor.y_m + radius_m, floor.sigma_m);
+            bo.impact_normal_speed_sigma_mps = widen(
+                bo.impact_normal_speed_mps,
+                bo.impact_normal_speed_sigma_mps,
+                1.0,
+            );
+            let before = &seg.arcs[*k];
+            let after = &seg.arcs[k + 1];
+            phases_out.push(PhaseSpan {
+                kind: PhaseKind::Bounce,
+                first_n: pts[before.end - 1].n,
+                last_n: pts[after.start].n,
+                t_start_s: bo.t_s,
+                t_end_s: bo.t_s,
+            });
+            bounces.push(bo);
+        }
+    }
+    phases_out.sort_by(|a, b| a.t_start_s.total_cmp(&b.t_start_s));
+
+    let restitution_trend = if bounces.len() >= 2 {
+        let v: Vec<f64> = bounces.iter().map(|b| b.impact_normal_speed_mps).collect();
+        let e: Vec<f64> = bounces.iter().map(|b| b.restitution).collect();
+        let s: Vec<f64> = bounces
+            .iter()
+            .map(|b| b.restitution_sigma.max(1e-12))
+            .collect();
+        polynomial_fit(
+            &v,
+            &e,
+            Some(&s),
+            1,
+            &FitOptions {
+                covariance: CovarianceScaling::Sigmas,
+            },
+        )
+        .ok()
+        .map(|f| RestitutionTrend {
+            slope_s_per_m: f.coefficients[1],
+            slope_sigma_s_per_m: f.sigma(1),
+            intercept: f.coefficients[0],
+            intercept_sigma: f.sigma(0),
+            bounces: bounces.len(),
+        })
+    } else {
+        None
+    };
+
+    let k = inertia_factor(options.build, options.inner_ratio);
+    let (launch, incline_out) = match (&incline_fit, fits.first()) {
+        (Some(inc), Some((Some(arc), true))) => {
+            let mut l = incline::launch(&pts, inc, arc);
+            l.speed_sigma_mps = widen(l.speed_mps, l.speed_sigma_mps, 1.0);
+            let mut r = incline::incline_result(&pts, inc, l.t_s, g, gravity.sigma, k);
+            r.accel_sigma_mps2 = widen(r.accel_mps2, r.accel_sigma_mps2, 2.0);
+            r.end_speed_sigma_mps = widen(r.end_speed_mps, r.end_speed_sigma_mps, 1.0);
+            (Some(l), Some(r))
+        }
+        _ => (None, None),
+    };
+
+    let drag = if options.fit_drag {
+        let flying: Vec<ArcFit> = fits
+            .iter()
+            .filter(|(f, fl)| *fl && f.as_ref().is_some_and(|f| f.range.len() >= 4))
+            .filter_map(|(f, _)| f.clone())
+            .collect();
+        let held = (options.unknown != Unknown::Gravity).then_some(g);
+        Some(
+            flight::fit_drag(&pts, &flying, held, g, cov)
+                .map_err(|e| fail(options, "drag fit", e))?,
+        )
+    } else {
+        None
+    };
+
+    let mut m = Measurement {
+        schema_version: SCHEMA_VERSION,
+        phases: phases_out,
+        level: Level {
+            roll_deg: roll.map(|r| r.0.to_degrees()),
+            roll_sigma_deg: roll.map(|r| r.1.to_degrees()),
+            corrected: !options.camera_level && roll.is_some(),
+        },
+        gravity_mps2: gravity,
+        flash_interval_s: interval,
+        scale_px_per_m: scale,
+        floor,
+        launch,
+        incline: incline_out,
+        arcs: arcs_out,
+        bounces,
+        restitution_trend,
+        drag,
+        verdicts: Vec::new(),
+    };
+    m.verdicts = options.bands.iter().map(|b| b.judge(&m)).collect();
+    Ok(m)
+}

@@ -1,0 +1,101 @@
+//! Phases: split the timed path into the incline (if any) and the flight arcs between bounces.
+//!
+//! Method (ours): a bounce reverses the vertical velocity between two flashes, so the second
+//! divided difference of y (an acceleration estimate from three neighbouring points) jumps to a
+//! large positive value there, where free flight gives -g and rolling gives about zero or a small
+//! negative value. Runs of points whose estimate exceeds max(0.3 g, 5 sigma of the estimate) mark
+//! bounces; the one or two points of a run may lie on either side of the contact, so each is
+//! assigned by trying every split and keeping the one with the smallest total chi-square of the
+//! two neighbouring flight fits. Before the first bounce, the incline is found by trying every
+//! split between a constant-acceleration straight-line segment (x and y quadratic in t) and a
+//! flight arc, keeping the best; the incline is accepted only when it lowers the chi-square by more
+//! than 25 against one flight arc for the whole segment and its acceleration is below 0.8 g.
+
+use super::TimedPoint;
+use super::flight::flight_chi_square;
+use super::incline::incline_model;
+use std::ops::Range;
+
+/// Chi-square improvement an incline must bring over pure flight to be accepted.
+const INCLINE_DELTA_CHI2: f64 = 25.0;
+
+/// The path split into an optional incline and consecutive arcs (bounce k lies between arcs k and
+/// k + 1).
+#[derive(Debug, Clone, PartialEq)]
+pub(crate) struct Segments {
+    pub incline: Option<Range<usize>>,
+    pub arcs: Vec<Range<usize>>,
+}
+
+/// Acceleration estimate at interior point i from points i - 1, i, i + 1, and its 1-sigma.
+fn second_difference(p: &[TimedPoint], i: usize) -> (f64, f64) {
+    let (a, b, c) = (&p[i - 1], &p[i], &p[i + 1]);
+    let (h1, h2) = (b.t_s - a.t_s, c.t_s - b.t_s);
+    let acc = 2.0 * ((c.y_m - b.y_m) / h2 - (b.y_m - a.y_m) / h1) / (h1 + h2);
+    let sigma = 2.0
+        * ((a.sigma_m / h1).powi(2)
+            + (b.sigma_m * (1.0 / h1 + 1.0 / h2)).powi(2)
+            + (c.sigma_m / h2).powi(2))
+        .sqrt()
+        / (h1 + h2);
+    (acc, sigma)
+}
+
+/// Split the path; `gravity_mps2` is the nominal gravity in the path's units (for thresholds).
+pub(crate) fn segment(points: &[TimedPoint], gravity_mps2: f64) -> Segments {
+    let n = points.len();
+    let mut runs: Vec<(usize, usize)> = Vec::new();
+    for i in 1..n.saturating_sub(1) {
+        let (acc, sigma) = second_difference(points, i);
+        if acc > (0.3 * gravity_mps2).max(5.0 * sigma) {
+            match runs.last_mut() {
+                Some(r) if r.1 + 1 == i => r.1 = i,
+                _ => runs.push((i, i)),
+            }
+        }
+    }
+    // Core of the first segment, before any ambiguous point.
+    let first_end = runs.first().map_or(n, |r| r.0);
+    let (incline, mut start) = find_incline(points, 0..first_end, gravity_mps2);
+    let mut arcs = Vec::new();
+    for (k, &(a, b)) in runs.iter().enumerate() {
+        let next_core_end = runs.get(k + 1).map_or(n, |r| r.0);
+        let mut best = (f64::INFINITY, a);
+        for split in a..=b + 1 {
+            let cost = flight_chi_square(points, start..split)
+                + flight_chi_square(points, split..next_core_end);
+            if cost < best.0 {
+                best = (cost, split);
+            }
+        }
+        arcs.push(start..best.1);
+        start = best.1;
+    }
+    arcs.push(start..n);
+    arcs.retain(|r| !r.is_empty());
+    Segments { incline, arcs }
+}
+
+/// The incline at the start of `range` and where the first arc begins.
+fn find_incline(
+    points: &[TimedPoint],
+    range: Range<usize>,
+    gravity_mps2: f64,
+) -> (Option<Range<usize>>, usize) {
+    let (s, e) = (range.start, range.end);
+    let all_flight = flight_chi_square(points, s..e);
+    let mut best: Option<(f64, usize)> = None;
+    for m in s + 3..=e.saturating_sub(3) {
+        let Some(inc) = incline_model(&points[s..m]) else {
+            continue;
+        };
+        let cost = inc.chi_square + flight_chi_square(points, m..e);
+        if best.is_none_or(|b| cost < b.0) && inc.accel_mps2 < 0.8 * gravity_mps2 {
+            best = Some((cost, m));
+        }
+    }
+    match best {
+        Some((cost, m)) if cost + INCLINE_DELTA_CHI2 < all_flight => (Some(s..m), m),
+        _ => (None, s),
+    }
+}
