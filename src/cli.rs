@@ -40,6 +40,20 @@ enum Command {
         #[command(flatten)]
         out: OutArgs,
     },
+    /// Plan a shot: flash rate, number of flashes, exposure and delay, before taking the photo.
+    Plan {
+        /// Scene file (TOML) with [flash_unit] and [wishes].
+        scene: PathBuf,
+        /// Render the planned photo as PNG.
+        #[arg(long, value_name = "PNG")]
+        preview: Option<PathBuf>,
+        /// Output format (text or json).
+        #[arg(long, value_enum, default_value = "text")]
+        format: Format,
+        /// Write the plan to FILE (atomically) instead of standard output.
+        #[arg(short = 'o', long = "output", value_name = "FILE")]
+        output: Option<PathBuf>,
+    },
     /// Render the built-in demo scene into a folder and measure it.
     Demo {
         /// Folder for the demo's files.
@@ -362,6 +376,32 @@ fn dispatch(args: Args) -> Result<ExitCode> {
                 spots_overlay(&photo, &report, o)?;
             }
             emit(&out, &text)?;
+            Ok(ExitCode::SUCCESS)
+        }
+        Command::Plan {
+            scene: scene_path,
+            preview,
+            format,
+            output,
+        } => {
+            let scene = Scene::load(&scene_path)?;
+            let plan = beadline::plan::plan(&scene)
+                .map_err(|e| anyhow::anyhow!("{}: {e}", scene_path.display()))?;
+            if let Some(p) = &preview {
+                render::render(&plan.apply(&scene)).save(p)?;
+            }
+            let text = match format {
+                Format::Json => serde_json::to_string_pretty(&plan)? + "\n",
+                Format::Text | Format::Csv => plan.text(),
+            };
+            emit(
+                &OutArgs {
+                    format,
+                    output,
+                    overlay: None,
+                },
+                &text,
+            )?;
             Ok(ExitCode::SUCCESS)
         }
         Command::Demo { dir } => demo(&dir),

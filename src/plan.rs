@@ -68,7 +68,9 @@ pub enum PlanError {
 impl std::fmt::Display for PlanError {
     fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
         match self {
-            PlanError::NoFlashUnit => write!(f, "the scene has no [flash_unit] section to plan with"),
+            PlanError::NoFlashUnit => {
+                write!(f, "the scene has no [flash_unit] section to plan with")
+            }
         }
     }
 }
@@ -96,7 +98,11 @@ fn coverage(scene: &Scene, wishes: &Wishes) -> Coverage {
             motion.bounces.len()
         ));
     }
-    let mut arcs: Vec<(f64, f64)> = edges.windows(2).take(wanted).map(|w| (w[0], w[1])).collect();
+    let mut arcs: Vec<(f64, f64)> = edges
+        .windows(2)
+        .take(wanted)
+        .map(|w| (w[0], w[1]))
+        .collect();
     if arcs.is_empty() {
         arcs.push((motion.launch.t_s, motion.launch.t_s + 1.0));
     }
@@ -110,18 +116,17 @@ fn coverage(scene: &Scene, wishes: &Wishes) -> Coverage {
         let p = motion.at(t);
         let c = proj.to_pixel(p.x_m, p.y_m);
         let r = r_m * proj.scale_px_per_m(p.x_m, p.y_m);
-        if c[0] - r < 0.0 || c[1] - r < 0.0 || c[0] + r > w || c[1] + r > h {
-            if t > motion.launch.t_s {
-                warnings.push(format!(
-                    "the ball leaves the frame at t = {t:.3} s: the plan covers the path up to there"
-                ));
-                t_end = t;
-                arcs.retain(|a| a.0 < t_end);
-                if let Some(last) = arcs.last_mut() {
-                    last.1 = last.1.min(t_end);
-                }
-                break;
+        let outside = c[0] - r < 0.0 || c[1] - r < 0.0 || c[0] + r > w || c[1] + r > h;
+        if outside && t > motion.launch.t_s {
+            warnings.push(format!(
+                "the ball leaves the frame at t = {t:.3} s: the plan covers the path up to there"
+            ));
+            t_end = t;
+            arcs.retain(|a| a.0 < t_end);
+            if let Some(last) = arcs.last_mut() {
+                last.1 = last.1.min(t_end);
             }
+            break;
         }
         t += step;
     }
@@ -325,10 +330,7 @@ impl Plan {
             self.blur_px,
             self.flash_duration_s * 1e6
         );
-        s += &format!(
-            "  path after last image {:.3} m\n",
-            self.uncovered_path_m
-        );
+        s += &format!("  path after last image {:.3} m\n", self.uncovered_path_m);
         s += if self.meets_wishes {
             "  meets every wish\n"
         } else {

@@ -257,11 +257,97 @@ fn correlation_factor(c: &Circle, pts: &[[f64; 2]]) -> f64 {
     (1.0 + rho) / (1.0 - rho)
 }
 
-/// Fit all candidates of a region jointly. `common_r_px` is the photo's common radius when known.
+/// The radius of the ball's images across the photo: r = a + bx x + by y (pixels). Under a
+/// perspective tilt the scale, and so the radius, changes linearly across the plane to first order.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct RadiusModel {
+    /// Radius at the pixel origin, pixels.
+    pub a_px: f64,
+    /// Change per pixel in x.
+    pub bx: f64,
+    /// Change per pixel in y.
+    pub by: f64,
+}
+
+impl RadiusModel {
+    /// The same radius everywhere.
+    pub fn constant(r_px: f64) -> RadiusModel {
+        RadiusModel {
+            a_px: r_px,
+            bx: 0.0,
+            by: 0.0,
+        }
+    }
+
+    /// Radius expected at a pixel.
+    pub fn at(&self, x_px: f64, y_px: f64) -> f64 {
+        self.a_px + self.bx * x_px + self.by * y_px
+    }
+
+    /// Fit to well-measured circles: least squares of a plane with two rounds of rejection of
+    /// circles more than 3 robust sigmas off; the median radius when fewer than 8 circles, or when
+    /// they span less than 5 radii.
+    pub fn fit(circles: &[Circle]) -> Option<RadiusModel> {
+        if circles.is_empty() {
+            return None;
+        }
+        let mut radii: Vec<f64> = circles.iter().map(|c| c.r_px).collect();
+        radii.sort_by(f64::total_cmp);
+        let median = RadiusModel::constant(radii[radii.len() / 2]);
+        let (xmin, xmax) = circles
+            .iter()
+            .fold((f64::INFINITY, f64::NEG_INFINITY), |(a, b), c| {
+                (a.min(c.x_px), b.max(c.x_px))
+            });
+        let (ymin, ymax) = circles
+            .iter()
+            .fold((f64::INFINITY, f64::NEG_INFINITY), |(a, b), c| {
+                (a.min(c.y_px), b.max(c.y_px))
+            });
+        if circles.len() < 8 || (xmax - xmin).max(ymax - ymin) < 5.0 * median.a_px {
+            return Some(median);
+        }
+        let mut model = median;
+        let mut use_all: Vec<&Circle> = circles.iter().collect();
+        for _ in 0..3 {
+            let mut ata = Matrix3::zeros();
+            let mut atb = Vector3::zeros();
+            for c in &use_all {
+                let row = Vector3::new(1.0, c.x_px, c.y_px);
+                ata += row * row.transpose();
+                atb += row * c.r_px;
+            }
+            let Some(sol) = ata.lu().solve(&atb) else {
+                return Some(median);
+            };
+            model = RadiusModel {
+                a_px: sol[0],
+                bx: sol[1],
+                by: sol[2],
+            };
+            let mut dev: Vec<f64> = circles
+                .iter()
+                .map(|c| (c.r_px - model.at(c.x_px, c.y_px)).abs())
+                .collect();
+            dev.sort_by(f64::total_cmp);
+            let cut = (3.0 * 1.4826 * dev[dev.len() / 2]).max(0.02 * median.a_px);
+            use_all = circles
+                .iter()
+                .filter(|c| (c.r_px - model.at(c.x_px, c.y_px)).abs() <= cut)
+                .collect();
+            if use_all.len() < 8 {
+                return Some(median);
+            }
+        }
+        Some(model)
+    }
+}
+
+/// Fit all candidates of a region jointly. `radius` is the photo's radius model when known.
 pub fn refine_region(
     region: &Region,
     candidates: &[Candidate],
-    common_r_px: Option<f64>,
+    radius: Option<&RadiusModel>,
     options: &RefineOptions,
 ) -> Vec<CircleFit> {
     let mut circles: Vec<Circle> = candidates
@@ -269,7 +355,7 @@ pub fn refine_region(
         .map(|c| Circle {
             x_px: c.x_px,
             y_px: c.y_px,
-            r_px: common_r_px.unwrap_or(c.r_px),
+            r_px: radius.map_or(c.r_px, |m| m.at(c.x_px, c.y_px)),
         })
         .collect();
     let mut held = vec![false; circles.len()];
@@ -296,8 +382,10 @@ pub fn refine_region(
                 .map(|&k| [region.edges[k].x_px, region.edges[k].y_px])
                 .collect();
             let cov = coverage_of(&circles[i], &pts);
-            let hold = match common_r_px {
-                Some(r) if cov < options.free_radius_coverage => Some(r),
+            let hold = match radius {
+                Some(m) if cov < options.free_radius_coverage => {
+                    Some(m.at(circles[i].x_px, circles[i].y_px))
+                }
                 _ => None,
             };
             let Some(fit) = geometric_fit(&pts, circles[i], hold) else {

@@ -117,8 +117,10 @@ pub struct SpotReport {
     pub threshold_level: f32,
     /// Radius range searched, pixels.
     pub radius_range_px: (f64, f64),
-    /// Common radius of the ball images, pixels (None when nothing was found).
+    /// Median radius of the ball images, pixels (None when nothing was found).
     pub common_radius_px: Option<f64>,
+    /// Radius of the ball images across the photo (it varies under a perspective tilt).
+    pub radius_model: Option<refine::RadiusModel>,
     /// Ball images, sorted by x.
     pub spots: Vec<Spot>,
     /// Candidates dropped, with the reason.
@@ -206,6 +208,7 @@ pub fn find_spots(
         threshold_level: blobs.level,
         radius_range_px: radius.unwrap_or((0.0, 0.0)),
         common_radius_px: None,
+        radius_model: None,
         spots: Vec::new(),
         rejected: Vec::new(),
     };
@@ -237,26 +240,31 @@ pub fn find_spots(
         .zip(&voted)
         .map(|(r, (c, _))| refine::refine_region(r, c, None, &options.refine))
         .collect();
-    let mut good_r: Vec<f64> = first
+    let mut good: Vec<refine::Circle> = first
         .iter()
         .flatten()
         .filter(|f| f.coverage >= 0.7 && f.circle.r_px >= r_min && f.circle.r_px <= r_max)
-        .map(|f| f.circle.r_px)
+        .map(|f| f.circle)
         .collect();
-    if good_r.is_empty() {
-        good_r = first
+    if good.is_empty() {
+        good = first
             .iter()
             .flatten()
             .filter(|f| f.coverage >= options.min_score)
-            .map(|f| f.circle.r_px)
+            .map(|f| f.circle)
             .collect();
     }
-    if good_r.is_empty() {
+    let Some(model) = refine::RadiusModel::fit(&good) else {
         return Ok(report);
-    }
-    good_r.sort_by(f64::total_cmp);
-    let common = good_r[good_r.len() / 2];
+    };
+    let mut at_centre = good
+        .iter()
+        .map(|c| model.at(c.x_px, c.y_px))
+        .collect::<Vec<_>>();
+    at_centre.sort_by(f64::total_cmp);
+    let common = at_centre[at_centre.len() / 2];
     report.common_radius_px = Some(common);
+    report.radius_model = Some(model);
     // Pass 2: from the first fits, holding the common radius where the rim is short.
     let fits: Vec<CircleFit> = regions
         .par_iter()
@@ -281,7 +289,7 @@ pub fn find_spots(
                     starts.push(*cand);
                 }
             }
-            refine::refine_region(r, &starts, Some(common), &options.refine)
+            refine::refine_region(r, &starts, Some(&model), &options.refine)
         })
         .collect();
     if let Some(d) = debug {
@@ -309,8 +317,9 @@ pub fn find_spots(
     let mut strengths: Vec<f64> = unique
         .iter()
         .filter(|f| {
+            let r = model.at(f.circle.x_px, f.circle.y_px);
             f.coverage >= options.min_score
-                && (f.circle.r_px - common).abs() <= options.radius_tolerance * common
+                && (f.circle.r_px - r).abs() <= options.radius_tolerance * r
         })
         .map(|f| f.edge_strength)
         .collect();
@@ -324,7 +333,9 @@ pub fn find_spots(
             || c.y_px > photo.height as f64 - 0.5
         {
             Some(Reason::OutsideFrame)
-        } else if (c.r_px - common).abs() > options.radius_tolerance * common {
+        } else if (c.r_px - model.at(c.x_px, c.y_px)).abs()
+            > options.radius_tolerance * model.at(c.x_px, c.y_px)
+        {
             Some(Reason::Radius)
         } else if f.coverage < options.min_score || f.rms_px > options.max_rms_px {
             Some(Reason::WeakRim)

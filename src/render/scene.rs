@@ -717,7 +717,10 @@ impl Scene {
                 return bad("flash_unit.levels", "give at least one power level");
             }
             for (i, l) in u.levels.iter().enumerate() {
-                positive(&format!("flash_unit.levels[{i}].max_rate_hz"), l.max_rate_hz)?;
+                positive(
+                    &format!("flash_unit.levels[{i}].max_rate_hz"),
+                    l.max_rate_hz,
+                )?;
                 positive(
                     &format!("flash_unit.levels[{i}].flash_duration_s"),
                     l.flash_duration_s,
