@@ -125,6 +125,12 @@ struct DetectArgs {
     /// Ball images' radii may differ from the common radius by this fraction.
     #[arg(long, default_value_t = 0.12)]
     radius_tolerance: f64,
+    /// The round objects differ in size (not images of one ball): no common radius.
+    #[arg(long)]
+    sizes_differ: bool,
+    /// Largest RMS distance of rim points from the fitted circle, pixels.
+    #[arg(long, default_value_t = 0.4)]
+    max_rms: f64,
     /// Images fainter than this fraction of the median rim contrast are rejected as reflections.
     #[arg(long, default_value_t = 0.5)]
     faint: f64,
@@ -213,6 +219,9 @@ impl DetectArgs {
         fraction(self.radius_tolerance, "--radius-tolerance")?;
         o.radius_tolerance = self.radius_tolerance;
         fraction(self.faint, "--faint")?;
+        positive(self.max_rms, "--max-rms")?;
+        o.max_rms_px = self.max_rms;
+        o.one_radius = !self.sizes_differ;
         o.faint_fraction = self.faint;
         if self.max_candidates == 0 {
             bail!("--max-candidates: must be at least 1");

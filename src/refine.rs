@@ -183,6 +183,8 @@ pub struct RefineOptions {
     pub free_radius_coverage: f64,
     /// Fewest owned edge points for a fit.
     pub min_points: usize,
+    /// After each round, candidates with less rim coverage than this are dropped.
+    pub prune_coverage: f64,
 }
 
 impl Default for RefineOptions {
@@ -193,6 +195,7 @@ impl Default for RefineOptions {
             rounds: 4,
             free_radius_coverage: 0.6,
             min_points: 8,
+            prune_coverage: 0.15,
         }
     }
 }
@@ -436,6 +439,13 @@ pub fn refine_region(
                 radius_held: held[i],
             });
         }
+        // Candidates with almost no rim stop claiming points.
+        for i in 0..circles.len() {
+            if alive[i] && result[i].is_some_and(|f| f.coverage < options.prune_coverage) {
+                alive[i] = false;
+                result[i] = None;
+            }
+        }
         // Merge circles that converged onto one image: keep the better supported.
         for i in 0..circles.len() {
             for j in i + 1..circles.len() {
@@ -457,8 +467,8 @@ pub fn refine_region(
     result.into_iter().flatten().collect()
 }
 
-/// Give each edge point to the one circle whose rim it lies on and whose centre its gradient
-/// points at; points claimed by two rims are left out.
+/// Give each edge point to the circle whose rim it lies on and whose centre its gradient points
+/// at; when two rims claim it about equally (within `tol` / 2 of each other), nobody gets it.
 fn assign(
     edges: &[EdgePoint],
     circles: &[Circle],
@@ -468,26 +478,36 @@ fn assign(
 ) -> Vec<Vec<usize>> {
     let mut owned = vec![Vec::new(); circles.len()];
     for (k, e) in edges.iter().enumerate() {
-        let mut owner = None;
-        let mut claims = 0;
+        let mut best: Option<(usize, f64)> = None;
+        let mut second = f64::INFINITY;
         for (i, c) in circles.iter().enumerate() {
             if !alive[i] {
                 continue;
             }
             let (dx, dy) = (c.x_px - e.x_px, c.y_px - e.y_px);
             let rho = dx.hypot(dy);
-            if (rho - c.r_px).abs() > tol || rho < 1e-9 {
+            let res = (rho - c.r_px).abs();
+            if res > tol || rho < 1e-9 {
                 continue;
             }
             let cos = (dx * e.ux + dy * e.uy) / rho;
             if cos < min_cos {
                 continue;
             }
-            claims += 1;
-            owner = Some(i);
+            match best {
+                Some((_, b)) if res >= b => second = second.min(res),
+                _ => {
+                    if let Some((_, b)) = best {
+                        second = second.min(b);
+                    }
+                    best = Some((i, res));
+                }
+            }
         }
-        if claims == 1 {
-            owned[owner.expect("one claim")].push(k);
+        if let Some((i, b)) = best
+            && second - b > 0.5 * tol
+        {
+            owned[i].push(k);
         }
     }
     owned

@@ -83,6 +83,10 @@ pub struct SpotOptions {
     pub faint_fraction: f64,
     /// Refuse photos with more candidate blobs than this (noise or texture, not a strobe photo).
     pub max_candidates: usize,
+    /// All images show one ball, so they share one radius (or a smooth radius model across the
+    /// photo): short rims keep that radius and other radii are rejected. False for photos of
+    /// several objects of different sizes.
+    pub one_radius: bool,
 }
 
 impl Default for SpotOptions {
@@ -98,6 +102,7 @@ impl Default for SpotOptions {
             max_rms_px: 0.4,
             faint_fraction: 0.5,
             max_candidates: 5000,
+            one_radius: true,
         }
     }
 }
@@ -289,7 +294,12 @@ pub fn find_spots(
                     starts.push(*cand);
                 }
             }
-            refine::refine_region(r, &starts, Some(&model), &options.refine)
+            refine::refine_region(
+                r,
+                &starts,
+                options.one_radius.then_some(&model),
+                &options.refine,
+            )
         })
         .collect();
     if let Some(d) = debug {
@@ -333,8 +343,9 @@ pub fn find_spots(
             || c.y_px > photo.height as f64 - 0.5
         {
             Some(Reason::OutsideFrame)
-        } else if (c.r_px - model.at(c.x_px, c.y_px)).abs()
-            > options.radius_tolerance * model.at(c.x_px, c.y_px)
+        } else if options.one_radius
+            && (c.r_px - model.at(c.x_px, c.y_px)).abs()
+                > options.radius_tolerance * model.at(c.x_px, c.y_px)
         {
             Some(Reason::Radius)
         } else if f.coverage < options.min_score || f.rms_px > options.max_rms_px {

@@ -35,6 +35,10 @@ pub struct SpotSettings {
     pub faint_fraction: f64,
     /// A clean plate was used.
     pub clean_plate: bool,
+    /// Largest RMS rim residual kept, pixels.
+    pub max_rms_px: f64,
+    /// All images were taken to share one radius.
+    pub one_radius: bool,
 }
 
 /// `beadline spots --format json`.
@@ -79,6 +83,8 @@ impl SpotsDoc {
                 radius_tolerance: options.radius_tolerance,
                 faint_fraction: options.faint_fraction,
                 clean_plate: plate,
+                max_rms_px: options.max_rms_px,
+                one_radius: options.one_radius,
             },
             spots: report.spots.clone(),
             rejected: report.rejected.clone(),
