@@ -1,0 +1,388 @@
+//! Measure: the main job, from one strobe photo to physics numbers.
+//!
+//! Goes in: a photo file and [`MeasureSettings`]. Comes out: a [`MeasureDoc`] (the timed path in
+//! pixels and metres, the phases, bounces, launch, incline, calibration quantities with their
+//! 1-sigma and source, and the verdicts of acceptance bands) plus the intermediate results for
+//! pictures. This module only chains the stages: [`crate::spots`] -> [`crate::path`] ->
+//! [`crate::calibrate`] -> [`crate::physics`].
+
+use crate::calibrate::{self, Calibration, PlaneFile};
+use crate::error::{Error, Result};
+use crate::path::{self, PathOptions, PathResult, Stray};
+use crate::physics::{self, MeasureOptions, Measurement, Quantity, TimedPoint, Unknown};
+use crate::spots::{self, SpotOptions, SpotReport};
+use serde::Serialize;
+use std::path::{Path, PathBuf};
+
+/// Where the pixel-to-metre scale comes from.
+#[derive(Debug, Clone, PartialEq)]
+pub enum ScaleSource {
+    /// Pixels per metre in the plane of motion.
+    PxPerM(f64),
+    /// Two image points a known distance apart in the plane of motion.
+    Ruler {
+        /// First point, pixels.
+        a_px: [f64; 2],
+        /// Second point, pixels.
+        b_px: [f64; 2],
+        /// Distance, metres.
+        distance_m: f64,
+    },
+    /// The ball's diameter: the detected radius is a ruler always in frame.
+    BallDiameter,
+    /// A plane file: four or more image points with world coordinates (homography).
+    Plane(PathBuf),
+}
+
+/// Everything the measurement needs besides the photo.
+#[derive(Debug, Clone)]
+pub struct MeasureSettings {
+    /// Spot finding.
+    pub spots: SpotOptions,
+    /// Optional clean plate.
+    pub plate: Option<PathBuf>,
+    /// Path ordering.
+    pub path: PathOptions,
+    /// Scale source (None: the scale is estimated from the flight arcs).
+    pub scale: Option<ScaleSource>,
+    /// Ball diameter, metres (needed for `BallDiameter` and for the floor contact).
+    pub ball_diameter_m: Option<f64>,
+    /// Flash rate, hertz (None: the flash interval is estimated from the flight arcs).
+    pub rate_hz: Option<f64>,
+    /// Physics options (gravity, ball build, level, floor, drag, bands...).
+    pub physics: MeasureOptions,
+    /// Decoding limits.
+    pub load: crate::load::LoadOptions,
+}
+
+impl Default for MeasureSettings {
+    fn default() -> Self {
+        MeasureSettings {
+            spots: SpotOptions::default(),
+            plate: None,
+            path: PathOptions::default(),
+            scale: None,
+            ball_diameter_m: None,
+            rate_hz: None,
+            physics: MeasureOptions::default(),
+            load: crate::load::LoadOptions::default(),
+        }
+    }
+}
+
+/// One point of the timed path in the output.
+#[derive(Debug, Clone, Copy, PartialEq, Serialize)]
+pub struct PathEntry {
+    /// Flash index, 0 = first image found.
+    pub n: usize,
+    /// Time from the first image, seconds.
+    pub t_s: f64,
+    /// Centre x, pixels.
+    pub x_px: f64,
+    /// Centre y, pixels.
+    pub y_px: f64,
+    /// Radius, pixels.
+    pub r_px: f64,
+    /// 1-sigma of the centre, pixels.
+    pub sigma_px: f64,
+    /// Centre x, metres (world, x right; before the level correction).
+    pub x_m: f64,
+    /// Centre y, metres (world, y up; before the level correction).
+    pub y_m: f64,
+}
+
+/// `beadline measure --format json`.
+#[derive(Debug, Clone, Serialize)]
+pub struct MeasureDoc {
+    /// The photo.
+    pub file: String,
+    /// Width, pixels.
+    pub width_px: usize,
+    /// Height, pixels.
+    pub height_px: usize,
+    /// Ball images found.
+    pub spots_found: usize,
+    /// The timed path.
+    pub path: Vec<PathEntry>,
+    /// Flash indexes with no image.
+    pub missing: Vec<usize>,
+    /// Spots not on the path, with the reason.
+    pub strays: Vec<Stray>,
+    /// The physics (flattened: `schema_version`, `phases`, `bounces`, `launch`, ...).
+    #[serde(flatten)]
+    pub measurement: Measurement,
+}
+
+/// The measurement and what it was made from, for pictures.
+#[derive(Debug, Clone)]
+pub struct Measured {
+    /// The document.
+    pub doc: MeasureDoc,
+    /// Spot finding's report.
+    pub spots: SpotReport,
+    /// Path ordering's result.
+    pub paths: PathResult,
+    /// The calibration used.
+    pub calibration: Calibration,
+}
+
+/// Measure one photo.
+pub fn measure_photo(photo_path: &Path, settings: &MeasureSettings) -> Result<Measured> {
+    let photo = crate::load::load(photo_path, &settings.load)?;
+    let plate = settings
+        .plate
+        .as_deref()
+        .map(|p| crate::load::load(p, &settings.load))
+        .transpose()?;
+    let report = spots::find_spots(&photo, plate.as_ref(), &settings.spots, None)?;
+    measure_spots(photo_path, report, settings)
+}
+
+/// Measure from spots already found.
+pub fn measure_spots(
+    photo_path: &Path,
+    report: SpotReport,
+    settings: &MeasureSettings,
+) -> Result<Measured> {
+    let fail = |m: String| Error::measure(photo_path, m);
+    if report.spots.len() < 2 {
+        return Err(fail(format!(
+            "{} ball image(s) found: a measurement needs a path of images",
+            report.spots.len()
+        )));
+    }
+    let paths = path::order_path(&report.spots, &settings.path);
+    let Some(best) = paths.paths.first() else {
+        return Err(fail(format!(
+            "no path could be ordered from the {} ball images",
+            report.spots.len()
+        )));
+    };
+    let mut radii: Vec<f64> = best.points.iter().map(|p| p.r_px).collect();
+    radii.sort_by(f64::total_cmp);
+    let r_px = radii[radii.len() / 2];
+    let (w, h) = (report.width_px as u32, report.height_px as u32);
+    let mut physics_options = settings.physics.clone();
+    physics_options.source = photo_path.to_path_buf();
+    // Scale.
+    let nominal = |px_per_m: f64| Calibration::uniform(px_per_m, 0.0, h as f64 - 1.0, 0.0);
+    let (calibration, scale) = match &settings.scale {
+        Some(ScaleSource::PxPerM(s)) => (nominal(*s)?, Some(Quantity::new(*s, 0.0, "given"))),
+        Some(ScaleSource::Ruler {
+            a_px,
+            b_px,
+            distance_m,
+        }) => {
+            let s = calibrate::ruler_scale(*a_px, *b_px, *distance_m, 0.5)?;
+            (
+                nominal(s.px_per_m)?,
+                Some(Quantity::new(s.px_per_m, s.sigma_px_per_m, "ruler")),
+            )
+        }
+        Some(ScaleSource::BallDiameter) => {
+            let d = settings.ball_diameter_m.ok_or_else(|| {
+                Error::setting("--ball-diameter", "needed to use the ball as the ruler")
+            })?;
+            let spread = radii[radii.len() * 3 / 4] - radii[radii.len() / 4];
+            let sigma = (spread / 1.349) / (radii.len() as f64).sqrt();
+            let s = calibrate::ball_scale(r_px, sigma, d)?;
+            (
+                nominal(s.px_per_m)?,
+                Some(Quantity::new(
+                    s.px_per_m,
+                    s.sigma_px_per_m,
+                    format!("ball diameter, {} images", radii.len()),
+                )),
+            )
+        }
+        Some(ScaleSource::Plane(p)) => {
+            let plane = PlaneFile::load(p)?;
+            let cal = plane.calibration(w, h)?;
+            let (cx, cy) = (w as f64 / 2.0, h as f64 / 2.0);
+            let s = cal.scale_px_per_m(cx, cy);
+            (cal, Some(Quantity::new(s, 0.0, "plane homography, at the image centre")))
+        }
+        None => {
+            if physics_options.unknown != Unknown::Scale {
+                physics_options.unknown = Unknown::Scale;
+            }
+            // A nominal scale the flight arcs correct.
+            let s = settings
+                .ball_diameter_m
+                .map_or(1000.0, |d| r_px / (d / 2.0));
+            (nominal(s)?, Some(Quantity::new(s, f64::NAN, "nominal")))
+        }
+    };
+    // Time.
+    let interval = match settings.rate_hz {
+        Some(rate) => Quantity::new(1.0 / rate, 0.0, "given flash rate"),
+        None => {
+            if settings.scale.is_none() {
+                return Err(Error::setting(
+                    "--rate",
+                    "give the flash rate or a scale: two of scale, flash interval and gravity \
+                     must be known",
+                ));
+            }
+            physics_options.unknown = Unknown::Interval;
+            Quantity::new(0.04, f64::NAN, "nominal")
+        }
+    };
+    let dt = interval.value;
+    physics_options.interval = Some(interval);
+    physics_options.scale = scale;
+    let points: Vec<TimedPoint> = best
+        .points
+        .iter()
+        .map(|p| {
+            let [x_m, y_m] = calibration.to_world(p.x_px, p.y_px);
+            TimedPoint {
+                n: p.n,
+                t_s: p.n as f64 * dt,
+                x_m,
+                y_m,
+                sigma_m: calibration.sigma_m(p.x_px, p.y_px, p.sigma_px.max(1e-4)),
+            }
+        })
+        .collect();
+    let radius_m = settings
+        .ball_diameter_m
+        .map_or(r_px / calibration.scale_px_per_m(w as f64 / 2.0, h as f64 / 2.0), |d| d / 2.0);
+    let measurement = physics::measure(&points, radius_m, &physics_options)?;
+    let doc = MeasureDoc {
+        file: photo_path.display().to_string(),
+        width_px: report.width_px,
+        height_px: report.height_px,
+        spots_found: report.spots.len(),
+        path: best
+            .points
+            .iter()
+            .zip(&points)
+            .map(|(p, t)| PathEntry {
+                n: p.n,
+                t_s: t.t_s,
+                x_px: p.x_px,
+                y_px: p.y_px,
+                r_px: p.r_px,
+                sigma_px: p.sigma_px,
+                x_m: t.x_m,
+                y_m: t.y_m,
+            })
+            .collect(),
+        missing: best.missing.clone(),
+        strays: paths.strays.clone(),
+        measurement,
+    };
+    Ok(Measured {
+        doc,
+        spots: report,
+        paths,
+        calibration,
+    })
+}
+
+fn quantity(q: &Quantity, unit: &str) -> String {
+    if q.value.is_finite() {
+        if q.sigma.is_finite() && q.sigma > 0.0 {
+            format!("{:.5} +- {:.5} {unit} ({})", q.value, q.sigma, q.source)
+        } else {
+            format!("{:.5} {unit} ({})", q.value, q.source)
+        }
+    } else {
+        format!("unknown ({})", q.source)
+    }
+}
+
+impl MeasureDoc {
+    /// Summary for a person.
+    pub fn text(&self) -> String {
+        let m = &self.measurement;
+        let mut s = format!(
+            "{}: {} ball images, {} on the path ({} flashes missing), {} strays\n",
+            self.file,
+            self.spots_found,
+            self.path.len(),
+            self.missing.len(),
+            self.strays.len()
+        );
+        s += &format!("  scale          {}\n", quantity(&m.scale_px_per_m, "px/m"));
+        s += &format!("  flash interval {}\n", quantity(&m.flash_interval_s, "s"));
+        s += &format!("  gravity        {}\n", quantity(&m.gravity_mps2, "m/s^2"));
+        if let Some(r) = m.level.roll_deg {
+            s += &format!(
+                "  camera roll    {:.3} +- {:.3} deg{}\n",
+                r,
+                m.level.roll_sigma_deg.unwrap_or(f64::NAN),
+                if m.level.corrected { " (corrected)" } else { "" }
+            );
+        }
+        if let Some(i) = &m.incline {
+            s += &format!(
+                "  incline        {:.2} deg, accel {:.4} +- {:.4} m/s^2 (ideal rolling {:.4}), \
+                 end speed {:.4} +- {:.4} m/s (ideal {:.4}), rolling loss {:.4}\n",
+                i.angle_deg,
+                i.accel_mps2,
+                i.accel_sigma_mps2,
+                i.ideal_accel_mps2,
+                i.end_speed_mps,
+                i.end_speed_sigma_mps,
+                i.ideal_end_speed_mps,
+                i.rolling_loss
+            );
+        }
+        if let Some(l) = &m.launch {
+            s += &format!(
+                "  launch         {:.4} +- {:.4} m/s at {:.2} +- {:.2} deg, t = {:.4} s\n",
+                l.speed_mps, l.speed_sigma_mps, l.angle_deg, l.angle_sigma_deg, l.t_s
+            );
+        }
+        s += &format!(
+            "  floor          y = {:.4} +- {:.4} m ({})\n",
+            m.floor.y_m, m.floor.sigma_m, m.floor.source
+        );
+        for (i, b) in m.bounces.iter().enumerate() {
+            s += &format!(
+                "  bounce {}       t = {:.4} s, e = {:.4} +- {:.4}, impact {:.3} m/s, rebound {:.3} m/s",
+                i + 1,
+                b.t_s,
+                b.restitution,
+                b.restitution_sigma,
+                b.impact_speed_mps,
+                b.rebound_speed_mps
+            );
+            if let Some(a) = b.restitution_from_apex {
+                s += &format!(", apex check {a:.4}");
+            }
+            s += "\n";
+        }
+        if let Some(t) = &m.restitution_trend {
+            s += &format!(
+                "  e vs impact    slope {:.4} +- {:.4} s/m over {} bounces\n",
+                t.slope_s_per_m, t.slope_sigma_s_per_m, t.bounces
+            );
+        }
+        if let Some(d) = &m.drag {
+            s += &format!(
+                "  drag           {:.4} +- {:.4} 1/m\n",
+                d.drag_per_m, d.drag_sigma_per_m
+            );
+        }
+        for v in &m.verdicts {
+            s += &format!(
+                "  band {} {}..{}: {:?} {}\n",
+                v.band.quantity, v.band.min, v.band.max, v.outcome, v.note
+            );
+        }
+        s
+    }
+
+    /// CSV of the path.
+    pub fn csv(&self) -> std::io::Result<String> {
+        let mut w = csv::Writer::from_writer(Vec::new());
+        for p in &self.path {
+            w.serialize(p)?;
+        }
+        let bytes = w.into_inner().map_err(|e| e.into_error())?;
+        Ok(String::from_utf8_lossy(&bytes).into_owned())
+    }
+}
