@@ -4,6 +4,7 @@
 //! It also renders synthetic strobe photos with exact ground truth.
 //!
 //! Stages, one module each:
+//! - [`path`]: spots -> the ball's path in time order with flash indices, and the strays.
 //! - [`render`]: synthetic photos from a scene (physics, camera, exact disc coverage, noise).
 //!
 //! # Examples
@@ -16,6 +17,7 @@
 
 pub mod error;
 pub mod output;
+pub mod path;
 pub mod render;
 pub mod spots;
 
