@@ -10,7 +10,9 @@
 //! - [`hough`]: sub-pixel edge points and the circular Hough transform.
 //! - [`refine`]: joint geometric circle fits with uncertainties.
 //! - [`spots`]: the detection pipeline end to end: photo -> ball images.
+//! - [`measure`]: the main job, photo -> timed path -> physics (chains the stages).
 //! - [`plan`]: choose flash rate, count and exposure before the shot.
+//! - [`path`]: spots -> the ball's path in time order with flash indices, and the strays.
 //! - [`render`]: synthetic photos from a scene (physics, camera, exact disc coverage, noise).
 //! - [`calibrate`]: pixels to world metres (uniform scale, plane homography by DLT, distortion).
 //! - [`physics`]: timed path to phases, fits and physics numbers with 1-sigma uncertainties.
@@ -28,8 +30,10 @@ pub mod calibrate;
 pub mod error;
 pub mod hough;
 pub mod load;
+pub mod measure;
 pub mod output;
 pub mod overlay;
+pub mod path;
 pub mod physics;
 pub mod plan;
 pub mod refine;

@@ -1,0 +1,366 @@
+//! Path ordering checks against a brute-force linear scan and against rendered ground truth.
+
+use beadline::path::{PathOptions, PathResult, PixelPoint, SpotTree, StrayReason, order_path};
+use beadline::render::{self, FlashTruth, scene::Scene};
+use beadline::spots::Spot;
+use rand::seq::SliceRandom;
+use rand::{RngExt, SeedableRng};
+use rand_chacha::ChaCha8Rng;
+use std::path::Path;
+
+/// Truth flashes inside the frame, in time order.
+fn truth_flashes(scene: &Scene) -> Vec<FlashTruth> {
+    let photo = render::render(scene);
+    photo
+        .truth
+        .flashes
+        .into_iter()
+        .filter(|f| f.in_frame)
+        .collect()
+}
+
+/// Spots at the truth centres with seeded jitter of +-0.05 px, shuffled; returns the spots and
+/// the truth flash index of each.
+fn shuffled_spots(flashes: &[FlashTruth], seed: u64) -> (Vec<Spot>, Vec<usize>) {
+    let mut rng = ChaCha8Rng::seed_from_u64(seed);
+    let mut pairs: Vec<(Spot, usize)> = flashes
+        .iter()
+        .map(|f| {
+            let spot = Spot {
+                x_px: f.x_px + (rng.random::<f64>() - 0.5) * 0.1,
+                y_px: f.y_px + (rng.random::<f64>() - 0.5) * 0.1,
+                r_px: f.r_px,
+                sigma_px: 0.05,
+                score: 1.0,
+            };
+            (spot, f.n)
+        })
+        .collect();
+    pairs.shuffle(&mut rng);
+    pairs.into_iter().unzip()
+}
+
+/// Assert that the best path lists every truth flash in order, with n = truth n - first truth n,
+/// and return how many points it has.
+fn assert_truth_order(result: &PathResult, truth_n: &[Option<usize>]) -> usize {
+    let path = &result.paths[0];
+    let expected: Vec<usize> = {
+        let mut v: Vec<usize> = truth_n.iter().flatten().copied().collect();
+        v.sort_unstable();
+        v
+    };
+    let first = expected[0];
+    let got: Vec<(usize, Option<usize>)> = path
+        .points
+        .iter()
+        .map(|p| (p.n, truth_n[p.spot_index]))
+        .collect();
+    let want: Vec<(usize, Option<usize>)> =
+        expected.iter().map(|&n| (n - first, Some(n))).collect();
+    assert_eq!(got, want, "recovered (n, truth n) pairs");
+    path.points.len()
+}
+
+fn drop_scene() -> Scene {
+    let text = r#"
+seed = 11
+[ball]
+diameter_m = 0.04
+[start]
+x_m = 0.1
+y_m = 0.8
+vx_mps = 0.3
+[floor]
+restitution = 0.8
+[strobe]
+rate_hz = 25.0
+first_flash_s = 0.15
+exposure_s = 1.45
+[camera]
+px_per_m = 800.0
+width_px = 1000
+height_px = 900
+origin_x_px = 200.0
+origin_y_px = 850.0
+[photo]
+noise = false
+"#;
+    Scene::from_toml(text, Path::new("drop.toml")).unwrap()
+}
+
+#[test]
+fn kd_tree_queries_match_a_linear_scan() {
+    // Source of truth: a brute-force linear scan over all points, sorted by (distance, index).
+    let mut rng = ChaCha8Rng::seed_from_u64(4);
+    let spots: Vec<Spot> = (0..10_000)
+        .map(|_| Spot {
+            x_px: rng.random::<f64>() * 1600.0,
+            y_px: rng.random::<f64>() * 900.0,
+            r_px: 10.0,
+            sigma_px: 0.1,
+            score: 1.0,
+        })
+        .collect();
+    let tree = SpotTree::new(&spots);
+    let scan = |x: f64, y: f64| {
+        let mut all: Vec<(f64, usize)> = spots
+            .iter()
+            .enumerate()
+            .map(|(i, s)| ((s.x_px - x).hypot(s.y_px - y), i))
+            .collect();
+        all.sort_by(|a, b| a.0.total_cmp(&b.0).then(a.1.cmp(&b.1)));
+        all
+    };
+    for _ in 0..300 {
+        let x = rng.random::<f64>() * 1700.0 - 50.0;
+        let y = rng.random::<f64>() * 1000.0 - 50.0;
+        let radius_px = rng.random::<f64>() * 60.0;
+        let all = scan(x, y);
+        let within: Vec<usize> = all
+            .iter()
+            .filter(|(d, _)| *d <= radius_px)
+            .map(|(_, i)| *i)
+            .collect();
+        let got: Vec<usize> = tree
+            .within(x, y, radius_px, usize::MAX)
+            .iter()
+            .map(|nb| nb.index)
+            .collect();
+        assert_eq!(got, within);
+        let capped: Vec<usize> = tree
+            .within(x, y, radius_px, 4)
+            .iter()
+            .map(|nb| nb.index)
+            .collect();
+        assert_eq!(capped, within.iter().take(4).copied().collect::<Vec<_>>());
+        let nearest = tree.nearest(x, y, 7);
+        for (nb, (d, i)) in nearest.iter().zip(&all) {
+            assert_eq!(nb.index, *i);
+            assert!((nb.distance_px - d).abs() < 1e-9);
+        }
+        assert_eq!(nearest.len(), 7);
+    }
+    assert!(tree.within(f64::NAN, 0.0, 10.0, 5).is_empty());
+    assert!(tree.within(0.0, 0.0, f64::NAN, 5).is_empty());
+}
+
+#[test]
+fn demo_path_is_recovered_in_order() {
+    // Source of truth: the renderer's exact flash positions (incline start with overlapping
+    // images, then flight and bounces).
+    let flashes = truth_flashes(&Scene::demo());
+    let (spots, truth_n) = shuffled_spots(&flashes, 1);
+    let result = order_path(&spots, &PathOptions::default());
+    let truth: Vec<Option<usize>> = truth_n.iter().map(|&n| Some(n)).collect();
+    let found = assert_truth_order(&result, &truth);
+    assert_eq!(found, flashes.len());
+    assert!(result.paths[0].missing.is_empty());
+    assert!(result.strays.is_empty());
+    assert_eq!(result.paths.len(), 1);
+}
+
+#[test]
+fn drop_test_with_bounces_is_recovered_in_order() {
+    // Source of truth: the renderer's exact flash positions for a drop with a slow sideways
+    // drift, so the arcs come down close to where they went up.
+    let scene = drop_scene();
+    let flashes = truth_flashes(&scene);
+    let photo = render::render(&scene);
+    assert!(photo.truth.bounces.len() >= 3);
+    let (spots, truth_n) = shuffled_spots(&flashes, 2);
+    let result = order_path(&spots, &PathOptions::default());
+    let truth: Vec<Option<usize>> = truth_n.iter().map(|&n| Some(n)).collect();
+    assert_eq!(assert_truth_order(&result, &truth), flashes.len());
+    assert!(result.strays.is_empty());
+}
+
+#[test]
+fn a_deleted_image_is_listed_missing_and_later_flashes_keep_their_index() {
+    // Source of truth: the renderer's flashes with one removed in flight and one on the incline.
+    for scene in [Scene::demo(), drop_scene()] {
+        let all = truth_flashes(&scene);
+        for removed in [5usize, 20] {
+            let flashes: Vec<FlashTruth> = all.iter().filter(|f| f.n != removed).cloned().collect();
+            let (spots, truth_n) = shuffled_spots(&flashes, 3 + removed as u64);
+            let result = order_path(&spots, &PathOptions::default());
+            let truth: Vec<Option<usize>> = truth_n.iter().map(|&n| Some(n)).collect();
+            assert_truth_order(&result, &truth);
+            assert_eq!(result.paths[0].missing, vec![removed - all[0].n]);
+        }
+    }
+}
+
+#[test]
+fn distractors_are_strays() {
+    // Source of truth: the renderer's flashes plus spots placed by the test away from the path
+    // and one of another radius between two images.
+    let flashes = truth_flashes(&Scene::demo());
+    let (mut spots, truth_n) = shuffled_spots(&flashes, 5);
+    let mut truth: Vec<Option<usize>> = truth_n.iter().map(|&n| Some(n)).collect();
+    let r_px = flashes[0].r_px;
+    let mut rng = ChaCha8Rng::seed_from_u64(6);
+    let mut added = 0;
+    while added < 8 {
+        let x_px = rng.random::<f64>() * 1600.0;
+        let y_px = rng.random::<f64>() * 900.0;
+        let clear = flashes
+            .iter()
+            .all(|f| (f.x_px - x_px).hypot(f.y_px - y_px) > 6.0 * r_px);
+        if clear {
+            spots.push(Spot {
+                x_px,
+                y_px,
+                r_px: r_px * (0.95 + 0.1 * rng.random::<f64>()),
+                sigma_px: 0.05,
+                score: 1.0,
+            });
+            truth.push(None);
+            added += 1;
+        }
+    }
+    let (a, b) = (&flashes[15], &flashes[16]);
+    spots.push(Spot {
+        x_px: (a.x_px + b.x_px) / 2.0,
+        y_px: (a.y_px + b.y_px) / 2.0,
+        r_px: 2.0 * r_px,
+        sigma_px: 0.05,
+        score: 1.0,
+    });
+    truth.push(None);
+    let result = order_path(&spots, &PathOptions::default());
+    assert_eq!(assert_truth_order(&result, &truth), flashes.len());
+    assert_eq!(result.paths.len(), 1);
+    let stray_indices: Vec<usize> = result.strays.iter().map(|s| s.spot_index).collect();
+    let expected: Vec<usize> = (flashes.len()..spots.len()).collect();
+    assert_eq!(stray_indices, expected);
+    let last = result.strays.last().unwrap();
+    assert_eq!(last.reason, StrayReason::RadiusDiffers);
+    for stray in &result.strays[..result.strays.len() - 1] {
+        assert!(matches!(
+            stray.reason,
+            StrayReason::OffPath | StrayReason::TooFewPoints
+        ));
+    }
+}
+
+#[test]
+fn a_start_point_sets_the_direction() {
+    // Source of truth: the renderer's flashes; the start given at the last image reverses n.
+    let flashes = truth_flashes(&Scene::demo());
+    let (spots, truth_n) = shuffled_spots(&flashes, 7);
+    let last = flashes.last().unwrap();
+    let options = PathOptions {
+        start: Some(PixelPoint {
+            x_px: last.x_px + 3.0,
+            y_px: last.y_px,
+        }),
+        ..PathOptions::default()
+    };
+    let result = order_path(&spots, &options);
+    let path = &result.paths[0];
+    assert_eq!(path.points.len(), flashes.len());
+    for p in &path.points {
+        assert_eq!(p.n, last.n - truth_n[p.spot_index]);
+    }
+}
+
+#[test]
+fn small_and_broken_inputs_do_not_panic() {
+    // Source of truth: the documented contract (every spot is on a path or a stray, once).
+    let options = PathOptions::default();
+    let empty = order_path(&[], &options);
+    assert!(empty.paths.is_empty() && empty.strays.is_empty());
+    let spot = |x_px: f64, y_px: f64| Spot {
+        x_px,
+        y_px,
+        r_px: 10.0,
+        sigma_px: 0.1,
+        score: 1.0,
+    };
+    let one = order_path(&[spot(5.0, 5.0)], &options);
+    assert!(one.paths.is_empty());
+    assert_eq!(one.strays.len(), 1);
+    assert_eq!(one.strays[0].reason, StrayReason::TooFewPoints);
+    let two = order_path(&[spot(5.0, 5.0), spot(25.0, 5.0)], &options);
+    assert!(two.paths.is_empty());
+    assert_eq!(two.strays.len(), 2);
+    let broken = [
+        spot(f64::NAN, 5.0),
+        spot(5.0, f64::INFINITY),
+        Spot {
+            r_px: -1.0,
+            ..spot(1.0, 1.0)
+        },
+        Spot {
+            sigma_px: f64::NAN,
+            ..spot(1.0, 1.0)
+        },
+    ];
+    let result = order_path(&broken, &options);
+    assert!(result.paths.is_empty());
+    assert!(
+        result
+            .strays
+            .iter()
+            .all(|s| s.reason == StrayReason::Invalid)
+    );
+    assert_eq!(result.strays.len(), 4);
+    let odd = PathOptions {
+        gate_radii: f64::NAN,
+        radius_tolerance: -1.0,
+        min_restitution: f64::INFINITY,
+        max_misses: usize::MAX,
+        min_points: 0,
+        max_paths: usize::MAX,
+        start: Some(PixelPoint {
+            x_px: f64::NAN,
+            y_px: 0.0,
+        }),
+    };
+    let mut rng = ChaCha8Rng::seed_from_u64(8);
+    let mut spots: Vec<Spot> = (0..10_000)
+        .map(|_| Spot {
+            x_px: rng.random::<f64>() * 1600.0,
+            y_px: rng.random::<f64>() * 900.0,
+            r_px: 5.0 + 10.0 * rng.random::<f64>(),
+            sigma_px: 0.1,
+            score: 1.0,
+        })
+        .collect();
+    spots[17].x_px = f64::NAN;
+    for opts in [&options, &odd] {
+        let result = order_path(&spots, opts);
+        let mut seen = vec![0usize; spots.len()];
+        for p in result.paths.iter().flat_map(|p| &p.points) {
+            seen[p.spot_index] += 1;
+        }
+        for s in &result.strays {
+            seen[s.spot_index] += 1;
+        }
+        assert!(seen.iter().all(|&c| c == 1));
+        assert_eq!(
+            result
+                .strays
+                .iter()
+                .find(|s| s.spot_index == 17)
+                .unwrap()
+                .reason,
+            StrayReason::Invalid
+        );
+    }
+}
+
+#[test]
+fn json_uses_the_documented_field_names() {
+    // Source of truth: the field names promised to JSON consumers.
+    let flashes = truth_flashes(&Scene::demo());
+    let (spots, _) = shuffled_spots(&flashes, 9);
+    let result = order_path(&spots, &PathOptions::default());
+    let json = serde_json::to_value(&result).unwrap();
+    let point = &json["paths"][0]["points"][0];
+    for key in ["n", "spot_index", "x_px", "y_px", "r_px", "sigma_px"] {
+        assert!(point.get(key).is_some(), "{key}");
+    }
+    assert!(json["paths"][0]["missing"].is_array());
+    assert!(json["strays"].is_array());
+}
