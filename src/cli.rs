@@ -36,9 +36,23 @@ enum Command {
         /// The photo (JPEG, PNG or TIFF).
         photo: PathBuf,
         #[command(flatten)]
-        detect: DetectArgs,
+        detect: Box<DetectArgs>,
         #[command(flatten)]
         out: OutArgs,
+    },
+    /// Measure the ball from a strobe photo: path, calibration, phases, fits, restitution.
+    Measure {
+        /// The photo (JPEG, PNG or TIFF).
+        photo: PathBuf,
+        #[command(flatten)]
+        detect: Box<DetectArgs>,
+        #[command(flatten)]
+        measure: Box<MeasureArgs>,
+        #[command(flatten)]
+        out: OutArgs,
+        /// Write plots (height against time, restitution against impact speed) as SVG.
+        #[arg(long, value_name = "SVG")]
+        plot: Option<PathBuf>,
     },
     /// Plan a shot: flash rate, number of flashes, exposure and delay, before taking the photo.
     Plan {
@@ -140,6 +154,176 @@ struct DetectArgs {
     /// Write each stage's intermediate image into DIR.
     #[arg(long, value_name = "DIR")]
     debug_dir: Option<PathBuf>,
+}
+
+/// What to estimate from the flight arcs.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, ValueEnum)]
+enum EstimateArg {
+    Gravity,
+    Interval,
+    Scale,
+}
+
+/// Calibration, time and physics settings as typed.
+#[derive(Debug, Clone, ClapArgs)]
+struct MeasureArgs {
+    /// Flash rate, hertz.
+    #[arg(long, value_name = "HZ")]
+    rate: Option<f64>,
+    /// Scale in the plane of motion, pixels per metre.
+    #[arg(long, value_name = "PX_PER_M")]
+    scale: Option<f64>,
+    /// Two image points a known distance apart in the plane of motion: X1,Y1,X2,Y2,METRES.
+    #[arg(long, value_name = "X1,Y1,X2,Y2,METRES")]
+    ruler: Option<String>,
+    /// Ball diameter, metres (also the scale when no other is given).
+    #[arg(long, value_name = "METRES")]
+    ball_diameter: Option<f64>,
+    /// Plane file (TOML: [[points]] x_px, y_px, x_m, y_m; optional k1, k2, focal_px).
+    #[arg(long, value_name = "FILE")]
+    plane: Option<PathBuf>,
+    /// Gravity, m/s^2, when it is not the quantity estimated.
+    #[arg(long, default_value_t = 9.80665)]
+    gravity: f64,
+    /// The quantity estimated from the flight arcs (default: gravity when rate and scale are
+    /// given; otherwise the missing one).
+    #[arg(long, value_enum)]
+    estimate: Option<EstimateArg>,
+    /// Ball build: solid, shell, or thick:INNER_DIAMETER_M.
+    #[arg(long, default_value = "solid")]
+    ball: String,
+    /// The camera is level: do not estimate and correct its roll.
+    #[arg(long)]
+    level: bool,
+    /// Fit a quadratic air-drag term to the flight arcs.
+    #[arg(long)]
+    fit_drag: bool,
+    /// Acceptance band QUANTITY=MIN..MAX (repeatable), e.g. restitution=0.73..0.76.
+    #[arg(long = "accept", value_name = "Q=MIN..MAX")]
+    accept: Vec<String>,
+    /// Start of the path near pixel X,Y (default: found automatically).
+    #[arg(long, value_name = "X,Y")]
+    start: Option<String>,
+}
+
+fn parse_numbers(text: &str, count: usize, name: &str) -> Result<Vec<f64>> {
+    let v: Vec<f64> = text
+        .split(',')
+        .map(|p| p.trim().parse::<f64>())
+        .collect::<std::result::Result<_, _>>()
+        .with_context(|| format!("{name}: '{text}' is not a list of numbers"))?;
+    if v.len() != count || v.iter().any(|x| !x.is_finite()) {
+        bail!("{name}: expected {count} finite numbers separated by commas, got '{text}'");
+    }
+    Ok(v)
+}
+
+impl MeasureArgs {
+    fn validate(&self, detect: &Detect) -> Result<beadline::measure::MeasureSettings> {
+        use beadline::measure::{MeasureSettings, ScaleSource};
+        use beadline::physics::{Quantity, Unknown};
+        let mut s = MeasureSettings {
+            spots: detect.options,
+            plate: detect.plate.clone(),
+            ..MeasureSettings::default()
+        };
+        let positive = |v: f64, name: &str| -> Result<f64> {
+            if v.is_finite() && v > 0.0 {
+                Ok(v)
+            } else {
+                bail!("{name}: must be a positive number, got {v}")
+            }
+        };
+        if let Some(r) = self.rate {
+            if !(r.is_finite() && r > 0.0 && r <= 1e5) {
+                bail!("--rate: must be between 0 and 100000 Hz, got {r}");
+            }
+            s.rate_hz = Some(r);
+        }
+        if let Some(d) = self.ball_diameter {
+            s.ball_diameter_m = Some(positive(d, "--ball-diameter")?);
+        }
+        let given = [
+            self.scale.is_some(),
+            self.ruler.is_some(),
+            self.plane.is_some(),
+        ];
+        if given.iter().filter(|g| **g).count() > 1 {
+            bail!("--scale, --ruler and --plane: give only one");
+        }
+        s.scale = if let Some(v) = self.scale {
+            Some(ScaleSource::PxPerM(positive(v, "--scale")?))
+        } else if let Some(r) = &self.ruler {
+            let v = parse_numbers(r, 5, "--ruler")?;
+            Some(ScaleSource::Ruler {
+                a_px: [v[0], v[1]],
+                b_px: [v[2], v[3]],
+                distance_m: positive(v[4], "--ruler distance")?,
+            })
+        } else if let Some(p) = &self.plane {
+            Some(ScaleSource::Plane(p.clone()))
+        } else if s.ball_diameter_m.is_some() {
+            Some(ScaleSource::BallDiameter)
+        } else {
+            None
+        };
+        let g = positive(self.gravity, "--gravity")?;
+        s.physics.gravity = Quantity::new(
+            g,
+            0.0,
+            if g == 9.80665 {
+                "standard gravity (ISO 80000-3)"
+            } else {
+                "given"
+            },
+        );
+        s.physics.unknown = match self.estimate {
+            Some(EstimateArg::Gravity) => Unknown::Gravity,
+            Some(EstimateArg::Interval) => Unknown::Interval,
+            Some(EstimateArg::Scale) => Unknown::Scale,
+            None if s.rate_hz.is_none() => Unknown::Interval,
+            None if s.scale.is_none() => Unknown::Scale,
+            None => Unknown::Gravity,
+        };
+        let (build, inner) = match self.ball.as_str() {
+            "solid" => (render::scene::Build::Solid, None),
+            "shell" => (render::scene::Build::Shell, None),
+            other => {
+                let Some(d) = other.strip_prefix("thick:") else {
+                    bail!("--ball: expected solid, shell or thick:INNER_DIAMETER_M, got '{other}'");
+                };
+                let inner: f64 = d
+                    .parse()
+                    .with_context(|| format!("--ball: '{d}' is not a number"))?;
+                let outer = s.ball_diameter_m.ok_or_else(|| {
+                    anyhow::anyhow!("--ball thick: needs --ball-diameter for the outer diameter")
+                })?;
+                if !(inner.is_finite() && inner >= 0.0 && inner < outer) {
+                    bail!("--ball: the inner diameter must be 0 <= inner < {outer} m");
+                }
+                (render::scene::Build::Thick, Some(inner / outer))
+            }
+        };
+        s.physics.build = build;
+        s.physics.inner_ratio = inner;
+        s.physics.camera_level = self.level;
+        s.physics.fit_drag = self.fit_drag;
+        s.physics.bands = self
+            .accept
+            .iter()
+            .map(|a| {
+                beadline::physics::bands::Band::parse(a).with_context(|| format!("--accept {a}"))
+            })
+            .collect::<Result<_>>()?;
+        if let Some(st) = &self.start {
+            let v = parse_numbers(st, 2, "--start")?;
+            s.path.start = Some(beadline::path::PixelPoint {
+                x_px: v[0],
+                y_px: v[1],
+            });
+        }
+        Ok(s)
+    }
 }
 
 /// Validated detection settings.
@@ -332,6 +516,42 @@ fn spots_overlay(photo: &Path, report: &spots::SpotReport, out: &Path) -> Result
     Ok(())
 }
 
+/// Write a measurement: the document in the chosen format, and the pictures asked for.
+fn write_measure(
+    photo: &Path,
+    m: &beadline::measure::Measured,
+    out: &OutArgs,
+    plot: Option<&Path>,
+) -> Result<()> {
+    let text = match out.format {
+        Format::Text => m.doc.text(),
+        Format::Json => serde_json::to_string_pretty(&m.doc)? + "\n",
+        Format::Csv => m.doc.csv()?,
+    };
+    if let Some(o) = &out.overlay {
+        beadline::overlay::measure_overlay(photo, m, o)?;
+    }
+    if let Some(p) = plot {
+        beadline::output::write_text(p, &beadline::plot::svg(&m.doc))?;
+    }
+    emit(out, &text)
+}
+
+/// Exit status 3 when a result lies outside an acceptance band, else 0.
+fn verdict_status(doc: &beadline::measure::MeasureDoc) -> ExitCode {
+    use beadline::physics::bands::Outcome;
+    if doc
+        .measurement
+        .verdicts
+        .iter()
+        .any(|v| v.outcome == Outcome::Fail)
+    {
+        ExitCode::from(3)
+    } else {
+        ExitCode::SUCCESS
+    }
+}
+
 /// Parse, run, and map the outcome to an exit status.
 pub fn run() -> ExitCode {
     let args = Args::parse();
@@ -387,6 +607,19 @@ fn dispatch(args: Args) -> Result<ExitCode> {
             emit(&out, &text)?;
             Ok(ExitCode::SUCCESS)
         }
+        Command::Measure {
+            photo,
+            detect: d,
+            measure,
+            out,
+            plot,
+        } => {
+            let d = d.validate()?;
+            let settings = measure.validate(&d)?;
+            let m = beadline::measure::measure_photo(&photo, &settings)?;
+            write_measure(&photo, &m, &out, plot.as_deref())?;
+            Ok(verdict_status(&m.doc))
+        }
         Command::Plan {
             scene: scene_path,
             preview,
@@ -436,21 +669,50 @@ fn demo(dir: &Path) -> Result<ExitCode> {
     let truth_path = dir.join("truth.json");
     let photo = render_to(&scene, &photo_path, Some(&truth_path))?;
     let t = &photo.truth;
-    println!("Beadline demo: quality-control rig, solid rubber ball, 25 Hz strobe");
-    println!("  scene  {}", scene_path.display());
+    println!("Beadline demo: quality-control rig, solid 40 mm rubber ball, 25 Hz strobe");
+    println!("  scene    {}", scene_path.display());
     println!(
-        "  photo  {} ({} x {} px)",
+        "  photo    {} ({} x {} px, {} flashes)",
         photo_path.display(),
         t.width_px,
-        t.height_px
+        t.height_px,
+        t.flashes.len()
     );
-    println!("  truth  {}", truth_path.display());
+    println!("  truth    {}", truth_path.display());
+    // The main job, as a user would run it:
+    //   beadline measure photo.png --rate 25 --ball-diameter 0.04 --accept restitution=0.75..0.80
+    let mut settings = beadline::measure::MeasureSettings {
+        rate_hz: Some(scene.strobe.rate_hz),
+        ball_diameter_m: Some(scene.ball.diameter_m),
+        scale: Some(beadline::measure::ScaleSource::BallDiameter),
+        ..Default::default()
+    };
+    settings.physics.bands = vec![beadline::physics::bands::Band::parse(
+        "restitution=0.75..0.80",
+    )?];
+    let m = beadline::measure::measure_photo(&photo_path, &settings)?;
+    let json = dir.join("measure.json");
+    let overlay = dir.join("overlay.png");
+    let plot = dir.join("plot.svg");
+    beadline::output::write_json(&json, &m.doc)?;
+    beadline::overlay::measure_overlay(&photo_path, &m, &overlay)?;
+    beadline::output::write_text(&plot, &beadline::plot::svg(&m.doc))?;
     println!(
-        "  {} flashes, launch {:.3} m/s at {:.1} deg, {} bounces",
-        t.flashes.len(),
+        "  measured {}, {}, {}",
+        json.display(),
+        overlay.display(),
+        plot.display()
+    );
+    println!();
+    print!("{}", m.doc.text());
+    println!();
+    println!(
+        "  truth: launch {:.4} m/s at {:.2} deg, restitution {:.3}, gravity {} m/s^2, {} px/m",
         t.launch.speed_mps,
         t.launch.angle_deg,
-        t.bounces.len()
+        t.bounces.first().map_or(f64::NAN, |b| b.restitution),
+        t.gravity_mps2,
+        t.scale_px_per_m
     );
     Ok(ExitCode::SUCCESS)
 }

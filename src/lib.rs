@@ -13,6 +13,7 @@
 //! - [`measure`]: the main job, photo -> timed path -> physics (chains the stages).
 //! - [`plan`]: choose flash rate, count and exposure before the shot.
 //! - [`path`]: spots -> the ball's path in time order with flash indices, and the strays.
+//! - [`overlay`], [`plot`]: pictures a person checks at a glance.
 //! - [`render`]: synthetic photos from a scene (physics, camera, exact disc coverage, noise).
 //! - [`calibrate`]: pixels to world metres (uniform scale, plane homography by DLT, distortion).
 //! - [`physics`]: timed path to phases, fits and physics numbers with 1-sigma uncertainties.
@@ -36,6 +37,7 @@ pub mod overlay;
 pub mod path;
 pub mod physics;
 pub mod plan;
+pub mod plot;
 pub mod refine;
 pub mod render;
 pub mod report;

@@ -35,7 +35,7 @@ pub enum ScaleSource {
 }
 
 /// Everything the measurement needs besides the photo.
-#[derive(Debug, Clone)]
+#[derive(Debug, Clone, Default)]
 pub struct MeasureSettings {
     /// Spot finding.
     pub spots: SpotOptions,
@@ -53,21 +53,6 @@ pub struct MeasureSettings {
     pub physics: MeasureOptions,
     /// Decoding limits.
     pub load: crate::load::LoadOptions,
-}
-
-impl Default for MeasureSettings {
-    fn default() -> Self {
-        MeasureSettings {
-            spots: SpotOptions::default(),
-            plate: None,
-            path: PathOptions::default(),
-            scale: None,
-            ball_diameter_m: None,
-            rate_hz: None,
-            physics: MeasureOptions::default(),
-            load: crate::load::LoadOptions::default(),
-        }
-    }
 }
 
 /// One point of the timed path in the output.
@@ -200,7 +185,14 @@ pub fn measure_spots(
             let cal = plane.calibration(w, h)?;
             let (cx, cy) = (w as f64 / 2.0, h as f64 / 2.0);
             let s = cal.scale_px_per_m(cx, cy);
-            (cal, Some(Quantity::new(s, 0.0, "plane homography, at the image centre")))
+            (
+                cal,
+                Some(Quantity::new(
+                    s,
+                    0.0,
+                    "plane homography, at the image centre",
+                )),
+            )
         }
         None => {
             if physics_options.unknown != Unknown::Scale {
@@ -245,9 +237,10 @@ pub fn measure_spots(
             }
         })
         .collect();
-    let radius_m = settings
-        .ball_diameter_m
-        .map_or(r_px / calibration.scale_px_per_m(w as f64 / 2.0, h as f64 / 2.0), |d| d / 2.0);
+    let radius_m = settings.ball_diameter_m.map_or(
+        r_px / calibration.scale_px_per_m(w as f64 / 2.0, h as f64 / 2.0),
+        |d| d / 2.0,
+    );
     let measurement = physics::measure(&points, radius_m, &physics_options)?;
     let doc = MeasureDoc {
         file: photo_path.display().to_string(),
@@ -313,7 +306,11 @@ impl MeasureDoc {
                 "  camera roll    {:.3} +- {:.3} deg{}\n",
                 r,
                 m.level.roll_sigma_deg.unwrap_or(f64::NAN),
-                if m.level.corrected { " (corrected)" } else { "" }
+                if m.level.corrected {
+                    " (corrected)"
+                } else {
+                    ""
+                }
             );
         }
         if let Some(i) = &m.incline {

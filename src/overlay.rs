@@ -144,3 +144,69 @@ impl Canvas {
         crate::output::write_atomic(path, |w| w.write_all(buf.get_ref()))
     }
 }
+
+/// The measure overlay: ball images numbered by flash, strays, the path by phase, the floor line
+/// and each bounce labelled with its restitution.
+pub fn measure_overlay(photo: &Path, m: &crate::measure::Measured, out: &Path) -> Result<()> {
+    let mut c = Canvas::open(photo)?;
+    let doc = &m.doc;
+    let scale = (doc.width_px.max(doc.height_px) as f64 / 800.0)
+        .ceil()
+        .max(1.0) as u32;
+    for s in &doc.strays {
+        let r = m.spots.spots.get(s.spot_index).map_or(5.0, |p| p.r_px);
+        c.circle(s.x_px, s.y_px, r, RED);
+    }
+    for p in &doc.path {
+        c.circle(p.x_px, p.y_px, p.r_px, GREEN);
+        c.cross(p.x_px, p.y_px, 2.0, GREEN);
+    }
+    for ph in &doc.measurement.phases {
+        let pts: Vec<[f64; 2]> = doc
+            .path
+            .iter()
+            .filter(|p| p.n >= ph.first_n && p.n <= ph.last_n)
+            .map(|p| [p.x_px, p.y_px])
+            .collect();
+        c.polyline(&pts, CYAN);
+    }
+    for p in &doc.path {
+        c.text(
+            p.x_px - 4.0,
+            p.y_px - p.r_px - 6.0 * scale as f64 - 2.0,
+            &p.n.to_string(),
+            scale,
+            YELLOW,
+        );
+    }
+    // Floor line across the photo (world y = floor), in the calibrated frame.
+    let floor = doc.measurement.floor.y_m;
+    if floor.is_finite() {
+        let xs: Vec<f64> = doc.path.iter().map(|p| p.x_m).collect();
+        let (lo, hi) = xs
+            .iter()
+            .fold((f64::INFINITY, f64::NEG_INFINITY), |(a, b), &x| {
+                (a.min(x), b.max(x))
+            });
+        let span = (hi - lo).max(0.01);
+        let line: Vec<[f64; 2]> = (0..=20)
+            .map(|i| {
+                let x = lo - 0.1 * span + 1.2 * span * i as f64 / 20.0;
+                m.calibration.to_pixel(x, floor)
+            })
+            .collect();
+        c.polyline(&line, YELLOW);
+    }
+    for b in &doc.measurement.bounces {
+        let p = m.calibration.to_pixel(b.x_m, floor);
+        c.cross(p[0], p[1], 6.0, YELLOW);
+        c.text(
+            p[0] - 12.0 * scale as f64,
+            p[1] + 4.0,
+            &format!("e={:.3}", b.restitution),
+            scale,
+            YELLOW,
+        );
+    }
+    c.save(out)
+}
