@@ -364,3 +364,44 @@ fn json_uses_the_documented_field_names() {
     assert!(json["paths"][0]["missing"].is_array());
     assert!(json["strays"].is_array());
 }
+
+#[test]
+fn two_balls_give_two_paths() {
+    // Source of truth: the renderer's flashes of two scenes laid over each other (the drop
+    // moved right so that its arcs cross the demo's last arcs).
+    let demo = truth_flashes(&Scene::demo());
+    let mut drop = truth_flashes(&drop_scene());
+    for f in &mut drop {
+        f.x_px += 700.0;
+    }
+    let (mut spots, demo_n) = shuffled_spots(&demo, 10);
+    let (drop_spots, drop_n) = shuffled_spots(&drop, 11);
+    spots.extend(drop_spots);
+    let result = order_path(&spots, &PathOptions::default());
+    assert_eq!(result.paths.len(), 2);
+    assert!(result.strays.is_empty());
+    let demo_truth: Vec<Option<usize>> = demo_n
+        .iter()
+        .map(|&n| Some(n))
+        .chain(drop_n.iter().map(|_| None))
+        .collect();
+    let drop_truth: Vec<Option<usize>> = demo_n
+        .iter()
+        .map(|_| None)
+        .chain(drop_n.iter().map(|&n| Some(n)))
+        .collect();
+    // Paths come longest first; tell them apart by whose spots they hold.
+    let demo_first = result.paths[0].points[0].spot_index < demo.len();
+    let (first, second) = if demo_first {
+        (demo_truth, drop_truth)
+    } else {
+        (drop_truth, demo_truth)
+    };
+    assert!(result.paths[0].points.len() >= result.paths[1].points.len());
+    assert_truth_order(&result, &first);
+    let rest = PathResult {
+        paths: result.paths[1..].to_vec(),
+        strays: Vec::new(),
+    };
+    assert_truth_order(&rest, &second);
+}
