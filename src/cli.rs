@@ -40,6 +40,18 @@ enum Command {
         #[command(flatten)]
         out: OutArgs,
     },
+    /// Order the ball images of a strobe photo into the ball's timed path.
+    Path {
+        /// The photo (JPEG, PNG or TIFF).
+        photo: PathBuf,
+        #[command(flatten)]
+        detect: Box<DetectArgs>,
+        /// Start of the path near pixel X,Y (default: found automatically).
+        #[arg(long, value_name = "X,Y")]
+        start: Option<String>,
+        #[command(flatten)]
+        out: OutArgs,
+    },
     /// Measure the ball from a strobe photo: path, calibration, phases, fits, restitution.
     Measure {
         /// The photo (JPEG, PNG or TIFF).
@@ -596,6 +608,35 @@ fn dispatch(args: Args) -> Result<ExitCode> {
                 &d.options,
                 d.plate.is_some(),
             );
+            let text = match out.format {
+                Format::Text => doc.text(),
+                Format::Json => serde_json::to_string_pretty(&doc)? + "\n",
+                Format::Csv => doc.csv()?,
+            };
+            if let Some(o) = &out.overlay {
+                spots_overlay(&photo, &report, o)?;
+            }
+            emit(&out, &text)?;
+            Ok(ExitCode::SUCCESS)
+        }
+        Command::Path {
+            photo,
+            detect: d,
+            start,
+            out,
+        } => {
+            let d = d.validate()?;
+            let report = detect(&photo, &d)?;
+            let mut options = beadline::path::PathOptions::default();
+            if let Some(st) = &start {
+                let v = parse_numbers(st, 2, "--start")?;
+                options.start = Some(beadline::path::PixelPoint {
+                    x_px: v[0],
+                    y_px: v[1],
+                });
+            }
+            let result = beadline::path::order_path(&report.spots, &options);
+            let doc = beadline::report::PathDoc::new(&photo.display().to_string(), &result);
             let text = match out.format {
                 Format::Text => doc.text(),
                 Format::Json => serde_json::to_string_pretty(&doc)? + "\n",

@@ -4,6 +4,7 @@
 //! by [`SCHEMA_VERSION`]), text for a person and CSV rows.
 
 use crate::background::Polarity;
+use crate::path::{PathPoint, PathResult, Stray};
 use crate::spots::{Rejected, Spot, SpotOptions, SpotReport};
 use serde::{Deserialize, Serialize};
 
@@ -129,6 +130,72 @@ impl SpotsDoc {
     pub fn csv(&self) -> std::io::Result<String> {
         let mut w = csv::Writer::from_writer(Vec::new());
         for p in &self.spots {
+            w.serialize(p)?;
+        }
+        let bytes = w.into_inner().map_err(|e| e.into_error())?;
+        Ok(String::from_utf8_lossy(&bytes).into_owned())
+    }
+}
+
+/// `beadline path --format json`: the best path first, then any other (a second ball).
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct PathDoc {
+    /// Schema version.
+    pub schema_version: u32,
+    /// The photo.
+    pub file: String,
+    /// The ball's path in time order; n = 0 is the first image found.
+    pub path: Vec<PathPoint>,
+    /// Flash indexes with no image.
+    pub missing: Vec<usize>,
+    /// Further paths (another ball), each with its points and missing flashes.
+    pub other_paths: Vec<crate::path::Path>,
+    /// Spots on no path, with the reason.
+    pub strays: Vec<Stray>,
+}
+
+impl PathDoc {
+    /// Build the document from the ordering result.
+    pub fn new(file: &str, result: &PathResult) -> PathDoc {
+        let mut paths = result.paths.iter();
+        let first = paths.next();
+        PathDoc {
+            schema_version: SCHEMA_VERSION,
+            file: file.to_string(),
+            path: first.map(|p| p.points.clone()).unwrap_or_default(),
+            missing: first.map(|p| p.missing.clone()).unwrap_or_default(),
+            other_paths: paths.cloned().collect(),
+            strays: result.strays.clone(),
+        }
+    }
+
+    /// Text for a person.
+    pub fn text(&self) -> String {
+        let mut s = format!(
+            "{}: path of {} images, missing flashes {:?}, {} other paths, {} strays\n",
+            self.file,
+            self.path.len(),
+            self.missing,
+            self.other_paths.len(),
+            self.strays.len()
+        );
+        s += "    n      x_px      y_px    r_px  sigma_px\n";
+        for p in &self.path {
+            s += &format!(
+                "{:5} {:9.3} {:9.3} {:7.3} {:9.4}\n",
+                p.n, p.x_px, p.y_px, p.r_px, p.sigma_px
+            );
+        }
+        for st in &self.strays {
+            s += &format!("stray {:9.3} {:9.3}  {:?}\n", st.x_px, st.y_px, st.reason);
+        }
+        s
+    }
+
+    /// CSV of the path.
+    pub fn csv(&self) -> std::io::Result<String> {
+        let mut w = csv::Writer::from_writer(Vec::new());
+        for p in &self.path {
             w.serialize(p)?;
         }
         let bytes = w.into_inner().map_err(|e| e.into_error())?;
