@@ -102,6 +102,39 @@ impl Background {
         }
     }
 
+    /// Background values of row `y`, columns `x0..x0 + out.len()`: the grid interpolated
+    /// vertically once, then horizontally (much cheaper than [`Background::at`] per pixel).
+    pub fn row(&self, y: usize, x0: usize, out: &mut [f32]) {
+        match &self.kind {
+            Kind::Plate(v, w) => out.copy_from_slice(&v[y * w + x0..y * w + x0 + out.len()]),
+            Kind::Grid {
+                values,
+                cols,
+                rows,
+                cell,
+            } => {
+                let gy = ((y as f32 + 0.5) / cell - 0.5).clamp(0.0, (*rows - 1) as f32);
+                let iy = gy as usize;
+                let jy = (iy + 1).min(rows - 1);
+                let fy = gy - iy as f32;
+                let column: Vec<f32> = (0..*cols)
+                    .map(|i| values[iy * cols + i] * (1.0 - fy) + values[jy * cols + i] * fy)
+                    .collect();
+                let inv = 1.0 / cell;
+                let last = (*cols - 1) as f32;
+                let mut gx = (x0 as f32 + 0.5) * inv - 0.5;
+                for o in out.iter_mut() {
+                    let g = gx.clamp(0.0, last);
+                    let ix = g as usize;
+                    let jx = (ix + 1).min(cols - 1);
+                    let fx = g - ix as f32;
+                    *o = column[ix] + (column[jx] - column[ix]) * fx;
+                    gx += inv;
+                }
+            }
+        }
+    }
+
     /// The ball-positive difference at a pixel: sign * (photo - background).
     #[inline]
     pub fn difference(&self, photo: &Photo, x: usize, y: usize) -> f32 {
@@ -132,9 +165,9 @@ fn auto_cell(width: usize, height: usize) -> usize {
     (width.min(height) / 48).clamp(16, 128)
 }
 
-/// Sample stride inside a cell: at most about 16 x 16 samples per cell.
+/// Sample stride inside a cell: at most about 8 x 8 samples per cell.
 fn stride(cell: usize) -> usize {
-    (cell / 16).max(1)
+    (cell / 8).max(1)
 }
 
 /// Estimate the background of `photo` (no clean plate).

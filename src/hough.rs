@@ -39,7 +39,7 @@ impl Default for HoughOptions {
         HoughOptions {
             smooth_px: 0.7,
             edge_k_sigma: 4.0,
-            radius_step_px: 0.5,
+            radius_step_px: 1.0,
             nms_fraction: 0.35,
             min_peak_fraction: 0.12,
         }
@@ -105,10 +105,12 @@ pub fn prepare_region(
     let y1 = (blob.y1 + margin_px).min(photo.height - 1);
     let (w, h) = (x1 - x0 + 1, y1 - y0 + 1);
     let mut raw = Vec::with_capacity(w * h);
+    let mut bg_row = vec![0f32; w];
+    let sign = background.polarity.sign();
     for y in y0..=y1 {
-        for x in x0..=x1 {
-            raw.push(background.difference(photo, x, y));
-        }
+        background.row(y, x0, &mut bg_row);
+        let luma = &photo.luma[y * photo.width + x0..=y * photo.width + x1];
+        raw.extend(luma.iter().zip(&bg_row).map(|(v, g)| sign * (v - g)));
     }
     let img: ImageBuffer<Luma<f32>, Vec<f32>> =
         ImageBuffer::from_raw(w as u32, h as u32, raw).expect("crop size matches");
@@ -135,7 +137,11 @@ pub fn prepare_region(
             }
         }
     }
-    let mag: Vec<f32> = gx.iter().zip(&gy).map(|(a, b)| a.hypot(*b)).collect();
+    let mag: Vec<f32> = gx
+        .iter()
+        .zip(&gy)
+        .map(|(a, b)| (a * a + b * b).sqrt())
+        .collect();
     // Noise of one gradient component: robust sigma over the crop (edges are a minority).
     let mut sample: Vec<f32> = gx.iter().step_by(3).copied().collect();
     let sigma_g = robust_sigma(&mut sample).max(1e-7);

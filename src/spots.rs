@@ -167,7 +167,7 @@ fn auto_radius(blobs: &Blobs) -> Option<(f64, f64)> {
     radii.sort_by(f64::total_cmp);
     let r0 = radii[radii.len() / 2];
     let slack = blobs.block_px as f64;
-    Some(((0.7 * r0 - slack).max(3.0), 1.3 * r0 + slack + 1.0))
+    Some(((0.8 * r0 - slack).max(3.0), 1.25 * r0 + slack + 1.0))
 }
 
 /// Find every ball image in `photo`; `plate` is an optional clean plate of the same size.

@@ -96,10 +96,18 @@ pub fn find_blobs(photo: &Photo, background: &Background, options: &ThresholdOpt
             let y0 = by * b;
             let y1 = (y0 + b).min(h);
             let mut count = vec![0u32; bw];
+            let mut bg_row = vec![0f32; w];
+            let sign = background.polarity.sign();
             for y in y0..y1 {
-                for x in 0..w {
-                    row[x / b] += background.difference(photo, x, y);
-                    count[x / b] += 1;
+                background.row(y, 0, &mut bg_row);
+                let luma = &photo.luma[y * w..(y + 1) * w];
+                for ((cell, c), (lv, gv)) in row
+                    .iter_mut()
+                    .zip(count.iter_mut())
+                    .zip(luma.chunks(b).zip(bg_row.chunks(b)))
+                {
+                    *cell += sign * lv.iter().zip(gv).map(|(v, g)| v - g).sum::<f32>();
+                    *c += lv.len() as u32;
                 }
             }
             row.iter_mut().zip(count).for_each(|(v, c)| *v /= c as f32);
