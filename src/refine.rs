@@ -455,9 +455,14 @@ pub fn refine_region(
                 let d =
                     (circles[i].x_px - circles[j].x_px).hypot(circles[i].y_px - circles[j].y_px);
                 if d < 0.3 * circles[i].r_px.min(circles[j].r_px) {
-                    let pi = result[i].map_or(0, |f| f.points);
-                    let pj = result[j].map_or(0, |f| f.points);
-                    let drop = if pi >= pj { j } else { i };
+                    // The better rim coverage wins, then the more points.
+                    let key = |k: usize| result[k].map_or((0.0, 0), |f| (f.coverage, f.points));
+                    let (ki, kj) = (key(i), key(j));
+                    let drop = if ki.0 > kj.0 || (ki.0 == kj.0 && ki.1 >= kj.1) {
+                        j
+                    } else {
+                        i
+                    };
                     alive[drop] = false;
                     result[drop] = None;
                 }

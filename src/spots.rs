@@ -42,6 +42,8 @@ pub enum Reason {
     Faint,
     /// Its centre lies outside the photo.
     OutsideFrame,
+    /// It lies inside a better ball image (an inner ring, a highlight's edge).
+    Inside,
 }
 
 /// A candidate that was not kept, with the reason.
@@ -335,8 +337,17 @@ pub fn find_spots(
         .collect();
     strengths.sort_by(f64::total_cmp);
     let median_strength = strengths.get(strengths.len() / 2).copied().unwrap_or(0.0);
+    let kept_before: Vec<CircleFit> = unique.clone();
     for f in unique {
         let c = f.circle;
+        // Inside a better candidate: wholly, or (objects of different sizes, which do not
+        // overlap like the images of one moving ball) with its centre inside.
+        let inside = kept_before.iter().any(|o| {
+            let d = (o.circle.x_px - c.x_px).hypot(o.circle.y_px - c.y_px);
+            o.coverage > f.coverage
+                && ((o.circle.r_px > c.r_px && d + c.r_px <= o.circle.r_px + 2.0)
+                    || (!options.one_radius && d < o.circle.r_px))
+        });
         let reason = if c.x_px < -0.5
             || c.y_px < -0.5
             || c.x_px > photo.width as f64 - 0.5
@@ -352,6 +363,8 @@ pub fn find_spots(
             Some(Reason::WeakRim)
         } else if f.edge_strength < options.faint_fraction * median_strength {
             Some(Reason::Faint)
+        } else if inside {
+            Some(Reason::Inside)
         } else {
             None
         };
