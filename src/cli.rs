@@ -154,6 +154,9 @@ struct DetectArgs {
     /// The round objects differ in size (not images of one ball): no common radius.
     #[arg(long)]
     sizes_differ: bool,
+    /// Systematic centre uncertainty of a lit sphere's edge, pixels x radius (added to sigma).
+    #[arg(long, default_value_t = 0.5)]
+    edge_systematic: f64,
     /// Largest RMS distance of rim points from the fitted circle, pixels.
     #[arg(long, default_value_t = 0.4)]
     max_rms: f64,
@@ -417,6 +420,13 @@ impl DetectArgs {
         fraction(self.faint, "--faint")?;
         positive(self.max_rms, "--max-rms")?;
         o.max_rms_px = self.max_rms;
+        if !(self.edge_systematic.is_finite() && self.edge_systematic >= 0.0) {
+            bail!(
+                "--edge-systematic: must be >= 0, got {}",
+                self.edge_systematic
+            );
+        }
+        o.systematic_px_r = self.edge_systematic;
         o.one_radius = !self.sizes_differ;
         o.faint_fraction = self.faint;
         if self.max_candidates == 0 {

@@ -40,6 +40,8 @@ pub struct SpotSettings {
     pub max_rms_px: f64,
     /// All images were taken to share one radius.
     pub one_radius: bool,
+    /// Systematic edge uncertainty, pixels x radius.
+    pub edge_systematic_px_r: f64,
 }
 
 /// `beadline spots --format json`.
@@ -86,6 +88,7 @@ impl SpotsDoc {
                 clean_plate: plate,
                 max_rms_px: options.max_rms_px,
                 one_radius: options.one_radius,
+                edge_systematic_px_r: options.systematic_px_r,
             },
             spots: report.spots.clone(),
             rejected: report.rejected.clone(),
