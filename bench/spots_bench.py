@@ -276,7 +276,9 @@ class Beadline:
         doc = json.loads(p.stdout)
         s = doc["spots"]
         xyr = np.array([[q["x_px"], q["y_px"], q["r_px"]] for q in s], float).reshape(-1, 3)
-        sigma = np.array([q.get("sigma_px", np.nan) for q in s], float)
+        # Absolute 1-sigma of one centre: its own sigma and the photo's common systematic term.
+        sys_px = float(doc.get("systematic_px", 0.0) or 0.0)
+        sigma = np.hypot(np.array([q.get("sigma_px", np.nan) for q in s], float), sys_px)
         score = np.array([q.get("score", np.nan) for q in s], float)
         return xyr, sigma, score, wall, rss_kb
 

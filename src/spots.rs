@@ -85,8 +85,10 @@ pub struct SpotOptions {
     pub faint_fraction: f64,
     /// Refuse photos with more candidate blobs than this (noise or texture, not a strobe photo).
     pub max_candidates: usize,
-    /// Systematic 1-sigma of the centre from edge location on a lit sphere, as pixels x radius:
-    /// sigma_sys = this / r_px, added in quadrature to the fit's sigma. The limb of a shaded ball
+    /// Systematic 1-sigma of the centres from edge location on a lit sphere, as pixels x radius:
+    /// sigma_sys = this / r_px, reported once per photo beside the spots' own (random) sigma.
+    /// It is common to all images of one ball under one light, so it cancels in differences
+    /// (velocities, accelerations) and is kept out of the path and physics weights. The limb of a shaded ball
     /// is not a clean step, and its gradient maximum moves inside where the rim is dim, which
     /// pulls the centre towards the light by up to about twice this (measured on the rendered bench
     /// suite: up to 0.1 px at r = 8 px, 0.01-0.03 px at r = 20 px, depending on the light).
@@ -135,6 +137,8 @@ pub struct SpotReport {
     pub common_radius_px: Option<f64>,
     /// Radius of the ball images across the photo (it varies under a perspective tilt).
     pub radius_model: Option<refine::RadiusModel>,
+    /// Systematic 1-sigma of every centre (common to all images), pixels.
+    pub systematic_px: f64,
     /// Ball images, sorted by x.
     pub spots: Vec<Spot>,
     /// Candidates dropped, with the reason.
@@ -223,6 +227,7 @@ pub fn find_spots(
         radius_range_px: radius.unwrap_or((0.0, 0.0)),
         common_radius_px: None,
         radius_model: None,
+        systematic_px: 0.0,
         spots: Vec::new(),
         rejected: Vec::new(),
     };
@@ -278,6 +283,7 @@ pub fn find_spots(
     at_centre.sort_by(f64::total_cmp);
     let common = at_centre[at_centre.len() / 2];
     report.common_radius_px = Some(common);
+    report.systematic_px = options.systematic_px_r / common.max(1.0);
     report.radius_model = Some(model);
     // Pass 2: from the first fits, holding the common radius where the rim is short.
     let fits: Vec<CircleFit> = regions
@@ -387,7 +393,7 @@ pub fn find_spots(
                 x_px: c.x_px,
                 y_px: c.y_px,
                 r_px: c.r_px,
-                sigma_px: f.sigma_px.hypot(options.systematic_px_r / c.r_px.max(1.0)),
+                sigma_px: f.sigma_px,
                 score: f.coverage,
             }),
         }

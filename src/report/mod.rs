@@ -57,6 +57,9 @@ pub struct SpotsDoc {
     pub height_px: usize,
     /// Common radius of the ball images, pixels.
     pub common_radius_px: Option<f64>,
+    /// Systematic 1-sigma of every centre, common to all images (edge location on a lit sphere),
+    /// pixels; add it in quadrature to `sigma_px` for the absolute position of one image.
+    pub systematic_px: f64,
     /// Settings used.
     pub settings: SpotSettings,
     /// Ball images (x right, y down, pixel centres at integer coordinates).
@@ -74,6 +77,7 @@ impl SpotsDoc {
             width_px: report.width_px,
             height_px: report.height_px,
             common_radius_px: report.common_radius_px,
+            systematic_px: report.systematic_px,
             settings: SpotSettings {
                 polarity: report.polarity,
                 radius_min_px: report.radius_range_px.0,
