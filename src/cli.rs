@@ -644,7 +644,16 @@ fn verdict_status(doc: &beadline::measure::MeasureDoc) -> ExitCode {
 
 /// Parse, run, and map the outcome to an exit status.
 pub fn run() -> ExitCode {
-    let args = Args::parse();
+    let args = match Args::try_parse() {
+        Ok(a) => a,
+        // `rig` keeps exit status 2 for photos that could not be measured: a usage error of
+        // the run itself is 1 there.
+        Err(e) if e.use_stderr() && std::env::args_os().nth(1).is_some_and(|a| a == "rig") => {
+            let _ = e.print();
+            return ExitCode::from(1);
+        }
+        Err(e) => e.exit(),
+    };
     match dispatch(args) {
         Ok(code) => code,
         Err(e) => {
@@ -887,6 +896,9 @@ fn rig(args: RigArgs) -> Result<ExitCode> {
                 .clone()
                 .unwrap_or_else(|| dir.join(r::JOURNAL_NAME));
             let journal = r::Journal::open(&journal_path)?;
+            if let Some(out) = &args.out {
+                journal.reconcile(out)?;
+            }
             let watch = r::WatchOptions {
                 poll_interval_s: args.poll_interval,
                 max_photos: args.max_photos,

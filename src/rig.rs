@@ -508,10 +508,11 @@ impl ResultSink {
         }
     }
 
-    /// Results appended to a file (created when missing; a torn last line is ended first so
-    /// every new line stands whole).
+    /// Results appended to a file (created when missing). A torn last line (a kill while it
+    /// was written) is cut off, so the file holds whole lines only; that photo had not been
+    /// journalled and is measured again.
     pub fn append(path: &Path) -> Result<ResultSink> {
-        let mut f = open_append_whole(path)?;
+        let mut f = open_append(path, Torn::Cut)?;
         f.flush().map_err(|e| Error::io(path, e))?;
         Ok(ResultSink {
             out: Mutex::new(Box::new(f)),
@@ -529,23 +530,33 @@ impl ResultSink {
     }
 }
 
-/// Open `path` for appending, ending a torn last line with a newline first.
-fn open_append_whole(path: &Path) -> Result<std::fs::File> {
+/// What to do with a torn last line when opening a file for appending.
+#[derive(Clone, Copy, PartialEq)]
+enum Torn {
+    /// Cut it off (result lines: the file then holds whole lines only).
+    Cut,
+    /// End it with a newline (journal: the torn line is ignored when read).
+    End,
+}
+
+/// Open `path` for appending so that the next line written stands whole.
+fn open_append(path: &Path, torn: Torn) -> Result<std::fs::File> {
+    let io = |e| Error::io(path, e);
     let mut f = std::fs::OpenOptions::new()
         .create(true)
         .append(true)
         .read(true)
         .open(path)
-        .map_err(|e| Error::io(path, e))?;
-    let len = f.metadata().map_err(|e| Error::io(path, e))?.len();
-    if len > 0 {
-        use std::io::{Seek, SeekFrom};
-        let mut last = [0u8; 1];
-        f.seek(SeekFrom::Start(len - 1))
-            .and_then(|_| f.read_exact(&mut last))
-            .map_err(|e| Error::io(path, e))?;
-        if last[0] != b'\n' {
-            f.write_all(b"\n").map_err(|e| Error::io(path, e))?;
+        .map_err(io)?;
+    let mut bytes = Vec::new();
+    f.read_to_end(&mut bytes).map_err(io)?;
+    if bytes.last().is_some_and(|&b| b != b'\n') {
+        match torn {
+            Torn::Cut => {
+                let keep = bytes.iter().rposition(|&b| b == b'\n').map_or(0, |i| i + 1);
+                f.set_len(keep as u64).map_err(io)?;
+            }
+            Torn::End => f.write_all(b"\n").map_err(io)?,
         }
     }
     Ok(f)
@@ -597,7 +608,7 @@ impl Journal {
             Err(e) if e.kind() == std::io::ErrorKind::NotFound => HashSet::new(),
             Err(e) => return Err(Error::io(path, e)),
         };
-        let file = open_append_whole(path)?;
+        let file = open_append(path, Torn::End)?;
         Ok(Journal {
             path: path.to_path_buf(),
             file: Mutex::new(file),
@@ -615,6 +626,31 @@ impl Journal {
             .lines()
             .filter_map(|l| serde_json::from_str::<String>(l).ok())
             .collect()
+    }
+
+    /// Journal every photo that already has a whole result line in `results` (a kill between
+    /// writing a result and journalling it), so a restart with the same results file measures
+    /// each photo exactly once. Returns how many were added.
+    pub fn reconcile(&self, results: &Path) -> Result<usize> {
+        let bytes = match std::fs::read(results) {
+            Ok(b) => b,
+            Err(e) if e.kind() == std::io::ErrorKind::NotFound => return Ok(0),
+            Err(e) => return Err(Error::io(results, e)),
+        };
+        let mut added = 0;
+        for line in String::from_utf8_lossy(&bytes).lines() {
+            let Ok(v) = serde_json::from_str::<serde_json::Value>(line) else {
+                continue;
+            };
+            if let Some(file) = v.get("file").and_then(|f| f.as_str()) {
+                let name = journal_name(Path::new(file));
+                if !self.is_done(&name) {
+                    self.record(&name)?;
+                    added += 1;
+                }
+            }
+        }
+        Ok(added)
     }
 
     /// Whether `name` is done.
