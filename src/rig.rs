@@ -309,7 +309,7 @@ pub fn list_folder(dir: &Path) -> Result<Vec<PathBuf>> {
 /// Expand the inputs: a folder gives its photos, a pattern with `*`, `?` or `[` gives its
 /// matches (sorted), anything else is kept as a file; a missing file is kept too and gets an
 /// `error` result when its turn comes. Only a malformed pattern or an unreadable folder is an
-/// error of the run itself.
+/// error of the run itself. A photo named more than once is kept once, at its first place.
 pub fn expand_inputs(inputs: &[String]) -> Result<Vec<PathBuf>> {
     let mut out = Vec::new();
     for input in inputs {
@@ -330,6 +330,9 @@ pub fn expand_inputs(inputs: &[String]) -> Result<Vec<PathBuf>> {
             out.push(p.to_path_buf());
         }
     }
+    // A photo named twice (a folder and a glob over it) is measured once.
+    let mut seen = HashSet::new();
+    out.retain(|p| seen.insert(p.clone()));
     Ok(out)
 }
 
