@@ -80,12 +80,80 @@ enum Command {
         #[arg(short = 'o', long = "output", value_name = "FILE")]
         output: Option<PathBuf>,
     },
+    /// Measure many photos unattended on a test rig: one JSON line per photo.
+    #[command(args_override_self = true, after_help = RIG_HELP)]
+    Rig(Box<RigArgs>),
     /// Render the built-in demo scene into a folder and measure it.
     Demo {
         /// Folder for the demo's files.
         #[arg(long, default_value = "beadline-demo")]
         dir: PathBuf,
     },
+}
+
+/// Help shown after the rig's options.
+const RIG_HELP: &str = "\
+Precedence: a flag typed on the command line > the --profile file > the default.
+A profile (TOML) holds the detection and measure settings, keys named like the flags in
+snake_case with their unit: rate_hz, ball_diameter_m, scale_px_per_m, polarity, radius_px =
+[MIN, MAX], threshold_sigma, accept = [\"restitution=0.73..0.76\"], ... Unknown keys are refused.
+--accept on the command line replaces the profile's list.
+
+Each result line is the measure JSON plus \"file\" and \"status\": ok | out_of_band | error (with
+\"error\"). --out appends to the file. --watch DIR measures each new photo once its size and time
+are unchanged over two polls, exactly once also across restarts (journal).
+
+Exit status:
+  0  every photo measured and within its acceptance bands
+  1  error in the run itself (bad profile or flag, unwritable output...)
+  2  some photos could not be read or measured
+  3  some results outside acceptance bands (2 wins over 3)";
+
+/// `beadline rig` as typed.
+#[derive(Debug, Clone, ClapArgs)]
+struct RigArgs {
+    /// Photos: files, folders (their photos) or glob patterns such as 'shots/*.jpg'.
+    paths: Vec<String>,
+    /// Rig profile (TOML) with the station's detection and measure settings.
+    #[arg(long, value_name = "RIG.toml")]
+    profile: Option<PathBuf>,
+    #[command(flatten)]
+    detect: Box<DetectArgs>,
+    #[command(flatten)]
+    measure: Box<MeasureArgs>,
+    /// Append the result lines (JSON, one per photo) to FILE instead of standard output.
+    #[arg(long, value_name = "FILE")]
+    out: Option<PathBuf>,
+    /// Write a summary CSV, one row per photo, at the end of the run.
+    #[arg(long, value_name = "FILE")]
+    summary: Option<PathBuf>,
+    /// Write an overlay per photo into DIR (NAME.overlay.png).
+    #[arg(long, value_name = "DIR")]
+    overlay_dir: Option<PathBuf>,
+    /// Watch DIR and measure each new photo once it is completely written.
+    #[arg(long, value_name = "DIR")]
+    watch: Option<PathBuf>,
+    /// Journal of the photos done in watch mode (default: DIR/.beadline-journal).
+    #[arg(long, value_name = "FILE")]
+    journal: Option<PathBuf>,
+    /// Seconds between two looks at the watched folder.
+    #[arg(long, value_name = "SECONDS", default_value_t = 0.5)]
+    poll_interval: f64,
+    /// Stop watching after N photos.
+    #[arg(long, value_name = "N")]
+    max_photos: Option<usize>,
+    /// Stop watching after SECONDS without a new photo.
+    #[arg(long, value_name = "SECONDS")]
+    idle_exit: Option<f64>,
+    /// Worker threads (default: one per core).
+    #[arg(long, value_name = "N")]
+    jobs: Option<usize>,
+    /// Most photos decoded at once (default: the number of threads).
+    #[arg(long, value_name = "N")]
+    max_decoding: Option<usize>,
+    /// No progress bar and no per-photo error lines on standard error.
+    #[arg(long)]
+    quiet: bool,
 }
 
 /// Output format.
@@ -576,7 +644,16 @@ fn verdict_status(doc: &beadline::measure::MeasureDoc) -> ExitCode {
 
 /// Parse, run, and map the outcome to an exit status.
 pub fn run() -> ExitCode {
-    let args = Args::parse();
+    let args = match Args::try_parse() {
+        Ok(a) => a,
+        // `rig` keeps exit status 2 for photos that could not be measured: a usage error of
+        // the run itself is 1 there.
+        Err(e) if e.use_stderr() && std::env::args_os().nth(1).is_some_and(|a| a == "rig") => {
+            let _ = e.print();
+            return ExitCode::from(1);
+        }
+        Err(e) => e.exit(),
+    };
     match dispatch(args) {
         Ok(code) => code,
         Err(e) => {
@@ -698,7 +775,165 @@ fn dispatch(args: Args) -> Result<ExitCode> {
             Ok(ExitCode::SUCCESS)
         }
         Command::Demo { dir } => demo(&dir),
+        Command::Rig(r) => rig(*r),
     }
+}
+
+/// Parse `beadline rig ARGS...` (the profile's arguments, then those typed).
+fn parse_rig<I, T>(args: I) -> std::result::Result<RigArgs, clap::Error>
+where
+    I: IntoIterator<Item = T>,
+    T: Into<std::ffi::OsString> + Clone,
+{
+    let argv = ["beadline".into(), "rig".into()]
+        .into_iter()
+        .chain(args.into_iter().map(Into::into));
+    match Args::try_parse_from(argv)?.command {
+        Command::Rig(r) => Ok(*r),
+        _ => unreachable!("parse_rig parses the rig subcommand"),
+    }
+}
+
+/// The first line of a clap error, without its `error:` prefix.
+fn clap_line(e: &clap::Error) -> String {
+    let text = e.render().to_string();
+    let line = text.lines().next().unwrap_or("").trim();
+    line.strip_prefix("error: ").unwrap_or(line).to_string()
+}
+
+/// Merge the profile under the typed flags: the profile becomes the arguments it stands for,
+/// placed before those typed, so a typed flag overrides it (`args_override_self`) and both go
+/// through the same parsing and validation. The profile is first validated alone so an absurd
+/// value is reported with its key and the profile file.
+fn with_profile(args: RigArgs) -> Result<RigArgs> {
+    use beadline::rig::{Profile, flags_to_keys};
+    let Some(path) = args.profile.clone() else {
+        return Ok(args);
+    };
+    let profile = Profile::load(&path)?;
+    let named = |m: String| anyhow::anyhow!("{}: {}", path.display(), flags_to_keys(&m));
+    let alone = parse_rig(profile.to_args(&[])).map_err(|e| named(clap_line(&e)))?;
+    let d = alone.detect.validate().map_err(|e| named(one_line(&e)))?;
+    alone
+        .measure
+        .validate(&d)
+        .map_err(|e| named(one_line(&e)))?;
+    let typed: Vec<std::ffi::OsString> = std::env::args_os()
+        .skip_while(|a| a != "rig")
+        .skip(1)
+        .collect();
+    let skip: &[&str] = if args.measure.accept.is_empty() {
+        &[]
+    } else {
+        &["--accept"]
+    };
+    let merged: Vec<std::ffi::OsString> = profile
+        .to_args(skip)
+        .into_iter()
+        .map(Into::into)
+        .chain(typed)
+        .collect();
+    parse_rig(merged).map_err(|e| anyhow::anyhow!("{}", clap_line(&e)))
+}
+
+/// `beadline rig`.
+fn rig(args: RigArgs) -> Result<ExitCode> {
+    use beadline::rig::{self as r, PhotoResult, RigOptions, Status};
+    use indicatif::{ProgressBar, ProgressStyle};
+    use std::io::IsTerminal;
+    let args = with_profile(args)?;
+    let d = args.detect.validate()?;
+    let settings = args.measure.validate(&d)?;
+    if args.watch.is_some() != args.paths.is_empty() {
+        bail!("rig: give either PATHs or --watch DIR");
+    }
+    if let Some(dir) = &args.overlay_dir {
+        std::fs::create_dir_all(dir)
+            .with_context(|| format!("{}: cannot create folder", dir.display()))?;
+    }
+    let options = RigOptions {
+        settings,
+        overlay_dir: args.overlay_dir.clone(),
+        max_decoding: args.max_decoding.unwrap_or(0),
+    };
+    let sink = match &args.out {
+        Some(p) => r::ResultSink::append(p)?,
+        None => r::ResultSink::stdout(),
+    };
+    let bar = if !args.quiet && std::io::stderr().is_terminal() {
+        let b = ProgressBar::new(0);
+        b.set_style(
+            ProgressStyle::with_template("{spinner} {pos}/{len} photos {elapsed} {wide_msg}")
+                .unwrap_or_else(|_| ProgressStyle::default_bar()),
+        );
+        Some(b)
+    } else {
+        None
+    };
+    let quiet = args.quiet;
+    let done = |res: &PhotoResult| -> beadline::Result<()> {
+        if let (Status::Error, false, Some(e)) = (res.status, quiet, &res.error) {
+            match &bar {
+                Some(b) => b.println(format!("beadline: {e}")),
+                None => eprintln!("beadline: {e}"),
+            }
+        }
+        if let Some(b) = &bar {
+            if args.watch.is_some() {
+                b.inc_length(1);
+            }
+            b.inc(1);
+        }
+        Ok(())
+    };
+    let run = || -> Result<Vec<PhotoResult>> {
+        if let Some(dir) = &args.watch {
+            if !dir.is_dir() {
+                bail!("{}: --watch needs a folder", dir.display());
+            }
+            let journal_path = args
+                .journal
+                .clone()
+                .unwrap_or_else(|| dir.join(r::JOURNAL_NAME));
+            let journal = r::Journal::open(&journal_path)?;
+            if let Some(out) = &args.out {
+                journal.reconcile(out)?;
+            }
+            let watch = r::WatchOptions {
+                poll_interval_s: args.poll_interval,
+                max_photos: args.max_photos,
+                idle_exit_s: args.idle_exit,
+            };
+            if let Some(s) = args.idle_exit
+                && !(s.is_finite() && s >= 0.0)
+            {
+                bail!("--idle-exit: must be a number of seconds >= 0, got {s}");
+            }
+            Ok(r::watch(dir, &options, &watch, &journal, &sink, &done)?)
+        } else {
+            let paths = r::expand_inputs(&args.paths)?;
+            if let Some(b) = &bar {
+                b.set_length(paths.len() as u64);
+            }
+            Ok(r::run_batch(&paths, &options, &sink, &done)?)
+        }
+    };
+    let results = match args.jobs {
+        Some(0) => bail!("--jobs: must be at least 1"),
+        Some(n) => rayon::ThreadPoolBuilder::new()
+            .num_threads(n)
+            .build()
+            .context("--jobs: cannot start the worker threads")?
+            .install(run)?,
+        None => run()?,
+    };
+    if let Some(b) = &bar {
+        b.finish_and_clear();
+    }
+    if let Some(p) = &args.summary {
+        beadline::output::write_text(p, &r::summary_csv(&results)?)?;
+    }
+    Ok(ExitCode::from(r::exit_status(&results)))
 }
 
 fn render_to(scene: &Scene, out: &Path, truth: Option<&Path>) -> Result<render::Rendered> {

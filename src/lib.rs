@@ -11,6 +11,7 @@
 //! - [`refine`]: joint geometric circle fits with uncertainties.
 //! - [`spots`]: the detection pipeline end to end: photo -> ball images.
 //! - [`measure`]: the main job, photo -> timed path -> physics (chains the stages).
+//! - [`rig`]: many photos unattended on a test rig: profile, parallel runs, JSON lines, watch.
 //! - [`plan`]: choose flash rate, count and exposure before the shot.
 //! - [`path`]: spots -> the ball's path in time order with flash indices, and the strays.
 //! - [`overlay`], [`plot`]: pictures a person checks at a glance.
@@ -41,6 +42,7 @@ pub mod plot;
 pub mod refine;
 pub mod render;
 pub mod report;
+pub mod rig;
 pub mod spots;
 pub mod threshold;
 

@@ -84,7 +84,22 @@ pub fn load(path: &Path, options: &LoadOptions) -> Result<Photo> {
         ));
     }
     let bytes = std::fs::read(path).map_err(|e| Error::io(path, e))?;
-    let mut reader = image::ImageReader::new(std::io::Cursor::new(&bytes))
+    load_bytes(path, &bytes, options)
+}
+
+/// Decode a photo held in memory; `path` names it in errors. [`load`] reads the file and comes
+/// here, so files and bytes go one way through.
+pub fn load_bytes(path: &Path, bytes: &[u8], options: &LoadOptions) -> Result<Photo> {
+    if bytes.is_empty() {
+        return Err(decode_error(path, "empty file"));
+    }
+    if bytes.len() as u64 > options.max_alloc_bytes {
+        return Err(decode_error(
+            path,
+            format!("{} bytes is over the file size limit", bytes.len()),
+        ));
+    }
+    let mut reader = image::ImageReader::new(std::io::Cursor::new(bytes))
         .with_guessed_format()
         .map_err(|e| Error::io(path, e))?;
     // The JPEG decoder fills a truncated file with grey; refuse it instead (no end-of-image
