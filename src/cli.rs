@@ -222,7 +222,7 @@ struct DetectArgs {
     /// The round objects differ in size (not images of one ball): no common radius.
     #[arg(long)]
     sizes_differ: bool,
-    /// Systematic centre uncertainty of a lit sphere's edge, pixels x radius (added to sigma).
+    /// Systematic centre uncertainty of a lit sphere's edge, pixels x radius (common to all images).
     #[arg(long, default_value_t = 0.5)]
     edge_systematic: f64,
     /// Largest RMS distance of rim points from the fitted circle, pixels.

@@ -11,7 +11,10 @@ fn temp_path(path: &Path) -> PathBuf {
         .file_name()
         .map(|n| n.to_string_lossy().into_owned())
         .unwrap_or_else(|| "output".to_string());
-    path.with_file_name(format!(".{name}.{}.part", std::process::id()))
+    // Unique per process and per call, so threads writing beside each other never share one.
+    static NEXT: std::sync::atomic::AtomicU64 = std::sync::atomic::AtomicU64::new(0);
+    let k = NEXT.fetch_add(1, std::sync::atomic::Ordering::Relaxed);
+    path.with_file_name(format!(".{name}.{}.{k}.part", std::process::id()))
 }
 
 /// Write `path` atomically with the bytes produced by `fill`.
