@@ -4,7 +4,7 @@
 //! backdrop and a faint streak along the path. Then vignetting, photon and read noise, the tone
 //! curve and quantisation.
 //!
-//! Goes in: a list of [`Stamp`]s (disc images with their weights) and the [`Look`] of the photo.
+//! Goes in: a list of [`Stamp`]s (disc images with their weights) and the [`Finish`] of the photo.
 //! Comes out: linear RGB pixel rows, then an 8 or 16-bit image. The pixel area covered by a disc is
 //! computed in closed form (integral of sqrt(r^2 - x^2), inclusion-exclusion over the pixel's
 //! corners), so the painted centroid and area are exact up to rounding.
