@@ -2,7 +2,8 @@
 # Fuzz the loader + spot finder and the rig profile parser for a fixed time each and print the
 # executions run. Usage: bench/run_fuzz.sh [SECONDS_PER_TARGET] (default 60).
 set -euo pipefail
-cd "$(dirname "$0")/fuzz"
+root="$(cd "$(dirname "$0")/.." && pwd)"
+cd "$root/bench/fuzz"
 seconds="${1:-60}"
 if ! rustup toolchain list 2>/dev/null | grep -q '^nightly'; then
     if ! rustup toolchain install nightly --profile minimal; then
@@ -23,8 +24,9 @@ for target in load_spots profile; do
     fi
     log="$target.log"
     # -rss_limit_mb: the decoding limits must keep memory bounded on any input.
-    cargo +nightly fuzz run "$target" "$corpus" -- \
-        -max_total_time="$seconds" -rss_limit_mb=2048 -max_len=262144 2>&1 | tee "$log" | tail -n 3
+    # cargo fuzz looks for fuzz/ at the project root unless told where the fuzz crate is.
+    (cd "$root" && cargo +nightly fuzz run --fuzz-dir bench/fuzz "$target" "bench/fuzz/$corpus" -- \
+        -max_total_time="$seconds" -rss_limit_mb=2048 -max_len=262144) 2>&1 | tee "$log" | tail -n 3
     execs=$(grep -o 'Done [0-9]* runs' "$log" | tail -n 1 | grep -o '[0-9]*' || echo "?")
     echo "run_fuzz: $target: $execs executions in ${seconds} s without a crash"
 done
