@@ -301,6 +301,32 @@ fn parse_numbers(text: &str, count: usize, name: &str) -> Result<Vec<f64>> {
     Ok(v)
 }
 
+/// `--start X,Y` as a pixel point.
+fn parse_start(text: Option<&str>) -> Result<Option<beadline::path::PixelPoint>> {
+    text.map(|t| {
+        let v = parse_numbers(t, 2, "--start")?;
+        Ok(beadline::path::PixelPoint {
+            x_px: v[0],
+            y_px: v[1],
+        })
+    })
+    .transpose()
+}
+
+/// A document as text, JSON or CSV.
+fn formatted<T: serde::Serialize>(
+    format: Format,
+    doc: &T,
+    text: impl FnOnce() -> String,
+    csv: impl FnOnce() -> std::io::Result<String>,
+) -> Result<String> {
+    Ok(match format {
+        Format::Text => text(),
+        Format::Json => serde_json::to_string_pretty(doc)? + "\n",
+        Format::Csv => csv()?,
+    })
+}
+
 impl MeasureArgs {
     fn validate(&self, detect: &Detect) -> Result<beadline::measure::MeasureSettings> {
         use beadline::measure::{MeasureSettings, ScaleSource};
@@ -398,13 +424,7 @@ impl MeasureArgs {
                 beadline::physics::bands::Band::parse(a).with_context(|| format!("--accept {a}"))
             })
             .collect::<Result<_>>()?;
-        if let Some(st) = &self.start {
-            let v = parse_numbers(st, 2, "--start")?;
-            s.path.start = Some(beadline::path::PixelPoint {
-                x_px: v[0],
-                y_px: v[1],
-            });
-        }
+        s.path.start = parse_start(self.start.as_deref())?;
         Ok(s)
     }
 }
@@ -613,11 +633,7 @@ fn write_measure(
     out: &OutArgs,
     plot: Option<&Path>,
 ) -> Result<()> {
-    let text = match out.format {
-        Format::Text => m.doc.text(),
-        Format::Json => serde_json::to_string_pretty(&m.doc)? + "\n",
-        Format::Csv => m.doc.csv()?,
-    };
+    let text = formatted(out.format, &m.doc, || m.doc.text(), || m.doc.csv())?;
     if let Some(o) = &out.overlay {
         beadline::overlay::measure_overlay(photo, m, o)?;
     }
@@ -695,11 +711,7 @@ fn dispatch(args: Args) -> Result<ExitCode> {
                 &d.options,
                 d.plate.is_some(),
             );
-            let text = match out.format {
-                Format::Text => doc.text(),
-                Format::Json => serde_json::to_string_pretty(&doc)? + "\n",
-                Format::Csv => doc.csv()?,
-            };
+            let text = formatted(out.format, &doc, || doc.text(), || doc.csv())?;
             if let Some(o) = &out.overlay {
                 spots_overlay(&photo, &report, o)?;
             }
@@ -714,21 +726,13 @@ fn dispatch(args: Args) -> Result<ExitCode> {
         } => {
             let d = d.validate()?;
             let report = detect(&photo, &d)?;
-            let mut options = beadline::path::PathOptions::default();
-            if let Some(st) = &start {
-                let v = parse_numbers(st, 2, "--start")?;
-                options.start = Some(beadline::path::PixelPoint {
-                    x_px: v[0],
-                    y_px: v[1],
-                });
-            }
+            let options = beadline::path::PathOptions {
+                start: parse_start(start.as_deref())?,
+                ..Default::default()
+            };
             let result = beadline::path::order_path(&report.spots, &options);
             let doc = beadline::report::PathDoc::new(&photo.display().to_string(), &result);
-            let text = match out.format {
-                Format::Text => doc.text(),
-                Format::Json => serde_json::to_string_pretty(&doc)? + "\n",
-                Format::Csv => doc.csv()?,
-            };
+            let text = formatted(out.format, &doc, || doc.text(), || doc.csv())?;
             if let Some(o) = &out.overlay {
                 spots_overlay(&photo, &report, o)?;
             }

@@ -375,11 +375,6 @@ impl MeasureDoc {
 
     /// CSV of the path.
     pub fn csv(&self) -> std::io::Result<String> {
-        let mut w = csv::Writer::from_writer(Vec::new());
-        for p in &self.path {
-            w.serialize(p)?;
-        }
-        let bytes = w.into_inner().map_err(|e| e.into_error())?;
-        Ok(String::from_utf8_lossy(&bytes).into_owned())
+        crate::report::csv_rows(&self.path)
     }
 }

@@ -11,6 +11,16 @@ use serde::{Deserialize, Serialize};
 /// Version of every JSON document Beadline writes; raised when a key changes meaning or goes.
 pub const SCHEMA_VERSION: u32 = 1;
 
+/// CSV text with a header and one row per item.
+pub fn csv_rows<T: Serialize>(rows: &[T]) -> std::io::Result<String> {
+    let mut w = csv::Writer::from_writer(Vec::new());
+    for r in rows {
+        w.serialize(r)?;
+    }
+    let bytes = w.into_inner().map_err(|e| e.into_error())?;
+    Ok(String::from_utf8_lossy(&bytes).into_owned())
+}
+
 /// The settings spot finding used, as they were resolved.
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
 pub struct SpotSettings {
@@ -135,12 +145,7 @@ impl SpotsDoc {
 
     /// CSV of the spots.
     pub fn csv(&self) -> std::io::Result<String> {
-        let mut w = csv::Writer::from_writer(Vec::new());
-        for p in &self.spots {
-            w.serialize(p)?;
-        }
-        let bytes = w.into_inner().map_err(|e| e.into_error())?;
-        Ok(String::from_utf8_lossy(&bytes).into_owned())
+        csv_rows(&self.spots)
     }
 }
 
@@ -201,11 +206,6 @@ impl PathDoc {
 
     /// CSV of the path.
     pub fn csv(&self) -> std::io::Result<String> {
-        let mut w = csv::Writer::from_writer(Vec::new());
-        for p in &self.path {
-            w.serialize(p)?;
-        }
-        let bytes = w.into_inner().map_err(|e| e.into_error())?;
-        Ok(String::from_utf8_lossy(&bytes).into_owned())
+        csv_rows(&self.path)
     }
 }
