@@ -210,3 +210,48 @@ fn a_photo_without_a_path_is_a_clear_error() {
         .to_string();
     assert!(err.contains("one.png"), "{err}");
 }
+
+#[test]
+fn radial_lens_distortion_is_undone_through_the_plane_file() {
+    // Barrel distortion k1 = -0.05 on focal-normalised coordinates (Brown's radial model, as the
+    // renderer's camera applies it); the plane file carries the same k1 and focal length.
+    let dir = tempfile::tempdir().unwrap();
+    let mut scene = Scene::demo();
+    scene.camera.k1 = -0.05;
+    let (photo, truth) = shoot(&scene, dir.path(), "barrel.png");
+    let proj = render::camera::Projection::new(&scene.camera);
+    let mut plane = String::from("k1 = -0.05\nfocal_px = 1600.0\n");
+    for (x, y) in [
+        (0.0, 0.0),
+        (1.2, 0.0),
+        (0.0, 0.5),
+        (1.2, 0.5),
+        (0.6, 0.25),
+        (0.3, 0.45),
+    ] {
+        let p = proj.to_pixel(x, y);
+        plane += &format!(
+            "[[points]]\nx_px = {}\ny_px = {}\nx_m = {x}\ny_m = {y}\n",
+            p[0], p[1]
+        );
+    }
+    let plane_path = dir.path().join("plane.toml");
+    std::fs::write(&plane_path, plane).unwrap();
+    let settings = MeasureSettings {
+        rate_hz: Some(25.0),
+        scale: Some(ScaleSource::Plane(plane_path)),
+        ball_diameter_m: Some(0.04),
+        ..Default::default()
+    };
+    let m = measure_photo(&photo, &settings).unwrap();
+    let doc = &m.doc.measurement;
+    assert!(!doc.bounces.is_empty());
+    for b in &doc.bounces {
+        assert!((b.restitution - 0.78).abs() < 0.01, "e {}", b.restitution);
+    }
+    assert!(
+        rel(doc.gravity_mps2.value, truth.gravity_mps2) < 0.005,
+        "g {}",
+        doc.gravity_mps2.value
+    );
+}

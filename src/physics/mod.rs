@@ -386,7 +386,10 @@ pub fn measure(
             _ => None,
         }
     };
-    if let (false, Some((rho, _))) = (options.camera_level, roll) {
+    // With a drag fit the acceleration also has a horizontal part (drag), so its direction is
+    // not "down": the roll is reported but not corrected from it.
+    let correct_roll = !options.camera_level && !options.fit_drag;
+    if let (true, Some((rho, _))) = (correct_roll, roll) {
         let (s, c) = rho.sin_cos();
         for p in &mut pts {
             let (x, y) = (p.x_m, p.y_m);
@@ -659,7 +662,7 @@ pub fn measure(
         level: Level {
             roll_deg: roll.map(|r| r.0.to_degrees()),
             roll_sigma_deg: roll.map(|r| r.1.to_degrees()),
-            corrected: !options.camera_level && roll.is_some(),
+            corrected: correct_roll && roll.is_some(),
         },
         gravity_mps2: gravity,
         flash_interval_s: interval,
