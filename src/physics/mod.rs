@@ -352,6 +352,12 @@ fn flight_ranges(fits: &[(Option<ArcFit>, bool)]) -> Vec<Range<usize>> {
         .collect()
 }
 
+/// Split the path, fit every arc and keep the flight arcs.
+fn segment_flights(pts: &[TimedPoint], g_hint: f64, cov: CovarianceScaling) -> Vec<Range<usize>> {
+    let seg = phases::segment(pts, g_hint);
+    flight_ranges(&fit_arcs(pts, &seg.arcs, g_hint, cov))
+}
+
 /// Measure the physics of a timed path for a ball of radius `radius_m`.
 pub fn measure(
     points: &[TimedPoint],
@@ -364,9 +370,7 @@ pub fn measure(
     let mut pts = points.to_vec();
 
     // Level: direction of the common acceleration of the flight arcs.
-    let seg = phases::segment(&pts, g_hint);
-    let fits = fit_arcs(&pts, &seg.arcs, g_hint, cov);
-    let flights = flight_ranges(&fits);
+    let flights = segment_flights(&pts, g_hint, cov);
     if flights.is_empty() {
         return Err(Error::measure(
             &options.source,
@@ -398,10 +402,9 @@ pub fn measure(
         }
     }
 
-    // Calibration unknown from the common curvature of the flight arcs.
-    let seg = phases::segment(&pts, g_hint);
-    let fits = fit_arcs(&pts, &seg.arcs, g_hint, cov);
-    let flights = flight_ranges(&fits);
+    // Calibration unknown from the common curvature of the flight arcs (again, in the levelled
+    // frame).
+    let flights = segment_flights(&pts, g_hint, cov);
     if flights.is_empty() {
         return Err(Error::measure(
             &options.source,
