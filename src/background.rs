@@ -76,6 +76,15 @@ enum Kind {
     },
 }
 
+/// Grid position of pixel `p` along one axis (cell centres at (i + 0.5) * cell): the two cells
+/// to interpolate between and the weight of the second.
+#[inline]
+fn grid_coord(p: usize, cell: f32, n: usize) -> (usize, usize, f32) {
+    let g = ((p as f32 + 0.5) / cell - 0.5).clamp(0.0, (n - 1) as f32);
+    let i = g as usize;
+    (i, (i + 1).min(n - 1), g - i as f32)
+}
+
 impl Background {
     /// Background value at a pixel.
     #[inline]
@@ -88,12 +97,8 @@ impl Background {
                 rows,
                 cell,
             } => {
-                // Cell centres at (i + 0.5) * cell.
-                let gx = ((x as f32 + 0.5) / cell - 0.5).clamp(0.0, (*cols - 1) as f32);
-                let gy = ((y as f32 + 0.5) / cell - 0.5).clamp(0.0, (*rows - 1) as f32);
-                let (ix, iy) = (gx as usize, gy as usize);
-                let (jx, jy) = ((ix + 1).min(cols - 1), (iy + 1).min(rows - 1));
-                let (fx, fy) = (gx - ix as f32, gy - iy as f32);
+                let (ix, jx, fx) = grid_coord(x, *cell, *cols);
+                let (iy, jy, fy) = grid_coord(y, *cell, *rows);
                 let v = |i: usize, j: usize| values[j * cols + i];
                 let a = v(ix, iy) * (1.0 - fx) + v(jx, iy) * fx;
                 let b = v(ix, jy) * (1.0 - fx) + v(jx, jy) * fx;
@@ -113,10 +118,7 @@ impl Background {
                 rows,
                 cell,
             } => {
-                let gy = ((y as f32 + 0.5) / cell - 0.5).clamp(0.0, (*rows - 1) as f32);
-                let iy = gy as usize;
-                let jy = (iy + 1).min(rows - 1);
-                let fy = gy - iy as f32;
+                let (iy, jy, fy) = grid_coord(y, *cell, *rows);
                 let column: Vec<f32> = (0..*cols)
                     .map(|i| values[iy * cols + i] * (1.0 - fy) + values[jy * cols + i] * fy)
                     .collect();

@@ -150,19 +150,11 @@ fn rebound_standards_as_acceptance_bands() {
     }
 }
 
-#[test]
-fn a_tilted_camera_is_measured_through_a_plane_homography() {
-    // Perspective: the camera turned 20 degrees and rolled 2 degrees. Six points of the plane of
-    // motion with known world coordinates (as a user would mark them on the rig) give the
-    // homography (DLT, Hartley & Zisserman alg. 4.2); restitution within 0.01 and gravity within
-    // 0.5 % of the truth.
-    let dir = tempfile::tempdir().unwrap();
-    let mut scene = Scene::demo();
-    scene.camera.tilt_deg = 20.0;
-    scene.camera.roll_deg = 2.0;
-    let (photo, truth) = shoot(&scene, dir.path(), "tilt.png");
+/// A plane file of six points of the plane of motion with their world coordinates, as a user
+/// would mark them on the rig, seen through the scene's camera; `header` adds distortion keys.
+fn plane_file(scene: &Scene, dir: &Path, header: &str) -> std::path::PathBuf {
     let proj = render::camera::Projection::new(&scene.camera);
-    let mut plane = String::new();
+    let mut plane = header.to_string();
     for (x, y) in [
         (0.0, 0.0),
         (1.2, 0.0),
@@ -177,8 +169,23 @@ fn a_tilted_camera_is_measured_through_a_plane_homography() {
             p[0], p[1]
         );
     }
-    let plane_path = dir.path().join("plane.toml");
-    std::fs::write(&plane_path, plane).unwrap();
+    let path = dir.join("plane.toml");
+    std::fs::write(&path, plane).unwrap();
+    path
+}
+
+#[test]
+fn a_tilted_camera_is_measured_through_a_plane_homography() {
+    // Perspective: the camera turned 20 degrees and rolled 2 degrees. Six points of the plane of
+    // motion with known world coordinates (as a user would mark them on the rig) give the
+    // homography (DLT, Hartley & Zisserman alg. 4.2); restitution within 0.01 and gravity within
+    // 0.5 % of the truth.
+    let dir = tempfile::tempdir().unwrap();
+    let mut scene = Scene::demo();
+    scene.camera.tilt_deg = 20.0;
+    scene.camera.roll_deg = 2.0;
+    let (photo, truth) = shoot(&scene, dir.path(), "tilt.png");
+    let plane_path = plane_file(&scene, dir.path(), "");
     let mut settings = MeasureSettings {
         rate_hz: Some(25.0),
         scale: Some(ScaleSource::Plane(plane_path)),
@@ -219,24 +226,7 @@ fn radial_lens_distortion_is_undone_through_the_plane_file() {
     let mut scene = Scene::demo();
     scene.camera.k1 = -0.05;
     let (photo, truth) = shoot(&scene, dir.path(), "barrel.png");
-    let proj = render::camera::Projection::new(&scene.camera);
-    let mut plane = String::from("k1 = -0.05\nfocal_px = 1600.0\n");
-    for (x, y) in [
-        (0.0, 0.0),
-        (1.2, 0.0),
-        (0.0, 0.5),
-        (1.2, 0.5),
-        (0.6, 0.25),
-        (0.3, 0.45),
-    ] {
-        let p = proj.to_pixel(x, y);
-        plane += &format!(
-            "[[points]]\nx_px = {}\ny_px = {}\nx_m = {x}\ny_m = {y}\n",
-            p[0], p[1]
-        );
-    }
-    let plane_path = dir.path().join("plane.toml");
-    std::fs::write(&plane_path, plane).unwrap();
+    let plane_path = plane_file(&scene, dir.path(), "k1 = -0.05\nfocal_px = 1600.0\n");
     let settings = MeasureSettings {
         rate_hz: Some(25.0),
         scale: Some(ScaleSource::Plane(plane_path)),
