@@ -79,8 +79,8 @@ enum Kind {
 /// Grid position of pixel `p` along one axis (cell centres at (i + 0.5) * cell): the two cells
 /// to interpolate between and the weight of the second.
 #[inline]
-fn grid_coord(p: usize, cell: f32, n: usize) -> (usize, usize, f32) {
-    let g = ((p as f32 + 0.5) / cell - 0.5).clamp(0.0, (n - 1) as f32);
+fn grid_coord(p: f32, cell: f32, n: usize) -> (usize, usize, f32) {
+    let g = ((p + 0.5) / cell - 0.5).clamp(0.0, (n - 1) as f32);
     let i = g as usize;
     (i, (i + 1).min(n - 1), g - i as f32)
 }
@@ -91,6 +91,15 @@ impl Background {
     pub fn at(&self, x: usize, y: usize) -> f32 {
         match &self.kind {
             Kind::Plate(v, w) => v[y * w + x],
+            Kind::Grid { .. } => self.grid_at(x as f32, y as f32),
+        }
+    }
+
+    /// The bilinear grid at a (sub-)pixel position; a plate is read at the nearest pixel.
+    #[inline]
+    fn grid_at(&self, x: f32, y: f32) -> f32 {
+        match &self.kind {
+            Kind::Plate(v, w) => v[y.round() as usize * w + x.round() as usize],
             Kind::Grid {
                 values,
                 cols,
@@ -107,6 +116,24 @@ impl Background {
         }
     }
 
+    /// Mean background over the pixel block `x0..x1` x `y0..y1` (end exclusive). A plate is
+    /// summed; the grid is bilinear, so its mean over a block inside one interpolation cell is its
+    /// value at the block centre, which is what is returned (blocks across a cell border differ
+    /// from the exact mean only by the small kink of the interpolation there).
+    pub fn block_mean(&self, x0: usize, y0: usize, x1: usize, y1: usize) -> f32 {
+        match &self.kind {
+            Kind::Plate(v, w) => {
+                let sum: f32 = (y0..y1)
+                    .map(|y| v[y * w + x0..y * w + x1].iter().sum::<f32>())
+                    .sum();
+                sum / ((x1 - x0) * (y1 - y0)) as f32
+            }
+            Kind::Grid { .. } => {
+                self.grid_at(0.5 * (x0 + x1 - 1) as f32, 0.5 * (y0 + y1 - 1) as f32)
+            }
+        }
+    }
+
     /// Background values of row `y`, columns `x0..x0 + out.len()`: the grid interpolated
     /// vertically once, then horizontally (much cheaper than [`Background::at`] per pixel).
     pub fn row(&self, y: usize, x0: usize, out: &mut [f32]) {
@@ -118,7 +145,7 @@ impl Background {
                 rows,
                 cell,
             } => {
-                let (iy, jy, fy) = grid_coord(y, *cell, *rows);
+                let (iy, jy, fy) = grid_coord(y as f32, *cell, *rows);
                 let column: Vec<f32> = (0..*cols)
                     .map(|i| values[iy * cols + i] * (1.0 - fy) + values[jy * cols + i] * fy)
                     .collect();

@@ -74,8 +74,6 @@ pub struct Region {
     pub height: usize,
     /// Edge points inside the crop.
     pub edges: Vec<EdgePoint>,
-    /// Smoothed ball-positive difference, row-major over the crop.
-    pub difference: Vec<f32>,
 }
 
 /// A centre proposed by the vote.
@@ -114,8 +112,11 @@ pub fn prepare_region(
     }
     let img: ImageBuffer<Luma<f32>, Vec<f32>> =
         ImageBuffer::from_raw(w as u32, h as u32, raw).expect("crop size matches");
+    // Crops of a long overlapping run can be large: buffers are freed as soon as they are used.
     let smooth = if options.smooth_px > 0.0 {
-        imageproc::filter::gaussian_blur_f32(&img, options.smooth_px)
+        let s = imageproc::filter::gaussian_blur_f32(&img, options.smooth_px);
+        drop(img);
+        s
     } else {
         img
     };
@@ -137,6 +138,7 @@ pub fn prepare_region(
             }
         }
     }
+    drop(d);
     let mag: Vec<f32> = gx
         .iter()
         .zip(&gy)
@@ -146,7 +148,7 @@ pub fn prepare_region(
     let mut sample: Vec<f32> = gx.iter().step_by(3).copied().collect();
     let sigma_g = robust_sigma(&mut sample).max(1e-7);
     let mut sorted: Vec<f32> = mag.iter().step_by(2).copied().collect();
-    let k = sorted.len().saturating_sub(1) * 98 / 100;
+    let k = sorted.len().saturating_sub(1) * 995 / 1000;
     let strong = if sorted.is_empty() {
         0.0
     } else {
@@ -199,42 +201,48 @@ pub fn prepare_region(
         width: w,
         height: h,
         edges,
-        difference: d,
     }
 }
 
 /// Vote for centres of circles with radii in `r_min_px..r_max_px` and return the peaks, strongest
-/// first, plus the accumulator (row-major over the region) for debugging.
+/// first, plus (when `keep_votes`, for debugging) the smoothed accumulator, row-major over the
+/// region; else an empty vector.
 pub fn vote(
     region: &Region,
     r_min_px: f64,
     r_max_px: f64,
     options: &HoughOptions,
+    keep_votes: bool,
 ) -> (Vec<Candidate>, Vec<f32>) {
     let (w, h) = (region.width, region.height);
     let mut acc = vec![0f32; w * h];
     let steps = (((r_max_px - r_min_px) / options.radius_step_px).ceil() as usize).max(1);
     // Radius histogram per accumulator cell is too costly; keep the vote-weighted mean radius.
     let mut rsum = vec![0f32; w * h];
+    let radii: Vec<f64> = (0..=steps)
+        .map(|s| r_min_px + (r_max_px - r_min_px) * s as f64 / steps as f64)
+        .collect();
+    let (wf, hf) = ((w - 1) as f64, (h - 1) as f64);
     for e in &region.edges {
         let (ex, ey) = (e.x_px - region.x0 as f64, e.y_px - region.y0 as f64);
-        for s in 0..=steps {
-            let r = r_min_px + (r_max_px - r_min_px) * s as f64 / steps as f64;
+        for &r in &radii {
             let (cx, cy) = (ex + r * e.ux, ey + r * e.uy);
-            let (fx, fy) = (cx.floor(), cy.floor());
-            if fx < 0.0 || fy < 0.0 || fx as usize + 1 >= w || fy as usize + 1 >= h {
+            // In range for the 2 x 2 splat (also rejects NaN); truncation is floor here.
+            if !(cx >= 0.0 && cy >= 0.0 && cx < wf && cy < hf) {
                 continue;
             }
-            let (ix, iy) = (fx as usize, fy as usize);
-            let (ax, ay) = ((cx - fx) as f32, (cy - fy) as f32);
-            for (i, j, wgt) in [
-                (ix, iy, (1.0 - ax) * (1.0 - ay)),
-                (ix + 1, iy, ax * (1.0 - ay)),
-                (ix, iy + 1, (1.0 - ax) * ay),
-                (ix + 1, iy + 1, ax * ay),
+            let (ix, iy) = (cx as usize, cy as usize);
+            let (ax, ay) = ((cx - ix as f64) as f32, (cy - iy as f64) as f32);
+            let rf = r as f32;
+            let k = iy * w + ix;
+            for (i, wgt) in [
+                (k, (1.0 - ax) * (1.0 - ay)),
+                (k + 1, ax * (1.0 - ay)),
+                (k + w, (1.0 - ax) * ay),
+                (k + w + 1, ax * ay),
             ] {
-                acc[j * w + i] += wgt;
-                rsum[j * w + i] += wgt * r as f32;
+                acc[i] += wgt;
+                rsum[i] += wgt * rf;
             }
         }
     }
@@ -311,5 +319,5 @@ pub fn vote(
         }
     }
     peaks.sort_by(|a, b| b.strength.total_cmp(&a.strength));
-    (peaks, sm)
+    (peaks, if keep_votes { sm } else { Vec::new() })
 }

@@ -1,8 +1,10 @@
 //! Load: a photo file to a grey working image in full precision.
 //!
 //! Goes in: a JPEG, PNG or TIFF (8 or 16 bit, grey or colour, EXIF orientation applied). Comes out:
-//! a [`Photo`] of f32 luma values 0..1 (Rec. 709 weights on the stored values). Decoding limits
-//! refuse hostile files (a header claiming 100000 x 100000 pixels) before any large allocation.
+//! a [`Photo`] of f32 luma values 0..1 (Rec. 709 weights on the stored values; a YCbCr JPEG gives
+//! its stored luma plane directly, which its encoder made with the Rec. 601 weights, and its
+//! chroma is never decoded). Decoding limits refuse hostile files (a header claiming
+//! 100000 x 100000 pixels) before any large allocation.
 
 use crate::error::{Error, Result};
 use image::DynamicImage;
@@ -124,6 +126,7 @@ pub fn load_bytes(path: &Path, bytes: &[u8], options: &LoadOptions) -> Result<Ph
     limits.max_image_height = Some(options.max_side_px);
     limits.max_alloc = Some(options.max_alloc_bytes);
     reader.limits(limits);
+    let reader_is_jpeg = reader.format() == Some(image::ImageFormat::Jpeg);
     let mut decoder = reader.into_decoder().map_err(|e| decode_error(path, e))?;
     let (w, h) = image::ImageDecoder::dimensions(&decoder);
     if (w as f64) * (h as f64) > options.max_megapixels * 1e6 {
@@ -137,7 +140,15 @@ pub fn load_bytes(path: &Path, bytes: &[u8], options: &LoadOptions) -> Result<Ph
     }
     let orientation = image::ImageDecoder::orientation(&mut decoder)
         .unwrap_or(image::metadata::Orientation::NoTransforms);
-    let mut img = DynamicImage::from_decoder(decoder).map_err(|e| decode_error(path, e))?;
+    let grey = if reader_is_jpeg {
+        jpeg_luma(bytes, options).map_err(|e| decode_error(path, e))?
+    } else {
+        None
+    };
+    let mut img = match grey {
+        Some(g) => DynamicImage::ImageLuma8(g),
+        None => DynamicImage::from_decoder(decoder).map_err(|e| decode_error(path, e))?,
+    };
     img.apply_orientation(orientation);
     if img.width() < 3 || img.height() < 3 {
         return Err(decode_error(
@@ -150,6 +161,38 @@ pub fn load_bytes(path: &Path, bytes: &[u8], options: &LoadOptions) -> Result<Ph
         ));
     }
     Ok(to_photo(path, &img))
+}
+
+/// Decode only the luma plane of a YCbCr or grey JPEG (zune-jpeg skips the chroma's inverse
+/// transforms, upsampling and colour conversion: about half the decoding time). The JPEG encoder
+/// made that plane with the Rec. 601 weights. `None` for other colour models (CMYK, YCCK, RGB),
+/// which go the general way.
+fn jpeg_luma(
+    bytes: &[u8],
+    options: &LoadOptions,
+) -> std::result::Result<Option<image::GrayImage>, String> {
+    use zune_core::colorspace::ColorSpace;
+    use zune_core::options::DecoderOptions;
+    let side = options.max_side_px as usize;
+    let opts = DecoderOptions::default()
+        .set_max_width(side)
+        .set_max_height(side)
+        .jpeg_set_out_colorspace(ColorSpace::Luma);
+    let mut dec =
+        zune_jpeg::JpegDecoder::new_with_options(zune_core::bytestream::ZCursor::new(bytes), opts);
+    dec.decode_headers().map_err(|e| e.to_string())?;
+    if !matches!(
+        dec.input_colorspace(),
+        Some(ColorSpace::YCbCr | ColorSpace::Luma)
+    ) {
+        return Ok(None);
+    }
+    let (w, h) = match dec.info() {
+        Some(i) => (i.width as u32, i.height as u32),
+        None => return Ok(None),
+    };
+    let raw = dec.decode().map_err(|e| e.to_string())?;
+    Ok(image::GrayImage::from_raw(w, h, raw))
 }
 
 /// Convert a decoded image to grey f32, rows in parallel.

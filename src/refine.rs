@@ -16,6 +16,12 @@
 use crate::hough::{Candidate, EdgePoint, Region};
 use nalgebra::{Matrix3, Vector3};
 
+/// Euclidean length of (dx, dy); pixel distances cannot overflow, so no `hypot` (slow in libm).
+#[inline]
+fn dist(dx: f64, dy: f64) -> f64 {
+    (dx * dx + dy * dy).sqrt()
+}
+
 /// A circle.
 #[derive(Debug, Clone, Copy, PartialEq)]
 pub struct Circle {
@@ -88,7 +94,7 @@ pub fn geometric_fit(
         points
             .iter()
             .map(|q| {
-                let d = (q[0] - c.x_px).hypot(q[1] - c.y_px) - c.r_px;
+                let d = dist(q[0] - c.x_px, q[1] - c.y_px) - c.r_px;
                 d * d
             })
             .sum()
@@ -98,7 +104,7 @@ pub fn geometric_fit(
         let mut jtr = Vector3::zeros();
         for q in points {
             let (dx, dy) = (q[0] - c.x_px, q[1] - c.y_px);
-            let rho = dx.hypot(dy).max(1e-12);
+            let rho = dist(dx, dy).max(1e-12);
             let res = rho - c.r_px;
             let j = Vector3::new(
                 -dx / rho,
@@ -225,7 +231,7 @@ fn coverage_of(c: &Circle, pts: &[[f64; 2]]) -> f64 {
     let mut bins = [false; BINS];
     for q in pts {
         let (dx, dy) = (q[0] - c.x_px, q[1] - c.y_px);
-        if (dx.hypot(dy) - c.r_px).abs() <= 1.0 {
+        if (dist(dx, dy) - c.r_px).abs() <= 1.0 {
             let a = dy.atan2(dx) + std::f64::consts::PI;
             let b = ((a / (2.0 * std::f64::consts::PI)) * BINS as f64) as usize % BINS;
             bins[b] = true;
@@ -240,7 +246,7 @@ fn correlation_factor(c: &Circle, pts: &[[f64; 2]]) -> f64 {
         .iter()
         .map(|q| {
             let (dx, dy) = (q[0] - c.x_px, q[1] - c.y_px);
-            (dy.atan2(dx), dx.hypot(dy) - c.r_px)
+            (dy.atan2(dx), dist(dx, dy) - c.r_px)
         })
         .collect();
     if r.len() < 6 {
@@ -400,7 +406,7 @@ pub fn refine_region(
             let mut res: Vec<f64> = pts
                 .iter()
                 .map(|q| {
-                    ((q[0] - fit.circle.x_px).hypot(q[1] - fit.circle.y_px) - fit.circle.r_px).abs()
+                    (dist(q[0] - fit.circle.x_px, q[1] - fit.circle.y_px) - fit.circle.r_px).abs()
                 })
                 .collect();
             let mut sorted = res.clone();
@@ -490,7 +496,7 @@ fn assign(
                 continue;
             }
             let (dx, dy) = (c.x_px - e.x_px, c.y_px - e.y_px);
-            let rho = dx.hypot(dy);
+            let rho = dist(dx, dy);
             let res = (rho - c.r_px).abs();
             if res > tol || rho < 1e-9 {
                 continue;

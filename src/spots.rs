@@ -243,7 +243,7 @@ pub fn find_spots(
     let Some((r_min, r_max)) = radius else {
         return Ok(report);
     };
-    let margin = (r_max + 4.0).ceil() as usize;
+    let margin = (0.5 * r_max + 4.0).ceil() as usize;
     let regions: Vec<hough::Region> = blobs
         .blobs
         .par_iter()
@@ -251,7 +251,7 @@ pub fn find_spots(
         .collect();
     let voted: Vec<(Vec<hough::Candidate>, Vec<f32>)> = regions
         .par_iter()
-        .map(|r| hough::vote(r, r_min, r_max, &options.hough))
+        .map(|r| hough::vote(r, r_min, r_max, &options.hough, debug.is_some()))
         .collect();
     // Pass 1: free radii, to learn the common radius.
     let first: Vec<Vec<CircleFit>> = regions

@@ -305,3 +305,62 @@ fn a_photo_of_noise_is_refused_with_a_clear_message() {
         "{err}"
     );
 }
+
+#[test]
+fn a_colour_jpeg_is_read_as_its_luma_plane() {
+    // JFIF (ITU-T T.871) stores Y = 0.299 R + 0.587 G + 0.114 B (ITU-R BT.601 weights); the
+    // loader reads that plane without decoding the chroma. Reference: the image crate's own
+    // full colour decode, converted with the same weights.
+    let dir = tempfile::tempdir().unwrap();
+    let (w, h) = (64u32, 48u32);
+    // Colours kept away from 0 and 255, where clipping of the decoded RGB would add its own error.
+    let img = image::RgbImage::from_fn(w, h, |x, y| {
+        image::Rgb([(40 + x * 2) as u8, (40 + y * 3) as u8, (60 + x + y) as u8])
+    });
+    let path = dir.path().join("colour.jpg");
+    img.save(&path).unwrap();
+    let photo = load(&path, &LoadOptions::default()).unwrap();
+    let rgb = image::open(&path).unwrap().to_rgb8();
+    let (mut sum, mut max) = (0f64, 0f64);
+    for (i, p) in rgb.pixels().enumerate() {
+        let y601 = (0.299 * p[0] as f64 + 0.587 * p[1] as f64 + 0.114 * p[2] as f64) / 255.0;
+        let d = (photo.luma[i] as f64 - y601).abs();
+        sum += d;
+        max = max.max(d);
+    }
+    let mean = sum / (w * h) as f64;
+    // Rounding of the decoded RGB and the chroma upsampling: about one level at most.
+    assert!(
+        mean < 0.6 / 255.0 && max < 2.5 / 255.0,
+        "mean {mean}, max {max}"
+    );
+}
+
+#[test]
+fn the_exif_orientation_of_a_jpeg_is_applied() {
+    // EXIF 2.32 (CIPA DC-008-2019), tag 0x0112 Orientation: 6 means the stored image must be
+    // turned 90 degrees clockwise to be upright.
+    let dir = tempfile::tempdir().unwrap();
+    let img = image::GrayImage::from_fn(40, 20, |x, _| image::Luma([if x < 8 { 250 } else { 10 }]));
+    let plain = dir.path().join("plain.jpg");
+    img.save(&plain).unwrap();
+    let bytes = std::fs::read(&plain).unwrap();
+    // APP1 "Exif": a big-endian TIFF header and one IFD entry (Orientation, SHORT, 1, value 6).
+    let mut tiff = b"MM\0\x2a\0\0\0\x08".to_vec();
+    tiff.extend_from_slice(&[
+        0, 1, 0x01, 0x12, 0, 3, 0, 0, 0, 1, 0, 6, 0, 0, 0, 0, 0, 0, 0, 0,
+    ]);
+    let mut app1 = b"Exif\0\0".to_vec();
+    app1.extend_from_slice(&tiff);
+    let mut out = bytes[..2].to_vec();
+    out.extend_from_slice(&[0xFF, 0xE1]);
+    out.extend_from_slice(&((app1.len() + 2) as u16).to_be_bytes());
+    out.extend_from_slice(&app1);
+    out.extend_from_slice(&bytes[2..]);
+    let turned = dir.path().join("turned.jpg");
+    std::fs::write(&turned, &out).unwrap();
+    let photo = load(&turned, &LoadOptions::default()).unwrap();
+    assert_eq!((photo.width, photo.height), (20, 40));
+    // The bright left band of the stored image is now the top band.
+    assert!(photo.at(10, 2) > 0.8 && photo.at(10, 30) < 0.2);
+}
