@@ -7,7 +7,10 @@ plate, or a free throw), varied along one axis at a time from a common base:
   calibration  the one photo the reference detectors are tuned on (then frozen)
   size         ball radius 8 .. 40 px, lossless PNG
   jpeg85       the same at JPEG quality 85
-  dark         dark ball on a bright backdrop (a faint dip of ~1/N of the backdrop)
+  dark         dark ball on a bright backdrop, with a clean plate (each image dims the backdrop by
+               only ~1/N of its level for N flashes, below the backdrop's texture: a plate is how
+               such photos are worked; the references get |photo - plate|)
+  dark_noplate the same without a plate: outside the target's scope (no method finds them)
   overlap      slow start on the incline: early first flash, images overlapping heavily
   distractors  round objects of radii outside the +-20% search range in the picture
   glossy       glossy floor: mirror images of the ball in the floor plate
@@ -104,6 +107,7 @@ def accuracy_suite():
         s.append((f"dark_r{int(r)}", "dark", "png", scene(400 + i, r, polarity="dark")))
     s.append(("dark_jpeg85_r20", "dark", "jpg",
               scene(410, 20.0, polarity="dark", jpeg_quality=85)))
+    s.append(("dark_noplate_r20", "dark_noplate", "png", scene(420, 20.0, polarity="dark")))
     for i, r in enumerate((12.0, 20.0, 30.0)):
         s.append((f"overlap_r{int(r)}", "overlap", "png",
                   scene(500 + i, r, first_flash_s=0.0, rate_hz=40.0, exposure_s=1.2,
@@ -144,7 +148,9 @@ def write(outdir):
     manifest = {"accuracy": [], "speed": []}
     for name, cls, ext, doc in accuracy_suite():
         (out / f"{name}.toml").write_text(to_toml(doc))
-        manifest["accuracy"].append({"name": name, "class": cls, "ext": ext})
+        manifest["accuracy"].append({"name": name, "class": cls, "ext": ext,
+                                     "plate": cls == "dark",
+                                     "in_scope": cls != "dark_noplate"})
     for name, kind, value, ext, doc in speed_suite():
         (out / f"{name}.toml").write_text(to_toml(doc))
         manifest["speed"].append({"name": name, "kind": kind, "value": value, "ext": ext})

@@ -30,6 +30,9 @@ enum Command {
         /// Ground-truth JSON to write.
         #[arg(long)]
         truth: Option<PathBuf>,
+        /// Also write the clean plate: the same scene without the ball (same format as --out).
+        #[arg(long)]
+        plate: Option<PathBuf>,
     },
     /// Find every image of the ball in a strobe photo.
     Spots {
@@ -693,9 +696,17 @@ fn one_line(e: &anyhow::Error) -> String {
 
 fn dispatch(args: Args) -> Result<ExitCode> {
     match args.command {
-        Command::Render { scene, out, truth } => {
+        Command::Render {
+            scene,
+            out,
+            truth,
+            plate,
+        } => {
             let scene = Scene::load(&scene)?;
             render_to(&scene, &out, truth.as_deref())?;
+            if let Some(p) = plate {
+                render::render_plate(&scene).save(&p)?;
+            }
             Ok(ExitCode::SUCCESS)
         }
         Command::Spots {

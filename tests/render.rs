@@ -307,3 +307,55 @@ fn scene_errors_name_the_key() {
         .to_string();
     assert!(err.contains("incline.angle_deg"), "{err}");
 }
+
+#[test]
+fn the_clean_plate_is_the_photo_without_the_ball() {
+    // Physics of the long exposure (the renderer's model): a dark ball hides a lit backdrop for
+    // its own flash only, so the plate is brighter by about 1/N of the backdrop level at each
+    // image centre and equal wherever no image falls.
+    let mut scene = Scene::demo();
+    scene.photo.polarity = render::scene::Polarity::Dark;
+    scene.photo.noise = false;
+    scene.photo.ambient_exposure = 0.0;
+    scene.photo.vignetting = 0.0;
+    scene.photo.tone = render::scene::Tone::Linear;
+    let photo = render::render(&scene);
+    let plate = render::render_plate(&scene);
+    assert_eq!(photo.truth, plate.truth);
+    let w = photo.width as usize;
+    let n = photo.truth.flashes.len() as f64;
+    let level = scene.photo.backdrop_level.unwrap_or(0.75);
+    let grey = |p: &[f32; 3]| (p[0] + p[1] + p[2]) as f64 / 3.0;
+    let fl = &photo.truth.flashes;
+    let (mut far, mut centres) = (0, 0);
+    for (i, (a, b)) in photo.pixels.iter().zip(&plate.pixels).enumerate() {
+        let (x, y) = ((i % w) as f64, (i / w) as f64);
+        let nearest = fl
+            .iter()
+            .map(|f| (f.x_px - x).hypot(f.y_px - y) - f.r_px)
+            .fold(f64::INFINITY, f64::min);
+        if nearest > 2.0 {
+            assert!((grey(a) - grey(b)).abs() < 1e-6, "({x}, {y}) differs");
+            far += 1;
+        }
+    }
+    for (k, f) in fl.iter().enumerate() {
+        let alone = fl
+            .iter()
+            .enumerate()
+            .all(|(j, g)| j == k || (g.x_px - f.x_px).hypot(g.y_px - f.y_px) > 2.2 * f.r_px);
+        if !f.in_frame || !alone {
+            continue;
+        }
+        let i = f.y_px.round() as usize * w + f.x_px.round() as usize;
+        let dip = grey(&plate.pixels[i]) - grey(&photo.pixels[i]);
+        // The ball itself returns a little light (albedo 0.08), so the dip is a bit under 1/N.
+        assert!(
+            dip > 0.8 * level / n && dip < 1.05 * level / n,
+            "dip {dip} vs {}",
+            level / n
+        );
+        centres += 1;
+    }
+    assert!(far > 100_000 && centres > 10, "{far} {centres}");
+}

@@ -364,3 +364,28 @@ fn the_exif_orientation_of_a_jpeg_is_applied() {
     // The bright left band of the stored image is now the top band.
     assert!(photo.at(10, 2) > 0.8 && photo.at(10, 30) < 0.2);
 }
+
+#[test]
+fn a_dark_ball_under_many_flashes_is_found_against_its_clean_plate() {
+    // 37 flashes: each image dims the bright backdrop by only ~1/37 of its level, less than the
+    // backdrop's own texture (physics of the long exposure, rendered). The clean plate (the same
+    // scene without the ball, its own sensor noise) removes the texture.
+    let dir = tempfile::tempdir().unwrap();
+    let mut scene = Scene::demo();
+    scene.photo.polarity = render::scene::Polarity::Dark;
+    let photo = render::render(&scene);
+    let plate = render::render_plate(&scene);
+    let (pp, qp) = (dir.path().join("dark.png"), dir.path().join("plate.png"));
+    photo.save(&pp).unwrap();
+    plate.save(&qp).unwrap();
+    let img = load(&pp, &LoadOptions::default()).unwrap();
+    let clean = load(&qp, &LoadOptions::default()).unwrap();
+    let with = find_spots(&img, Some(&clean), &SpotOptions::default(), None).unwrap();
+    assert_eq!(with.polarity, beadline::background::Polarity::Dark);
+    let s = score(&with, &photo.truth);
+    assert_eq!((s.found, s.false_spots), (s.expected, 0));
+    assert!(s.isolated_rms_px < 0.2, "{}", s.isolated_rms_px);
+    // Without the plate the images are below the texture: far fewer are found.
+    let without = find_spots(&img, None, &SpotOptions::default(), None).unwrap();
+    assert!(score(&without, &photo.truth).found < s.expected / 2);
+}

@@ -132,6 +132,18 @@ const STREAK_STEP_PX: f64 = 0.5;
 /// Render a scene.
 #[must_use]
 pub fn render(scene: &Scene) -> Rendered {
+    render_with(scene, true)
+}
+
+/// Render the scene's clean plate: the same exposure, backdrop, rig and distractors without the
+/// ball (its images, mirror images and ambient streak), with its own sensor noise. The truth is
+/// the photo's, so a plate and its photo go together.
+#[must_use]
+pub fn render_plate(scene: &Scene) -> Rendered {
+    render_with(scene, false)
+}
+
+fn render_with(scene: &Scene, with_ball: bool) -> Rendered {
     let cam = &scene.camera;
     let proj = Projection::new(cam);
     let times = scene.strobe.flash_times_s();
@@ -194,6 +206,9 @@ pub fn render(scene: &Scene) -> Rendered {
                 t - dur / 2.0 + dur * (k as f64 + 0.5) / subs as f64
             };
             let (ms, cs, rs) = image_of(ts);
+            if !with_ball {
+                continue;
+            }
             stamps.push(Stamp {
                 x_px: cs[0],
                 y_px: cs[1],
@@ -246,7 +261,7 @@ pub fn render(scene: &Scene) -> Rendered {
         });
     }
     // Ambient streak: the ball lit by ambient light along its whole path during the exposure.
-    if p.ambient_exposure > 0.0 {
+    if with_ball && p.ambient_exposure > 0.0 {
         let t0 = scene.strobe.first_flash_s;
         let mut samples = Vec::new();
         let mut t = t0;
@@ -335,7 +350,11 @@ pub fn render(scene: &Scene) -> Rendered {
             full_well_e: p.full_well_e,
             read_noise_e: p.read_noise_e,
             srgb: p.tone == Tone::Srgb,
-            seed: seed ^ 0x00C0_FFEE,
+            seed: if with_ball {
+                seed ^ 0x00C0_FFEE
+            } else {
+                seed ^ 0x0091_A7E5
+            },
         },
     );
     let truth = Truth {
