@@ -86,18 +86,25 @@ pub struct SpotOptions {
     /// Refuse photos with more candidate blobs than this (noise or texture, not a strobe photo).
     pub max_candidates: usize,
     /// Systematic 1-sigma of the centres from edge location on a lit sphere, as pixels x radius:
-    /// sigma_sys = this / r_px, reported once per photo beside the spots' own (random) sigma.
-    /// It is common to all images of one ball under one light, so it cancels in differences
-    /// (velocities, accelerations) and is kept out of the path and physics weights. The limb of a shaded ball
-    /// is not a clean step, and its gradient maximum moves inside where the rim is dim, which
-    /// pulls the centre towards the light by up to about twice this (measured on the rendered bench
-    /// suite: up to 0.1 px at r = 8 px, 0.01-0.03 px at r = 20 px, depending on the light).
+    /// sigma_sys = this x max(1 / r, SMALL_BALL_R_PX / r^2), reported once per photo beside the
+    /// spots' own (random) sigma. It is common to all images of one ball under one light, so it
+    /// cancels in differences (velocities, accelerations) and is kept out of the path and physics
+    /// weights. The limb of a shaded ball is not a clean step: where the rim is dim, the smoothed
+    /// gradient of the shading inside merges with the step's and its maximum moves inwards, which
+    /// pulls the centre towards the light. Below about 16 px radius the dim rim's flat band is
+    /// narrower than the edge filter and the pull grows as 1 / r^2 (measured on the rendered bench
+    /// suite, flash 27 degrees off the lens axis, per axis: 0.13 px at r = 8, 0.05 px at r = 14,
+    /// 0.02 px at r = 18, 0.01 px at r = 24; other lights differ, hence a sigma, not a correction).
     pub systematic_px_r: f64,
     /// All images show one ball, so they share one radius (or a smooth radius model across the
     /// photo): short rims keep that radius and other radii are rejected. False for photos of
     /// several objects of different sizes.
     pub one_radius: bool,
 }
+
+/// Radius below which the lit-sphere edge bias grows as 1 / r^2 instead of 1 / r, pixels (see
+/// [`SpotOptions::systematic_px_r`]).
+pub const SMALL_BALL_R_PX: f64 = 16.0;
 
 impl Default for SpotOptions {
     fn default() -> Self {
@@ -283,7 +290,8 @@ pub fn find_spots(
     at_centre.sort_by(f64::total_cmp);
     let common = at_centre[at_centre.len() / 2];
     report.common_radius_px = Some(common);
-    report.systematic_px = options.systematic_px_r / common.max(1.0);
+    let r = common.max(1.0);
+    report.systematic_px = options.systematic_px_r * (1.0 / r).max(SMALL_BALL_R_PX / (r * r));
     report.radius_model = Some(model);
     // Pass 2: from the first fits, holding the common radius where the rim is short.
     let fits: Vec<CircleFit> = regions
