@@ -180,13 +180,24 @@ fn median(v: &mut [f32]) -> f32 {
     *m
 }
 
-/// Robust sigma: 1.4826 x median absolute deviation about the median.
+/// Robust sigma: 1.4826 x median absolute deviation about the median. Quantised data (two JPEGs
+/// of one scene, where most differences are exactly 0) can have a zero median deviation while
+/// the noise is not zero: then the mean absolute deviation of the central 98 % x sqrt(pi / 2)
+/// (its Gaussian scale factor) is used instead.
 pub fn robust_sigma(values: &mut [f32]) -> f32 {
     let m = median(values);
     for v in values.iter_mut() {
         *v = (*v - m).abs();
     }
-    1.4826 * median(values)
+    let mad = median(values);
+    if mad > 0.0 || values.is_empty() {
+        return 1.4826 * mad;
+    }
+    let k = (values.len() - 1) * 98 / 100;
+    values.select_nth_unstable_by(k, f32::total_cmp);
+    let central = &values[..=k];
+    let mean = central.iter().map(|&v| v as f64).sum::<f64>() / central.len() as f64;
+    (std::f64::consts::FRAC_PI_2.sqrt() * mean) as f32
 }
 
 /// Automatic cell side for an image: about 48 cells across the short side, 16..128 px.
@@ -404,5 +415,41 @@ fn fill_holes(values: &mut [Option<f32>], cols: usize, rows: usize) {
         for (i, v) in updates {
             values[i] = Some(v);
         }
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::robust_sigma;
+
+    #[test]
+    fn robust_sigma_of_gaussian_noise_and_of_quantised_noise() {
+        // 1.4826 x MAD is the standard deviation of a Gaussian (the consistency constant,
+        // 1 / Phi^-1(3/4)). Gaussian samples by the Box-Muller transform from a fixed sequence.
+        let n = 20_000;
+        let mut g: Vec<f32> = (0..n)
+            .map(|i| {
+                let u1 = (i as f64 + 0.5) / n as f64;
+                let u2 = ((i * 7919) % n) as f64 / n as f64;
+                ((-2.0 * u1.ln()).sqrt() * (2.0 * std::f64::consts::PI * u2).cos() * 0.01) as f32
+            })
+            .collect();
+        let s = robust_sigma(&mut g);
+        assert!((s - 0.01).abs() < 0.0005, "{s}");
+        // The same noise quantised to steps of 0.02: most values are 0, the MAD is 0, and the
+        // fallback still sees the noise (sample standard deviation of the quantised values
+        // 0.0065 here).
+        let mut q: Vec<f32> = (0..n)
+            .map(|i| {
+                let u1 = (i as f64 + 0.5) / n as f64;
+                let u2 = ((i * 7919) % n) as f64 / n as f64;
+                let v = (-2.0 * u1.ln()).sqrt() * (2.0 * std::f64::consts::PI * u2).cos() * 0.01;
+                ((v / 0.02).round() * 0.02) as f32
+            })
+            .collect();
+        let mean = q.iter().map(|&v| v as f64).sum::<f64>() / n as f64;
+        let sd = (q.iter().map(|&v| (v as f64 - mean).powi(2)).sum::<f64>() / n as f64).sqrt();
+        let s = robust_sigma(&mut q) as f64;
+        assert!(s > 0.5 * sd && s < 1.5 * sd, "{s} vs {sd}");
     }
 }

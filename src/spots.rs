@@ -106,6 +106,15 @@ pub struct SpotOptions {
 /// [`SpotOptions::systematic_px_r`]).
 pub const SMALL_BALL_R_PX: f64 = 16.0;
 
+/// A rim is weak when its RMS residual exceeds `max_rms_px` or this many times the median RMS
+/// of the photo's well-covered images (rim coverage at least [`WELL_COVERED`]), whichever is
+/// larger.
+pub const RMS_OVER_MEDIAN: f64 = 2.5;
+
+/// Rim coverage of an image whose fit speaks for the photo: it sets the common radius and the
+/// rim RMS that noise gives (partial arcs on texture or on straight edges stay below it).
+pub const WELL_COVERED: f64 = 0.7;
+
 impl Default for SpotOptions {
     fn default() -> Self {
         SpotOptions {
@@ -269,7 +278,7 @@ pub fn find_spots(
     let mut good: Vec<refine::Circle> = first
         .iter()
         .flatten()
-        .filter(|f| f.coverage >= 0.7 && f.circle.r_px >= r_min && f.circle.r_px <= r_max)
+        .filter(|f| f.coverage >= WELL_COVERED && f.circle.r_px >= r_min && f.circle.r_px <= r_max)
         .map(|f| f.circle)
         .collect();
     if good.is_empty() {
@@ -347,17 +356,25 @@ pub fn find_spots(
             unique.push(f);
         }
     }
-    let mut strengths: Vec<f64> = unique
+    let plausible: Vec<&CircleFit> = unique
         .iter()
         .filter(|f| {
             let r = model.at(f.circle.x_px, f.circle.y_px);
             f.coverage >= options.min_score
                 && (f.circle.r_px - r).abs() <= options.radius_tolerance * r
         })
-        .map(|f| f.edge_strength)
         .collect();
-    strengths.sort_by(f64::total_cmp);
-    let median_strength = strengths.get(strengths.len() / 2).copied().unwrap_or(0.0);
+    let median_of = |mut v: Vec<f64>| {
+        v.sort_by(f64::total_cmp);
+        v.get(v.len() / 2).copied().unwrap_or(0.0)
+    };
+    let median_strength = median_of(plausible.iter().map(|f| f.edge_strength).collect());
+    // Faint images (a dark ball against its clean plate, JPEG noise) have noisier rims than
+    // the fixed limit allows; a shape that is not round stands out from the photo's own images.
+    let well_covered = plausible.iter().filter(|f| f.coverage >= WELL_COVERED);
+    let rms_limit = options
+        .max_rms_px
+        .max(RMS_OVER_MEDIAN * median_of(well_covered.map(|f| f.rms_px).collect()));
     let kept_before: Vec<CircleFit> = unique.clone();
     for f in unique {
         let c = f.circle;
@@ -380,7 +397,7 @@ pub fn find_spots(
                 > options.radius_tolerance * model.at(c.x_px, c.y_px)
         {
             Some(Reason::Radius)
-        } else if f.coverage < options.min_score || f.rms_px > options.max_rms_px {
+        } else if f.coverage < options.min_score || f.rms_px > rms_limit {
             Some(Reason::WeakRim)
         } else if f.edge_strength < options.faint_fraction * median_strength {
             Some(Reason::Faint)
