@@ -213,6 +213,10 @@ struct DetectArgs {
     /// Gaussian smoothing before edges, pixels.
     #[arg(long, default_value_t = 0.7)]
     smooth: f32,
+    /// Lighter smoothing on which strong rims' edge points are placed, pixels (--smooth or more:
+    /// off).
+    #[arg(long, default_value_t = 0.3)]
+    fine_smooth: f32,
     /// Edge points need a gradient above this many noise sigmas.
     #[arg(long, default_value_t = 4.0)]
     edge_sigma: f32,
@@ -503,6 +507,10 @@ impl DetectArgs {
             bail!("--smooth: must be 0..10 px, got {}", self.smooth);
         }
         o.hough.smooth_px = self.smooth;
+        if !(self.fine_smooth.is_finite() && (0.0..=10.0).contains(&self.fine_smooth)) {
+            bail!("--fine-smooth: must be 0..10 px, got {}", self.fine_smooth);
+        }
+        o.hough.fine_smooth_px = self.fine_smooth;
         positive(self.edge_sigma as f64, "--edge-sigma")?;
         o.hough.edge_k_sigma = self.edge_sigma;
         fraction(self.min_score, "--min-score")?;

@@ -8,7 +8,9 @@
 //! with the Sobel operator, thinned by non-maximum suppression along the gradient, and each edge
 //! point is placed at sub-pixel precision by a parabola through the gradient magnitude across the
 //! edge (after Devernay, "A non-maxima suppression method for edge detection with sub-pixel
-//! accuracy", INRIA RR-2724, 1995). Every edge point then votes, with bilinear splatting, for the
+//! accuracy", INRIA RR-2724, 1995). Where the rims are strong (median edge magnitude at least
+//! `fine_snr` noise sigmas), the points are placed again, by the same parabola, on a lighter
+//! smoothed gradient: less smoothing keeps a lit ball's limb shading from pulling them inwards. Every edge point then votes, with bilinear splatting, for the
 //! centres at distances rmin..rmax along its gradient (the gradient of a bright disc points at its
 //! centre: Kimme, Ballard & Sklansky, "Finding circles by an array of accumulators", CACM 18, 1975).
 //! Peaks are local maxima of the smoothed accumulator within a disc of `nms_fraction` x radius, so
@@ -24,6 +26,11 @@ use image::{ImageBuffer, Luma};
 pub struct HoughOptions {
     /// Gaussian smoothing before differentiation, pixels (sigma).
     pub smooth_px: f32,
+    /// Lighter smoothing on which the edge points of strong rims are placed, pixels (sigma).
+    pub fine_smooth_px: f32,
+    /// A region's rims are strong when the median edge magnitude is this many gradient-noise
+    /// sigmas.
+    pub fine_snr: f64,
     /// Edge points need a gradient above this many robust sigmas of the gradient noise.
     pub edge_k_sigma: f32,
     /// Step between voted radii, pixels.
@@ -38,6 +45,8 @@ impl Default for HoughOptions {
     fn default() -> Self {
         HoughOptions {
             smooth_px: 0.7,
+            fine_smooth_px: 0.3,
+            fine_snr: 20.0,
             edge_k_sigma: 4.0,
             radius_step_px: 1.0,
             nms_fraction: 0.35,
@@ -110,17 +119,79 @@ pub fn prepare_region(
         let luma = &photo.luma[y * photo.width + x0..=y * photo.width + x1];
         raw.extend(luma.iter().zip(&bg_row).map(|(v, g)| sign * (v - g)));
     }
-    let img: ImageBuffer<Luma<f32>, Vec<f32>> =
-        ImageBuffer::from_raw(w as u32, h as u32, raw).expect("crop size matches");
-    // Crops of a long overlapping run can be large: buffers are freed as soon as they are used.
-    let smooth = if options.smooth_px > 0.0 {
-        let s = imageproc::filter::gaussian_blur_f32(&img, options.smooth_px);
-        drop(img);
-        s
+    let (gx, gy, mag) = gradient(&raw, w, h, options.smooth_px);
+    // Noise of one gradient component: robust sigma over the crop (edges are a minority).
+    let mut sample: Vec<f32> = gx.iter().step_by(3).copied().collect();
+    let sigma_g = robust_sigma(&mut sample).max(1e-7);
+    let mut sorted: Vec<f32> = mag.iter().step_by(2).copied().collect();
+    let k = sorted.len().saturating_sub(1) * 995 / 1000;
+    let strong = if sorted.is_empty() {
+        0.0
     } else {
-        img
+        *sorted.select_nth_unstable_by(k, f32::total_cmp).1
     };
-    let d = smooth.into_raw();
+    drop(sorted);
+    let threshold = (options.edge_k_sigma * sigma_g).max(0.08 * strong);
+    let mut edges = Vec::new();
+    let mut at_pixel = Vec::new();
+    for y in 2..h.saturating_sub(2) {
+        for x in 2..w.saturating_sub(2) {
+            let m = mag[y * w + x];
+            if m <= threshold {
+                continue;
+            }
+            let (ux, uy) = ((gx[y * w + x] / m) as f64, (gy[y * w + x] / m) as f64);
+            let Some(offset) = peak_offset(&mag, w, h, x, y, ux, uy) else {
+                continue;
+            };
+            edges.push(EdgePoint {
+                x_px: (x0 + x) as f64 + offset * ux,
+                y_px: (y0 + y) as f64 + offset * uy,
+                ux,
+                uy,
+                magnitude: m,
+            });
+            at_pixel.push((x, y));
+        }
+    }
+    drop((gx, gy, mag));
+    // Strong rims: place the points again on a less smoothed gradient. The shading just inside
+    // a lit sphere's limb blurs into the step under heavy smoothing and moves the gradient peak
+    // inwards where the rim is dim; lighter smoothing keeps them apart (the detection above
+    // stays on the smoother gradient, which is what faint rims need).
+    if options.fine_smooth_px < options.smooth_px && !edges.is_empty() {
+        let mut m: Vec<f32> = edges.iter().map(|e| e.magnitude).collect();
+        let mid = m.len() / 2;
+        let snr = *m.select_nth_unstable_by(mid, f32::total_cmp).1 / sigma_g;
+        if snr as f64 >= options.fine_snr {
+            let (_, _, fine) = gradient(&raw, w, h, options.fine_smooth_px);
+            for (e, &(px, py)) in edges.iter_mut().zip(&at_pixel) {
+                if let Some(offset) = peak_offset(&fine, w, h, px, py, e.ux, e.uy) {
+                    e.x_px = (x0 + px) as f64 + offset * e.ux;
+                    e.y_px = (y0 + py) as f64 + offset * e.uy;
+                }
+            }
+        }
+    }
+    Region {
+        x0,
+        y0,
+        width: w,
+        height: h,
+        edges,
+    }
+}
+
+/// Smoothed (Gaussian, sigma in pixels; 0 = none) Sobel gradient of a crop: x, y components and
+/// magnitude, luma per pixel.
+fn gradient(raw: &[f32], w: usize, h: usize, sigma_px: f32) -> (Vec<f32>, Vec<f32>, Vec<f32>) {
+    let d: Vec<f32> = if sigma_px > 0.0 {
+        let img: ImageBuffer<Luma<f32>, Vec<f32>> =
+            ImageBuffer::from_raw(w as u32, h as u32, raw.to_vec()).expect("crop size matches");
+        imageproc::filter::gaussian_blur_f32(&img, sigma_px).into_raw()
+    } else {
+        raw.to_vec()
+    };
     let mut gx = vec![0f32; w * h];
     let mut gy = vec![0f32; w * h];
     if w >= 3 && h >= 3 {
@@ -139,22 +210,26 @@ pub fn prepare_region(
         }
     }
     drop(d);
-    let mag: Vec<f32> = gx
+    let mag = gx
         .iter()
         .zip(&gy)
         .map(|(a, b)| (a * a + b * b).sqrt())
         .collect();
-    // Noise of one gradient component: robust sigma over the crop (edges are a minority).
-    let mut sample: Vec<f32> = gx.iter().step_by(3).copied().collect();
-    let sigma_g = robust_sigma(&mut sample).max(1e-7);
-    let mut sorted: Vec<f32> = mag.iter().step_by(2).copied().collect();
-    let k = sorted.len().saturating_sub(1) * 995 / 1000;
-    let strong = if sorted.is_empty() {
-        0.0
-    } else {
-        *sorted.select_nth_unstable_by(k, f32::total_cmp).1
-    };
-    let threshold = (options.edge_k_sigma * sigma_g).max(0.08 * strong);
+    (gx, gy, mag)
+}
+
+/// Sub-pixel offset along the unit direction (ux, uy) of the gradient-magnitude peak at pixel
+/// (x, y), from a parabola through the magnitude there and one pixel before and after
+/// (bilinear); None when (x, y) is not a peak along that direction.
+fn peak_offset(
+    mag: &[f32],
+    w: usize,
+    h: usize,
+    x: usize,
+    y: usize,
+    ux: f64,
+    uy: f64,
+) -> Option<f64> {
     let interp = |x: f64, y: f64| -> f32 {
         let (fx, fy) = (x.floor(), y.floor());
         if fx < 0.0 || fy < 0.0 || fx as usize + 1 >= w || fy as usize + 1 >= h {
@@ -166,42 +241,19 @@ pub fn prepare_region(
         (v(ix, iy) * (1.0 - ax) + v(ix + 1, iy) * ax) * (1.0 - ay)
             + (v(ix, iy + 1) * (1.0 - ax) + v(ix + 1, iy + 1) * ax) * ay
     };
-    let mut edges = Vec::new();
-    for y in 2..h.saturating_sub(2) {
-        for x in 2..w.saturating_sub(2) {
-            let m = mag[y * w + x];
-            if m <= threshold {
-                continue;
-            }
-            let (ux, uy) = ((gx[y * w + x] / m) as f64, (gy[y * w + x] / m) as f64);
-            let (xf, yf) = (x as f64, y as f64);
-            let before = interp(xf - ux, yf - uy);
-            let after = interp(xf + ux, yf + uy);
-            if m < before || m <= after {
-                continue;
-            }
-            let denom = before - 2.0 * m + after;
-            let offset = if denom < 0.0 {
-                (0.5 * (before - after) / denom).clamp(-0.5, 0.5) as f64
-            } else {
-                0.0
-            };
-            edges.push(EdgePoint {
-                x_px: (x0 + x) as f64 + offset * ux,
-                y_px: (y0 + y) as f64 + offset * uy,
-                ux,
-                uy,
-                magnitude: m,
-            });
-        }
+    let m = mag[y * w + x];
+    let (xf, yf) = (x as f64, y as f64);
+    let before = interp(xf - ux, yf - uy);
+    let after = interp(xf + ux, yf + uy);
+    if m < before || m <= after {
+        return None;
     }
-    Region {
-        x0,
-        y0,
-        width: w,
-        height: h,
-        edges,
-    }
+    let denom = before - 2.0 * m + after;
+    Some(if denom < 0.0 {
+        (0.5 * (before - after) / denom).clamp(-0.5, 0.5) as f64
+    } else {
+        0.0
+    })
 }
 
 /// Vote for centres of circles with radii in `r_min_px..r_max_px` and return the peaks, strongest

@@ -93,8 +93,9 @@ pub struct SpotOptions {
     /// gradient of the shading inside merges with the step's and its maximum moves inwards, which
     /// pulls the centre towards the light. Below about 16 px radius the dim rim's flat band is
     /// narrower than the edge filter and the pull grows as 1 / r^2 (measured on the rendered bench
-    /// suite, flash 27 degrees off the lens axis, per axis: 0.13 px at r = 8, 0.05 px at r = 14,
-    /// 0.02 px at r = 18, 0.01 px at r = 24; other lights differ, hence a sigma, not a correction).
+    /// suite, flash 27 degrees off the lens axis, per axis: 0.10 px at r = 8, 0.09 px at r = 10,
+    /// 0.03 px at r = 14, 0.01 px at r = 18-24; other lights differ, hence a sigma, not a
+    /// correction).
     pub systematic_px_r: f64,
     /// All images show one ball, so they share one radius (or a smooth radius model across the
     /// photo): short rims keep that radius and other radii are rejected. False for photos of

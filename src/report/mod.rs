@@ -38,6 +38,8 @@ pub struct SpotSettings {
     pub noise_sigma: f32,
     /// Smoothing before the gradient, pixels.
     pub smooth_px: f32,
+    /// Lighter smoothing on which strong rims' edge points are placed, pixels.
+    pub fine_smooth_px: f32,
     /// Smallest rim coverage kept.
     pub min_score: f64,
     /// Radius tolerance around the common radius (fraction).
@@ -96,6 +98,7 @@ impl SpotsDoc {
                 threshold_level: report.threshold_level,
                 noise_sigma: report.noise_sigma,
                 smooth_px: options.hough.smooth_px,
+                fine_smooth_px: options.hough.fine_smooth_px,
                 min_score: options.min_score,
                 radius_tolerance: options.radius_tolerance,
                 faint_fraction: options.faint_fraction,
