@@ -213,10 +213,10 @@ struct DetectArgs {
     /// Gaussian smoothing before edges, pixels.
     #[arg(long, default_value_t = 0.7)]
     smooth: f32,
-    /// Lighter smoothing on which strong rims' edge points are placed, pixels (--smooth or more:
-    /// off).
-    #[arg(long, default_value_t = 0.3)]
-    fine_smooth: f32,
+    /// Rims whose median edge is this many noise sigmas have their points placed on the
+    /// unsmoothed gradient (0: all rims; a huge value: none).
+    #[arg(long, default_value_t = 20.0)]
+    fine_snr: f64,
     /// Edge points need a gradient above this many noise sigmas.
     #[arg(long, default_value_t = 4.0)]
     edge_sigma: f32,
@@ -507,10 +507,10 @@ impl DetectArgs {
             bail!("--smooth: must be 0..10 px, got {}", self.smooth);
         }
         o.hough.smooth_px = self.smooth;
-        if !(self.fine_smooth.is_finite() && (0.0..=10.0).contains(&self.fine_smooth)) {
-            bail!("--fine-smooth: must be 0..10 px, got {}", self.fine_smooth);
+        if !(self.fine_snr.is_finite() && self.fine_snr >= 0.0) {
+            bail!("--fine-snr: must be 0 or more, got {}", self.fine_snr);
         }
-        o.hough.fine_smooth_px = self.fine_smooth;
+        o.hough.fine_snr = self.fine_snr;
         positive(self.edge_sigma as f64, "--edge-sigma")?;
         o.hough.edge_k_sigma = self.edge_sigma;
         fraction(self.min_score, "--min-score")?;

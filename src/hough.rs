@@ -9,8 +9,9 @@
 //! point is placed at sub-pixel precision by a parabola through the gradient magnitude across the
 //! edge (after Devernay, "A non-maxima suppression method for edge detection with sub-pixel
 //! accuracy", INRIA RR-2724, 1995). Where the rims are strong (median edge magnitude at least
-//! `fine_snr` noise sigmas), the points are placed again, by the same parabola, on a lighter
-//! smoothed gradient: less smoothing keeps a lit ball's limb shading from pulling them inwards. Every edge point then votes, with bilinear splatting, for the
+//! `fine_snr` noise sigmas), the points are placed again, by the same parabola, on the gradient
+//! of the unsmoothed difference: without smoothing, a lit ball's limb shading does not pull them
+//! inwards. Every edge point then votes, with bilinear splatting, for the
 //! centres at distances rmin..rmax along its gradient (the gradient of a bright disc points at its
 //! centre: Kimme, Ballard & Sklansky, "Finding circles by an array of accumulators", CACM 18, 1975).
 //! Peaks are local maxima of the smoothed accumulator within a disc of `nms_fraction` x radius, so
@@ -26,14 +27,12 @@ use image::{ImageBuffer, Luma};
 pub struct HoughOptions {
     /// Gaussian smoothing before differentiation, pixels (sigma).
     pub smooth_px: f32,
-    /// Lighter smoothing on which the edge points of strong rims are placed, pixels (sigma).
-    pub fine_smooth_px: f32,
     /// A region's rims are strong when the median edge magnitude is this many gradient-noise
-    /// sigmas.
+    /// sigmas: their points are then placed on the unsmoothed gradient.
     pub fine_snr: f64,
     /// Edge points need a gradient above this many robust sigmas of the gradient noise.
     pub edge_k_sigma: f32,
-    /// Step between voted radii, pixels.
+    /// Step between voted radii, pixels (at least [`LARGE_STEP_FRACTION`] of the radius).
     pub radius_step_px: f64,
     /// Peaks are maxima within this fraction of the radius.
     pub nms_fraction: f64,
@@ -45,7 +44,6 @@ impl Default for HoughOptions {
     fn default() -> Self {
         HoughOptions {
             smooth_px: 0.7,
-            fine_smooth_px: 0.3,
             fine_snr: 20.0,
             edge_k_sigma: 4.0,
             radius_step_px: 1.0,
@@ -54,6 +52,9 @@ impl Default for HoughOptions {
         }
     }
 }
+
+/// Smallest step between voted radii as a fraction of the radius (2 px at 80 px).
+pub const LARGE_STEP_FRACTION: f64 = 0.025;
 
 /// A sub-pixel edge point; the unit gradient points into the ball (to brighter difference).
 #[derive(Debug, Clone, Copy, PartialEq)]
@@ -141,7 +142,7 @@ pub fn prepare_region(
                 continue;
             }
             let (ux, uy) = ((gx[y * w + x] / m) as f64, (gy[y * w + x] / m) as f64);
-            let Some(offset) = peak_offset(&mag, w, h, x, y, ux, uy) else {
+            let Some(offset) = peak_offset(|i, j| mag[j * w + i], w, h, x, y, ux, uy) else {
                 continue;
             };
             edges.push(EdgePoint {
@@ -155,18 +156,18 @@ pub fn prepare_region(
         }
     }
     drop((gx, gy, mag));
-    // Strong rims: place the points again on a less smoothed gradient. The shading just inside
+    // Strong rims: place the points again on the unsmoothed gradient. The shading just inside
     // a lit sphere's limb blurs into the step under heavy smoothing and moves the gradient peak
-    // inwards where the rim is dim; lighter smoothing keeps them apart (the detection above
+    // inwards where the rim is dim; no smoothing keeps them apart (the detection above
     // stays on the smoother gradient, which is what faint rims need).
-    if options.fine_smooth_px < options.smooth_px && !edges.is_empty() {
+    if !edges.is_empty() {
         let mut m: Vec<f32> = edges.iter().map(|e| e.magnitude).collect();
         let mid = m.len() / 2;
         let snr = *m.select_nth_unstable_by(mid, f32::total_cmp).1 / sigma_g;
         if snr as f64 >= options.fine_snr {
-            let (_, _, fine) = gradient(&raw, w, h, options.fine_smooth_px);
             for (e, &(px, py)) in edges.iter_mut().zip(&at_pixel) {
-                if let Some(offset) = peak_offset(&fine, w, h, px, py, e.ux, e.uy) {
+                let fine = |i, j| raw_magnitude(&raw, w, h, i, j);
+                if let Some(offset) = peak_offset(fine, w, h, px, py, e.ux, e.uy) {
                     e.x_px = (x0 + px) as f64 + offset * e.ux;
                     e.y_px = (y0 + py) as f64 + offset * e.uy;
                 }
@@ -218,11 +219,23 @@ fn gradient(raw: &[f32], w: usize, h: usize, sigma_px: f32) -> (Vec<f32>, Vec<f3
     (gx, gy, mag)
 }
 
+/// Sobel gradient magnitude of the unsmoothed crop at one pixel (0 on the border).
+fn raw_magnitude(raw: &[f32], w: usize, h: usize, x: usize, y: usize) -> f32 {
+    if x == 0 || y == 0 || x + 1 >= w || y + 1 >= h {
+        return 0.0;
+    }
+    let p = |dx: usize, dy: usize| raw[(y + dy - 1) * w + x + dx - 1];
+    let gx = (p(2, 0) + 2.0 * p(2, 1) + p(2, 2) - p(0, 0) - 2.0 * p(0, 1) - p(0, 2)) / 8.0;
+    let gy = (p(0, 2) + 2.0 * p(1, 2) + p(2, 2) - p(0, 0) - 2.0 * p(1, 0) - p(2, 0)) / 8.0;
+    (gx * gx + gy * gy).sqrt()
+}
+
 /// Sub-pixel offset along the unit direction (ux, uy) of the gradient-magnitude peak at pixel
 /// (x, y), from a parabola through the magnitude there and one pixel before and after
-/// (bilinear); None when (x, y) is not a peak along that direction.
+/// (bilinear); None when (x, y) is not a peak along that direction. `mag(x, y)` gives the
+/// magnitude at a pixel of the w x h crop.
 fn peak_offset(
-    mag: &[f32],
+    mag: impl Fn(usize, usize) -> f32,
     w: usize,
     h: usize,
     x: usize,
@@ -237,11 +250,10 @@ fn peak_offset(
         }
         let (ix, iy) = (fx as usize, fy as usize);
         let (ax, ay) = ((x - fx) as f32, (y - fy) as f32);
-        let v = |i: usize, j: usize| mag[j * w + i];
-        (v(ix, iy) * (1.0 - ax) + v(ix + 1, iy) * ax) * (1.0 - ay)
-            + (v(ix, iy + 1) * (1.0 - ax) + v(ix + 1, iy + 1) * ax) * ay
+        (mag(ix, iy) * (1.0 - ax) + mag(ix + 1, iy) * ax) * (1.0 - ay)
+            + (mag(ix, iy + 1) * (1.0 - ax) + mag(ix + 1, iy + 1) * ax) * ay
     };
-    let m = mag[y * w + x];
+    let m = mag(x, y);
     let (xf, yf) = (x as f64, y as f64);
     let before = interp(xf - ux, yf - uy);
     let after = interp(xf + ux, yf + uy);
@@ -268,7 +280,12 @@ pub fn vote(
 ) -> (Vec<Candidate>, Vec<f32>) {
     let (w, h) = (region.width, region.height);
     let mut acc = vec![0f32; w * h];
-    let steps = (((r_max_px - r_min_px) / options.radius_step_px).ceil() as usize).max(1);
+    // Votes of neighbouring radii land within the 3 x 3 box below up to about 1.5 px apart, so
+    // large balls can use a coarser step.
+    let step_px = options
+        .radius_step_px
+        .max(LARGE_STEP_FRACTION * 0.5 * (r_min_px + r_max_px));
+    let steps = (((r_max_px - r_min_px) / step_px).ceil() as usize).max(1);
     // Radius histogram per accumulator cell is too costly; keep the vote-weighted mean radius.
     let mut rsum = vec![0f32; w * h];
     let radii: Vec<f64> = (0..=steps)

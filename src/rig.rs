@@ -55,8 +55,8 @@ pub struct Profile {
     pub background_cell_px: Option<i64>,
     /// `--smooth`, pixels.
     pub smooth_px: Option<f64>,
-    /// `--fine-smooth`, pixels.
-    pub fine_smooth_px: Option<f64>,
+    /// `--fine-snr`.
+    pub fine_snr: Option<f64>,
     /// `--edge-sigma`.
     pub edge_sigma: Option<f64>,
     /// `--min-score`.
@@ -106,7 +106,7 @@ pub const PROFILE_KEYS: &[(&str, &str)] = &[
     ("threshold_level", "--threshold-level"),
     ("background_cell_px", "--background-cell"),
     ("smooth_px", "--smooth"),
-    ("fine_smooth_px", "--fine-smooth"),
+    ("fine_snr", "--fine-snr"),
     ("edge_sigma", "--edge-sigma"),
     ("min_score", "--min-score"),
     ("radius_tolerance", "--radius-tolerance"),
@@ -216,7 +216,7 @@ impl Profile {
             ("--threshold-sigma", self.threshold_sigma),
             ("--threshold-level", self.threshold_level),
             ("--smooth", self.smooth_px),
-            ("--fine-smooth", self.fine_smooth_px),
+            ("--fine-snr", self.fine_snr),
             ("--edge-sigma", self.edge_sigma),
             ("--min-score", self.min_score),
             ("--radius-tolerance", self.radius_tolerance),

@@ -93,29 +93,27 @@ pub fn find_blobs(photo: &Photo, background: &Background, options: &ThresholdOpt
     let sign = background.polarity.sign();
     // Block sums of the photo alone (one cheap pass over the pixels), then the background's mean
     // over each block subtracted: the mean of a difference is the difference of the means.
-    let means: Vec<f32> = (0..bh)
-        .into_par_iter()
-        .flat_map_iter(|by| {
-            let mut row = vec![0f32; bw];
-            let y0 = by * b;
-            let y1 = (y0 + b).min(h);
-            for y in y0..y1 {
-                let luma = &photo.luma[y * w..(y + 1) * w];
-                for (cell, chunk) in row.iter_mut().zip(luma.chunks(b)) {
-                    *cell += chunk.iter().sum::<f32>();
-                }
+    let mut means = vec![0f32; bw * bh];
+    means.par_chunks_mut(bw).enumerate().for_each(|(by, row)| {
+        let y0 = by * b;
+        let y1 = (y0 + b).min(h);
+        for y in y0..y1 {
+            let luma = &photo.luma[y * w..(y + 1) * w];
+            for (cell, chunk) in row.iter_mut().zip(luma.chunks(b)) {
+                *cell += chunk.iter().sum::<f32>();
             }
-            for (bx, v) in row.iter_mut().enumerate() {
-                let (x0, x1) = (bx * b, (bx * b + b).min(w));
-                let n = ((x1 - x0) * (y1 - y0)) as f32;
-                *v = sign * (*v / n - background.block_mean(x0, y0, x1, y1));
-            }
-            row
-        })
-        .collect();
+        }
+        for (bx, v) in row.iter_mut().enumerate() {
+            let (x0, x1) = (bx * b, (bx * b + b).min(w));
+            let n = ((x1 - x0) * (y1 - y0)) as f32;
+            *v = sign * (*v / n - background.block_mean(x0, y0, x1, y1));
+        }
+    });
     let level_of = |v: &[f32]| {
         options.level.unwrap_or_else(|| {
-            let mut sample: Vec<f32> = v.iter().step_by(3).copied().collect();
+            // About 100 000 samples are plenty for a robust sigma.
+            let step = (v.len() / 100_000).max(3);
+            let mut sample: Vec<f32> = v.iter().step_by(step).copied().collect();
             options.k_sigma * robust_sigma(&mut sample).max(1e-6)
         })
     };
@@ -173,11 +171,11 @@ pub fn find_blobs(photo: &Photo, background: &Background, options: &ThresholdOpt
     }
 }
 
-/// 3 x 3 box mean over a grid (edges use the cells inside).
+/// 3 x 3 box mean over a grid (edges use the cells inside), rows in parallel.
 fn box3(v: &[f32], w: usize, h: usize) -> Vec<f32> {
     let mut out = vec![0f32; v.len()];
-    for y in 0..h {
-        for x in 0..w {
+    out.par_chunks_mut(w).enumerate().for_each(|(y, row)| {
+        for (x, o) in row.iter_mut().enumerate() {
             let (mut s, mut n) = (0f32, 0f32);
             for yy in y.saturating_sub(1)..=(y + 1).min(h - 1) {
                 for xx in x.saturating_sub(1)..=(x + 1).min(w - 1) {
@@ -185,8 +183,8 @@ fn box3(v: &[f32], w: usize, h: usize) -> Vec<f32> {
                     n += 1.0;
                 }
             }
-            out[y * w + x] = s / n;
+            *o = s / n;
         }
-    }
+    });
     out
 }

@@ -38,8 +38,8 @@ pub struct SpotSettings {
     pub noise_sigma: f32,
     /// Smoothing before the gradient, pixels.
     pub smooth_px: f32,
-    /// Lighter smoothing on which strong rims' edge points are placed, pixels.
-    pub fine_smooth_px: f32,
+    /// Rims this strong (median edge / noise sigma) have their points placed unsmoothed.
+    pub fine_snr: f64,
     /// Smallest rim coverage kept.
     pub min_score: f64,
     /// Radius tolerance around the common radius (fraction).
@@ -98,7 +98,7 @@ impl SpotsDoc {
                 threshold_level: report.threshold_level,
                 noise_sigma: report.noise_sigma,
                 smooth_px: options.hough.smooth_px,
-                fine_smooth_px: options.hough.fine_smooth_px,
+                fine_snr: options.hough.fine_snr,
                 min_score: options.min_score,
                 radius_tolerance: options.radius_tolerance,
                 faint_fraction: options.faint_fraction,
