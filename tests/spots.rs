@@ -365,6 +365,24 @@ fn the_exif_orientation_of_a_jpeg_is_applied() {
     assert!(photo.at(10, 2) > 0.8 && photo.at(10, 30) < 0.2);
 }
 
+/// Render `scene` and its clean plate as `dir/dark.EXT` and `dir/plate.EXT` and load both back.
+fn photo_and_plate(
+    scene: &Scene,
+    dir: &Path,
+    ext: &str,
+) -> (beadline::load::Photo, beadline::load::Photo, Truth) {
+    let photo = render::render(scene);
+    let (pp, qp) = (
+        dir.join(format!("dark.{ext}")),
+        dir.join(format!("plate.{ext}")),
+    );
+    photo.save(&pp).unwrap();
+    render::render_plate(scene).save(&qp).unwrap();
+    let img = load(&pp, &LoadOptions::default()).unwrap();
+    let clean = load(&qp, &LoadOptions::default()).unwrap();
+    (img, clean, photo.truth)
+}
+
 #[test]
 fn a_dark_ball_under_many_flashes_is_found_against_its_clean_plate() {
     // 37 flashes: each image dims the bright backdrop by only ~1/37 of its level, less than the
@@ -373,34 +391,22 @@ fn a_dark_ball_under_many_flashes_is_found_against_its_clean_plate() {
     let dir = tempfile::tempdir().unwrap();
     let mut scene = Scene::demo();
     scene.photo.polarity = render::scene::Polarity::Dark;
-    let photo = render::render(&scene);
-    let plate = render::render_plate(&scene);
-    let (pp, qp) = (dir.path().join("dark.png"), dir.path().join("plate.png"));
-    photo.save(&pp).unwrap();
-    plate.save(&qp).unwrap();
-    let img = load(&pp, &LoadOptions::default()).unwrap();
-    let clean = load(&qp, &LoadOptions::default()).unwrap();
+    let (img, clean, truth) = photo_and_plate(&scene, dir.path(), "png");
     let with = find_spots(&img, Some(&clean), &SpotOptions::default(), None).unwrap();
     assert_eq!(with.polarity, beadline::background::Polarity::Dark);
-    let s = score(&with, &photo.truth);
+    let s = score(&with, &truth);
     assert_eq!((s.found, s.false_spots), (s.expected, 0));
     assert!(s.isolated_rms_px < 0.2, "{}", s.isolated_rms_px);
     // Without the plate the images are below the texture: far fewer are found.
     let without = find_spots(&img, None, &SpotOptions::default(), None).unwrap();
-    assert!(score(&without, &photo.truth).found < s.expected / 2);
+    assert!(score(&without, &truth).found < s.expected / 2);
     // Both as JPEG (quality 85): the compression error differs between photo and plate where
     // the ball is, so the rims are noisier than the fixed RMS limit; the limit follows the
     // photo's own well-covered images.
     scene.photo.jpeg_quality = 85;
-    let photo = render::render(&scene);
-    let plate = render::render_plate(&scene);
-    let (pj, qj) = (dir.path().join("dark.jpg"), dir.path().join("plate.jpg"));
-    photo.save(&pj).unwrap();
-    plate.save(&qj).unwrap();
-    let img = load(&pj, &LoadOptions::default()).unwrap();
-    let clean = load(&qj, &LoadOptions::default()).unwrap();
+    let (img, clean, truth) = photo_and_plate(&scene, dir.path(), "jpg");
     let jpeg = find_spots(&img, Some(&clean), &SpotOptions::default(), None).unwrap();
-    let s = score(&jpeg, &photo.truth);
+    let s = score(&jpeg, &truth);
     assert!(
         s.found * 10 >= s.expected * 9,
         "{} of {}",
