@@ -198,15 +198,7 @@ fn gradient(raw: &[f32], w: usize, h: usize, sigma_px: f32) -> (Vec<f32>, Vec<f3
     if w >= 3 && h >= 3 {
         for y in 1..h - 1 {
             for x in 1..w - 1 {
-                let p = |dx: isize, dy: isize| {
-                    d[(y as isize + dy) as usize * w + (x as isize + dx) as usize]
-                };
-                gx[y * w + x] =
-                    (p(1, -1) + 2.0 * p(1, 0) + p(1, 1) - p(-1, -1) - 2.0 * p(-1, 0) - p(-1, 1))
-                        / 8.0;
-                gy[y * w + x] =
-                    (p(-1, 1) + 2.0 * p(0, 1) + p(1, 1) - p(-1, -1) - 2.0 * p(0, -1) - p(1, -1))
-                        / 8.0;
+                (gx[y * w + x], gy[y * w + x]) = sobel(&d, w, x, y);
             }
         }
     }
@@ -219,14 +211,21 @@ fn gradient(raw: &[f32], w: usize, h: usize, sigma_px: f32) -> (Vec<f32>, Vec<f3
     (gx, gy, mag)
 }
 
+/// Sobel gradient (x, y), divided by 8, of a row-major image of width `w` at an inner pixel.
+#[inline]
+fn sobel(d: &[f32], w: usize, x: usize, y: usize) -> (f32, f32) {
+    let p = |dx: usize, dy: usize| d[(y + dy - 1) * w + x + dx - 1];
+    let gx = (p(2, 0) + 2.0 * p(2, 1) + p(2, 2) - p(0, 0) - 2.0 * p(0, 1) - p(0, 2)) / 8.0;
+    let gy = (p(0, 2) + 2.0 * p(1, 2) + p(2, 2) - p(0, 0) - 2.0 * p(1, 0) - p(2, 0)) / 8.0;
+    (gx, gy)
+}
+
 /// Sobel gradient magnitude of the unsmoothed crop at one pixel (0 on the border).
 fn raw_magnitude(raw: &[f32], w: usize, h: usize, x: usize, y: usize) -> f32 {
     if x == 0 || y == 0 || x + 1 >= w || y + 1 >= h {
         return 0.0;
     }
-    let p = |dx: usize, dy: usize| raw[(y + dy - 1) * w + x + dx - 1];
-    let gx = (p(2, 0) + 2.0 * p(2, 1) + p(2, 2) - p(0, 0) - 2.0 * p(0, 1) - p(0, 2)) / 8.0;
-    let gy = (p(0, 2) + 2.0 * p(1, 2) + p(2, 2) - p(0, 0) - 2.0 * p(1, 0) - p(2, 0)) / 8.0;
+    let (gx, gy) = sobel(raw, w, x, y);
     (gx * gx + gy * gy).sqrt()
 }
 
