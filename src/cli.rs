@@ -229,6 +229,10 @@ struct DetectArgs {
     /// The round objects differ in size (not images of one ball): no common radius.
     #[arg(long)]
     sizes_differ: bool,
+    /// Isolated images of a ball up to this radius are refined by fitting a lit sphere's image to
+    /// their pixels, pixels (0: edge fit only).
+    #[arg(long, default_value_t = 40.0)]
+    shaded_max_r: f64,
     /// Systematic centre uncertainty of a lit sphere's edge, pixels x radius (common to all images).
     #[arg(long, default_value_t = 0.5)]
     edge_systematic: f64,
@@ -527,6 +531,13 @@ impl DetectArgs {
             );
         }
         o.systematic_px_r = self.edge_systematic;
+        if !(self.shaded_max_r.is_finite() && self.shaded_max_r >= 0.0) {
+            bail!(
+                "--shaded-max-r: must be 0 or more pixels, got {}",
+                self.shaded_max_r
+            );
+        }
+        o.shaded_max_r_px = self.shaded_max_r;
         o.one_radius = !self.sizes_differ;
         o.faint_fraction = self.faint;
         if self.max_candidates == 0 {

@@ -15,6 +15,7 @@
 
 use crate::hough::{Candidate, EdgePoint, Region};
 use nalgebra::{Matrix3, Vector3};
+use std::f64::consts::FRAC_1_SQRT_2;
 
 /// Euclidean length of (dx, dy); pixel distances cannot overflow, so no `hypot` (slow in libm).
 #[inline]
@@ -522,4 +523,392 @@ fn assign(
         }
     }
     owned
+}
+
+/// One pixel of a shaded-sphere fit window.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct WindowPixel {
+    /// Pixel centre x, pixels.
+    pub x_px: f64,
+    /// Pixel centre y, pixels.
+    pub y_px: f64,
+    /// Linear light of the photo minus that of the backdrop.
+    pub value: f64,
+    /// Linear light of the backdrop (minus its window mean), which the ball hides where it covers.
+    pub backdrop: f64,
+}
+
+/// Result of a shaded-sphere fit.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct ShadedFit {
+    /// The silhouette.
+    pub circle: Circle,
+    /// 1-sigma centre uncertainty per axis, pixels.
+    pub sigma_px: f64,
+    /// Direction to the light as (u, v, 1) in the camera frame (x right, y down, z to the lens).
+    pub light_uv: [f64; 2],
+    /// RMS residual, linear light units.
+    pub rms: f64,
+    /// Fraction of the window's pixels kept (not outliers).
+    pub kept: f64,
+    /// The radius was held.
+    pub radius_held: bool,
+}
+
+const SHADED_LINEAR: usize = 4;
+
+/// Linear basis of the shaded-sphere model at one pixel for nonlinear parameters
+/// p = (cx, cy, r, u, v): exact disc coverage, coverage x Lambert term max(0, n . l) with the
+/// sphere's normal at the pixel centre, coverage x backdrop (hidden by the ball), a constant.
+fn shaded_basis(q: &WindowPixel, p: &[f64; 5]) -> [f64; SHADED_LINEAR] {
+    let (dx, dy) = (q.x_px - p[0], q.y_px - p[1]);
+    let d2 = dx * dx + dy * dy;
+    // A pixel lies wholly inside or outside the disc when its centre is more than half its
+    // diagonal from the rim.
+    let (inner, outer) = (p[2] - FRAC_1_SQRT_2, p[2] + FRAC_1_SQRT_2);
+    let cov = if inner > 0.0 && d2 <= inner * inner {
+        1.0
+    } else if d2 >= outer * outer {
+        return [0.0, 0.0, 0.0, 1.0];
+    } else {
+        crate::render::paint::disc_coverage(q.x_px, q.y_px, p[0], p[1], p[2])
+    };
+    if cov <= 0.0 {
+        return [0.0, 0.0, 0.0, 1.0];
+    }
+    let (nx, ny) = (dx / p[2], dy / p[2]);
+    let n2 = nx * nx + ny * ny;
+    let (nx, ny, nz) = if n2 >= 1.0 {
+        let s = n2.sqrt();
+        (nx / s, ny / s, 0.0)
+    } else {
+        (nx, ny, (1.0 - n2).sqrt())
+    };
+    let ln = (p[3] * p[3] + p[4] * p[4] + 1.0).sqrt();
+    let lambert = ((nx * p[3] + ny * p[4] + nz) / ln).max(0.0);
+    [cov, cov * lambert, cov * q.backdrop, 1.0]
+}
+
+/// Residuals of the best linear coefficients for nonlinear parameters `p` (variable projection).
+fn shaded_residuals(window: &[WindowPixel], p: &[f64; 5], out: &mut Vec<f64>) -> Option<f64> {
+    use nalgebra::{SMatrix, SVector};
+    let mut ata = SMatrix::<f64, SHADED_LINEAR, SHADED_LINEAR>::zeros();
+    let mut atb = SVector::<f64, SHADED_LINEAR>::zeros();
+    thread_local! {
+        static BASIS: std::cell::RefCell<Vec<[f64; SHADED_LINEAR]>> =
+            const { std::cell::RefCell::new(Vec::new()) };
+    }
+    BASIS.with_borrow_mut(|basis| {
+        basis.clear();
+        basis.extend(window.iter().map(|q| shaded_basis(q, p)));
+        for (b, q) in basis.iter().zip(window) {
+            let v = SVector::<f64, SHADED_LINEAR>::from_column_slice(b);
+            ata += v * v.transpose();
+            atb += v * q.value;
+        }
+        // A small ridge keeps the solve defined when the backdrop is flat (its column vanishes).
+        let ridge = 1e-9 * (0..SHADED_LINEAR).map(|i| ata[(i, i)]).sum::<f64>();
+        for i in 0..SHADED_LINEAR {
+            ata[(i, i)] += ridge;
+        }
+        let c = ata.cholesky()?.solve(&atb);
+        out.clear();
+        let mut rss = 0.0;
+        for (b, q) in basis.iter().zip(window) {
+            let m: f64 = (0..SHADED_LINEAR).map(|i| b[i] * c[i]).sum();
+            let r = q.value - m;
+            rss += r * r;
+            out.push(r);
+        }
+        Some(rss)
+    })
+}
+
+/// Where a shaded fit ended: the parameters, the residual sum of squares, the residuals and the
+/// Gauss-Newton normal matrix.
+type ShadedState = (
+    [f64; SHADED_NP],
+    f64,
+    Vec<f64>,
+    nalgebra::SMatrix<f64, SHADED_NP, SHADED_NP>,
+);
+
+/// Levenberg-Marquardt on the projected residuals from `p`: the parameters, the residual sum of
+/// squares, the residuals and the Gauss-Newton normal matrix at the end.
+fn shaded_lm(window: &[WindowPixel], mut p: [f64; SHADED_NP], hold_r: bool) -> Option<ShadedState> {
+    use nalgebra::{SMatrix, SVector};
+    const NP: usize = SHADED_NP;
+    let mut res = Vec::with_capacity(window.len());
+    let mut f = shaded_residuals(window, &p, &mut res)?;
+    let mut lambda = 1e-3;
+    let mut trial_res = Vec::with_capacity(window.len());
+    let mut scratch = Vec::with_capacity(window.len());
+    // Jacobian of the projected residuals by forward differences (the coverage is in closed
+    // form, smooth in the parameters), accumulated straight into the normal equations.
+    let mut normal = |p: &[f64; NP], base: &[f64]| {
+        let mut cols = vec![Vec::new(); NP];
+        for (k, col) in cols.iter_mut().enumerate() {
+            if hold_r && k == 2 {
+                *col = vec![0.0; base.len()];
+                continue;
+            }
+            let h = if k < 3 {
+                1e-4
+            } else {
+                1e-4 * (1.0 + p[k].abs())
+            };
+            let mut q = *p;
+            q[k] += h;
+            shaded_residuals(window, &q, &mut scratch)?;
+            *col = scratch.iter().zip(base).map(|(a, b)| (a - b) / h).collect();
+        }
+        let mut jtj = SMatrix::<f64, NP, NP>::zeros();
+        let mut jtr = SVector::<f64, NP>::zeros();
+        for a in 0..NP {
+            jtr[a] = cols[a].iter().zip(base).map(|(j, r)| j * r).sum();
+            for b in a..NP {
+                let v: f64 = cols[a].iter().zip(&cols[b]).map(|(x, y)| x * y).sum();
+                jtj[(a, b)] = v;
+                jtj[(b, a)] = v;
+            }
+        }
+        if hold_r {
+            jtj[(2, 2)] = 1.0;
+        }
+        Some((jtj, jtr))
+    };
+    let (mut jtj, mut jtr) = normal(&p, &res)?;
+    for _ in 0..40 {
+        let mut a = jtj;
+        for i in 0..NP {
+            a[(i, i)] += lambda * jtj[(i, i)].max(1e-12);
+        }
+        let Some(step) = a.lu().solve(&(-jtr)) else {
+            break;
+        };
+        let mut trial = p;
+        for k in 0..NP {
+            trial[k] += step[k];
+        }
+        let ft = if trial[2] > 1.0 && trial.iter().all(|v| v.is_finite()) {
+            shaded_residuals(window, &trial, &mut trial_res)
+        } else {
+            None
+        };
+        match ft {
+            Some(ft) if ft <= f => {
+                let done = (f - ft) <= 1e-6 * f || step.rows(0, 3).norm() < 1e-3;
+                p = trial;
+                std::mem::swap(&mut res, &mut trial_res);
+                f = ft;
+                lambda = (lambda * 0.3).max(1e-9);
+                // The normal matrix one small step back serves the covariance as well.
+                if done {
+                    break;
+                }
+                (jtj, jtr) = normal(&p, &res)?;
+            }
+            _ => {
+                lambda *= 10.0;
+                if lambda > 1e9 {
+                    break;
+                }
+            }
+        }
+    }
+    Some((p, f, res, jtj))
+}
+
+const SHADED_NP: usize = 5;
+
+/// A dense map over the bounding box of a window's pixels (pixel centres are integers).
+struct WindowGrid<T> {
+    x0: i64,
+    y0: i64,
+    w: i64,
+    h: i64,
+    cells: Vec<T>,
+    fill: T,
+}
+
+impl<T: Copy> WindowGrid<T> {
+    fn new(pixels: &[WindowPixel], fill: T) -> WindowGrid<T> {
+        let (mut x0, mut y0, mut x1, mut y1) = (i64::MAX, i64::MAX, i64::MIN, i64::MIN);
+        for q in pixels {
+            let (x, y) = (q.x_px as i64, q.y_px as i64);
+            (x0, y0, x1, y1) = (x0.min(x), y0.min(y), x1.max(x), y1.max(y));
+        }
+        let (w, h) = ((x1 - x0 + 1).max(0), (y1 - y0 + 1).max(0));
+        WindowGrid {
+            x0,
+            y0,
+            w,
+            h,
+            cells: vec![fill; (w * h) as usize],
+            fill,
+        }
+    }
+
+    fn index(&self, q: &WindowPixel, dx: i64, dy: i64) -> Option<usize> {
+        let (x, y) = (q.x_px as i64 + dx - self.x0, q.y_px as i64 + dy - self.y0);
+        (x >= 0 && y >= 0 && x < self.w && y < self.h).then(|| (y * self.w + x) as usize)
+    }
+
+    /// The value at the pixel offset (dx, dy) from q's.
+    fn get(&self, q: &WindowPixel, dx: i64, dy: i64) -> T {
+        self.index(q, dx, dy).map_or(self.fill, |i| self.cells[i])
+    }
+
+    fn set(&mut self, q: &WindowPixel, v: T) {
+        if let Some(i) = self.index(q, 0, 0) {
+            self.cells[i] = v;
+        }
+    }
+}
+
+/// Variance inflation for residuals correlated between neighbouring pixels (JPEG blocks, a
+/// demosaiced sensor): lag-1 correlations along x and along y, AR(1) factor (1 + rho) / (1 - rho)
+/// for each axis.
+fn pixel_correlation_factor(pixels: &[WindowPixel], res: &[f64]) -> f64 {
+    let mut grid = WindowGrid::new(pixels, f64::NAN);
+    for (q, r) in pixels.iter().zip(res) {
+        grid.set(q, *r);
+    }
+    let var: f64 = res.iter().map(|r| r * r).sum::<f64>() / res.len().max(1) as f64;
+    if var <= 0.0 {
+        return 1.0;
+    }
+    let mut factor = 1.0;
+    for (dx, dy) in [(1, 0), (0, 1)] {
+        let (mut sum, mut n) = (0.0, 0usize);
+        for (q, r) in pixels.iter().zip(res) {
+            let s = grid.get(q, dx, dy);
+            if !s.is_nan() {
+                sum += r * s;
+                n += 1;
+            }
+        }
+        if n > 0 {
+            let rho = (sum / n as f64 / var).clamp(0.0, 0.9);
+            factor *= (1.0 + rho) / (1.0 - rho);
+        }
+    }
+    factor
+}
+
+/// Residuals beyond this many robust sigmas are left out of the shaded fit (an edge of the
+/// backdrop that the background estimate does not hold, a neighbouring object).
+const SHADED_OUTLIER_SIGMAS: f64 = 4.0;
+
+/// Pixels within this many pixels (chessboard distance) of a structure of outliers are left out.
+const SHADED_MASK_GROW: i64 = 2;
+
+/// A start for the light direction: with the circle held, the unclamped Lambert term
+/// a + b nx + c ny + d nz is linear in (b, c, d), which is the light direction scaled.
+fn light_start(window: &[WindowPixel], cx: f64, cy: f64, r: f64) -> [f64; 2] {
+    use nalgebra::{SMatrix, SVector};
+    let mut ata = SMatrix::<f64, 6, 6>::zeros();
+    let mut atb = SVector::<f64, 6>::zeros();
+    for q in window {
+        let cov = crate::render::paint::disc_coverage(q.x_px, q.y_px, cx, cy, r);
+        let (nx, ny) = ((q.x_px - cx) / r, (q.y_px - cy) / r);
+        let nz = (1.0 - nx * nx - ny * ny).max(0.0).sqrt();
+        let v = SVector::<f64, 6>::from_column_slice(&[
+            cov,
+            cov * nx,
+            cov * ny,
+            cov * nz,
+            cov * q.backdrop,
+            1.0,
+        ]);
+        ata += v * v.transpose();
+        atb += v * q.value;
+    }
+    let ridge = 1e-9 * ata.trace();
+    for i in 0..6 {
+        ata[(i, i)] += ridge;
+    }
+    match ata.cholesky().map(|c| c.solve(&atb)) {
+        Some(c) if c[3].abs() > 1e-12 => [
+            (c[1] / c[3]).clamp(-3.0, 3.0),
+            (c[2] / c[3]).clamp(-3.0, 3.0),
+        ],
+        _ => [0.0, 0.0],
+    }
+}
+
+/// Fit a Lambertian sphere's image to the pixels of a window around one ball image: the
+/// silhouette (centre, radius) and the light direction are the nonlinear parameters, the
+/// brightness terms are solved linearly at every step (variable projection, Golub & Pereyra,
+/// "The differentiation of pseudo-inverses and nonlinear least squares problems", SIAM J. Numer.
+/// Anal. 10, 1973), the step by Levenberg-Marquardt. Pixels whose residual is an outlier
+/// (beyond 4 robust sigmas) are left out and the fit repeated, twice at most. The covariance is
+/// the Gauss-Newton one scaled by the residual variance.
+pub fn shaded_fit(
+    window: &[WindowPixel],
+    start: Circle,
+    fixed_r: Option<f64>,
+) -> Option<ShadedFit> {
+    const NP: usize = SHADED_NP;
+    let mut pixels: Vec<WindowPixel> = window.to_vec();
+    let r0 = fixed_r.unwrap_or(start.r_px);
+    let [u0, v0] = light_start(window, start.x_px, start.y_px, r0);
+    let mut p = [start.x_px, start.y_px, r0, u0, v0];
+    let mut out = None;
+    for round in 0..3 {
+        if pixels.len() < 30 {
+            return None;
+        }
+        let (q, f, res, jtj) = shaded_lm(&pixels, p, fixed_r.is_some())?;
+        p = q;
+        let mut abs: Vec<f32> = res.iter().map(|r| r.abs() as f32).collect();
+        let mid = abs.len() / 2;
+        let mad = *abs.select_nth_unstable_by(mid, f32::total_cmp).1 as f64;
+        let cut = SHADED_OUTLIER_SIGMAS * 1.4826 * mad;
+        if res.iter().all(|r| r.abs() <= cut) || round == 2 {
+            out = Some((f, jtj, pixels.len(), res));
+            break;
+        }
+        // Outliers next to other outliers are a structure (the edge of an incline, a streak):
+        // the pixels around it are left out too, since where it meets the rim the rim's pixels
+        // mix the two.
+        let mut outlier = WindowGrid::new(&pixels, false);
+        for (q, r) in pixels.iter().zip(&res) {
+            if r.abs() > cut {
+                outlier.set(q, true);
+            }
+        }
+        let mut structured = WindowGrid::new(&pixels, false);
+        for q in &pixels {
+            if outlier.get(q, 0, 0) {
+                let joined = (-1..=1)
+                    .any(|dy| (-1..=1).any(|dx| (dx, dy) != (0, 0) && outlier.get(q, dx, dy)));
+                structured.set(q, joined);
+            }
+        }
+        let g = SHADED_MASK_GROW;
+        pixels.retain(|q| {
+            !outlier.get(q, 0, 0)
+                && !(-g..=g).any(|dy| (-g..=g).any(|dx| structured.get(q, dx, dy)))
+        });
+    }
+    let (f, jtj, n, res) = out?;
+    let dof = n.saturating_sub(NP + SHADED_LINEAR).max(1) as f64;
+    let cov = jtj.try_inverse()? * (f / dof) * pixel_correlation_factor(&pixels, &res);
+    let var = 0.5 * (cov[(0, 0)] + cov[(1, 1)]);
+    if !(var.is_finite() && p.iter().all(|v| v.is_finite())) {
+        return None;
+    }
+    Some(ShadedFit {
+        radius_held: fixed_r.is_some(),
+        circle: Circle {
+            x_px: p[0],
+            y_px: p[1],
+            r_px: p[2],
+        },
+        sigma_px: var.max(0.0).sqrt(),
+        light_uv: [p[3], p[4]],
+        rms: (f / n as f64).sqrt(),
+        kept: n as f64 / window.len() as f64,
+    })
 }

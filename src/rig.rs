@@ -57,6 +57,8 @@ pub struct Profile {
     pub smooth_px: Option<f64>,
     /// `--fine-snr`.
     pub fine_snr: Option<f64>,
+    /// `--shaded-max-r`, pixels.
+    pub shaded_max_r_px: Option<f64>,
     /// `--edge-sigma`.
     pub edge_sigma: Option<f64>,
     /// `--min-score`.
@@ -107,6 +109,7 @@ pub const PROFILE_KEYS: &[(&str, &str)] = &[
     ("background_cell_px", "--background-cell"),
     ("smooth_px", "--smooth"),
     ("fine_snr", "--fine-snr"),
+    ("shaded_max_r_px", "--shaded-max-r"),
     ("edge_sigma", "--edge-sigma"),
     ("min_score", "--min-score"),
     ("radius_tolerance", "--radius-tolerance"),
@@ -217,6 +220,7 @@ impl Profile {
             ("--threshold-level", self.threshold_level),
             ("--smooth", self.smooth_px),
             ("--fine-snr", self.fine_snr),
+            ("--shaded-max-r", self.shaded_max_r_px),
             ("--edge-sigma", self.edge_sigma),
             ("--min-score", self.min_score),
             ("--radius-tolerance", self.radius_tolerance),

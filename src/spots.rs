@@ -97,6 +97,10 @@ pub struct SpotOptions {
     /// 0.03 px at r = 14, 0.01 px at r = 18-24; other lights differ, hence a sigma, not a
     /// correction).
     pub systematic_px_r: f64,
+    /// Isolated images of a ball whose common radius is at most this are refined by a fit of a
+    /// lit sphere's image to their pixels (0: never). Above it the edge fit's lit-limb bias is
+    /// below 0.02 px and the fit's cost grows with the radius.
+    pub shaded_max_r_px: f64,
     /// All images show one ball, so they share one radius (or a smooth radius model across the
     /// photo): short rims keep that radius and other radii are rejected. False for photos of
     /// several objects of different sizes.
@@ -131,6 +135,7 @@ impl Default for SpotOptions {
             max_candidates: 5000,
             one_radius: true,
             systematic_px_r: 0.5,
+            shaded_max_r_px: 40.0,
         }
     }
 }
@@ -424,9 +429,147 @@ pub fn find_spots(
             }),
         }
     }
+    if common <= options.shaded_max_r_px {
+        shade_spots(photo, &bg, &mut report.spots);
+    }
     report.spots.sort_by(|a, b| a.x_px.total_cmp(&b.x_px));
     report.rejected.sort_by(|a, b| a.x_px.total_cmp(&b.x_px));
     Ok(report)
+}
+
+/// sRGB decoding of a stored value 0..1 to linear light (IEC 61966-2-1).
+#[inline]
+fn srgb_to_linear(v: f32) -> f64 {
+    let v = v as f64;
+    if v <= 0.04045 {
+        v / 12.92
+    } else {
+        ((v + 0.055) / 1.055).powf(2.4)
+    }
+}
+
+/// Replace an isolated spot's edge fit by the shaded-sphere fit of its pixels when that fit
+/// converges close to it.
+/// The pixels around spot `s` in linear light, from 0.65 radius (or 6 px) inside its rim to
+/// 2.5 px outside, without those a neighbouring image may reach; None when a neighbour overlaps
+/// it or takes half of the window.
+fn shade_window(
+    photo: &Photo,
+    bg: &Background,
+    spots: &[Spot],
+    s: &Spot,
+) -> Option<Vec<refine::WindowPixel>> {
+    let outer = s.r_px + SHADED_OUTSIDE_PX;
+    // An overlapping neighbour leaves this image no clean rim; one that is near keeps the
+    // pixels it may reach (within 2 px of its rim) out of the window.
+    let mut neighbours = Vec::new();
+    for o in spots {
+        let d = (o.x_px - s.x_px).hypot(o.y_px - s.y_px);
+        if d > 0.3 * s.r_px && d < o.r_px + s.r_px {
+            return None;
+        }
+        if d > 0.3 * s.r_px && d < o.r_px + outer + 2.0 {
+            neighbours.push(o);
+        }
+    }
+    let inner = (0.65 * s.r_px).max(s.r_px - 6.0);
+    let x0 = (s.x_px - outer).floor().max(0.0) as usize;
+    let y0 = (s.y_px - outer).floor().max(0.0) as usize;
+    let x1 = ((s.x_px + outer).ceil().max(0.0) as usize).min(photo.width - 1);
+    let y1 = ((s.y_px + outer).ceil().max(0.0) as usize).min(photo.height - 1);
+    let mut window = Vec::new();
+    let mut annulus = 0usize;
+    for y in y0..=y1 {
+        for x in x0..=x1 {
+            let (xf, yf) = (x as f64, y as f64);
+            let d = (xf - s.x_px).hypot(yf - s.y_px);
+            if d < inner || d > outer {
+                continue;
+            }
+            annulus += 1;
+            if neighbours
+                .iter()
+                .any(|o| (xf - o.x_px).hypot(yf - o.y_px) < o.r_px + 2.0)
+            {
+                continue;
+            }
+            let b = srgb_to_linear(bg.at(x, y));
+            window.push(refine::WindowPixel {
+                x_px: xf,
+                y_px: yf,
+                value: srgb_to_linear(photo.at(x, y)) - b,
+                backdrop: b,
+            });
+        }
+    }
+    if window.is_empty() || 2 * window.len() < annulus {
+        return None;
+    }
+    let mean = window.iter().map(|q| q.backdrop).sum::<f64>() / window.len() as f64;
+    for q in &mut window {
+        q.backdrop -= mean;
+    }
+    // On a large image, every few pixels away from the rim say as much about the shading as all
+    // of them: keep the rim's band and thin the rest to the pixel budget.
+    if window.len() > SHADED_BUDGET {
+        let rim = |q: &refine::WindowPixel| {
+            ((q.x_px - s.x_px).hypot(q.y_px - s.y_px) - s.r_px).abs() <= 1.5
+        };
+        let n_rim = window.iter().filter(|q| rim(q)).count();
+        let rest = window.len() - n_rim;
+        let stride_rim = n_rim.div_ceil(SHADED_BUDGET * 2 / 3).max(1);
+        let stride_rest = rest.div_ceil(SHADED_BUDGET / 3).max(1);
+        let (mut i_rim, mut i_rest) = (0usize, 0usize);
+        window.retain(|q| {
+            let (i, stride) = if rim(q) {
+                i_rim += 1;
+                (i_rim, stride_rim)
+            } else {
+                i_rest += 1;
+                (i_rest, stride_rest)
+            };
+            i % stride == 0
+        });
+    }
+    Some(window)
+}
+
+/// Largest number of pixels in a shaded fit's window.
+const SHADED_BUDGET: usize = 1500;
+
+/// How far outside the rim a shaded fit's window reaches, pixels.
+const SHADED_OUTSIDE_PX: f64 = 2.5;
+
+/// Replace the edge fits of the isolated spots by shaded-sphere fits of their pixels. A fit
+/// replaces the edge fit only when it lands near it (a window holding something else than one
+/// ball image does not).
+fn shade_spots(photo: &Photo, bg: &Background, spots: &mut [Spot]) {
+    let fits: Vec<Option<refine::ShadedFit>> = spots
+        .par_iter()
+        .map(|s| {
+            let window = shade_window(photo, bg, spots, s)?;
+            let start = refine::Circle {
+                x_px: s.x_px,
+                y_px: s.y_px,
+                r_px: s.r_px,
+            };
+            refine::shaded_fit(&window, start, None)
+        })
+        .collect();
+    for (s, fit) in spots.iter_mut().zip(fits) {
+        let Some(fit) = fit else {
+            continue;
+        };
+        let shift = (fit.circle.x_px - s.x_px).hypot(fit.circle.y_px - s.y_px);
+        if shift <= 0.05 * s.r_px + 3.0 * s.sigma_px + 0.1
+            && (fit.circle.r_px - s.r_px).abs() <= 0.05 * s.r_px + 0.3
+        {
+            s.x_px = fit.circle.x_px;
+            s.y_px = fit.circle.y_px;
+            s.r_px = fit.circle.r_px;
+            s.sigma_px = fit.sigma_px;
+        }
+    }
 }
 
 /// Load a photo (and an optional plate) and find its spots.

@@ -43,6 +43,9 @@ fn quadrant_area(xq: f64, yq: f64, r: f64) -> f64 {
 /// Exact area of the unit pixel centred at (px, py) covered by the disc centred at (cx, cy) with
 /// radius r. Pixel centres are at integer coordinates, so the pixel spans px - 0.5 .. px + 0.5.
 pub fn disc_coverage(px: f64, py: f64, cx: f64, cy: f64, r: f64) -> f64 {
+    if !(r > 0.0 && r.is_finite() && cx.is_finite() && cy.is_finite()) {
+        return 0.0;
+    }
     let x0 = px - 0.5 - cx;
     let x1 = px + 0.5 - cx;
     let y0 = py - 0.5 - cy;

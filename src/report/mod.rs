@@ -54,6 +54,8 @@ pub struct SpotSettings {
     pub one_radius: bool,
     /// Systematic edge uncertainty, pixels x radius.
     pub edge_systematic_px_r: f64,
+    /// Largest common radius at which isolated images get the shaded-sphere fit, pixels.
+    pub shaded_max_r_px: f64,
 }
 
 /// `beadline spots --format json`.
@@ -106,6 +108,7 @@ impl SpotsDoc {
                 max_rms_px: options.max_rms_px,
                 one_radius: options.one_radius,
                 edge_systematic_px_r: options.systematic_px_r,
+                shaded_max_r_px: options.shaded_max_r_px,
             },
             spots: report.spots.clone(),
             rejected: report.rejected.clone(),
