@@ -430,7 +430,8 @@ pub fn find_spots(
         }
     }
     if common <= options.shaded_max_r_px {
-        shade_spots(photo, &bg, &mut report.spots);
+        let shifts = shade_spots(photo, &bg, &mut report.spots, report.systematic_px);
+        correct_edge_fits(&mut report, &shifts);
     }
     report.spots.sort_by(|a, b| a.x_px.total_cmp(&b.x_px));
     report.rejected.sort_by(|a, b| a.x_px.total_cmp(&b.x_px));
@@ -534,6 +535,45 @@ fn shade_window(
     Some(window)
 }
 
+/// Fewest shaded fits that measure the photo's edge bias for the others.
+const EDGE_BIAS_MIN_FITS: usize = 3;
+
+/// The edge fits beside shaded fits. The lit limb pulls every edge fit of a photo alike (one
+/// light, one ball), so the shaded fits, which it does not pull, measure that pull: the median of
+/// (shaded - edge) over the refined images corrects the others (images overlapping a neighbour),
+/// and the scatter of those differences (1.4826 x their median absolute deviation, the larger
+/// axis) joins their sigma. Nothing common is left, so the photo's systematic becomes 0. With one
+/// or two shaded fits the pull is not measured: the edge fits keep their centres and the
+/// systematic joins their sigma (it is now a difference between images, not common to all).
+fn correct_edge_fits(report: &mut SpotReport, shifts: &[Option<[f64; 3]>]) {
+    let measured: Vec<[f64; 3]> = shifts.iter().flatten().copied().collect();
+    if measured.is_empty() {
+        return;
+    }
+    let median = |mut v: Vec<f64>| {
+        v.sort_by(f64::total_cmp);
+        v[v.len() / 2]
+    };
+    let (bias, scatter_px) = if measured.len() >= EDGE_BIAS_MIN_FITS {
+        let bias: [f64; 3] =
+            std::array::from_fn(|k| median(measured.iter().map(|m| m[k]).collect()));
+        let mad =
+            |k: usize| 1.4826 * median(measured.iter().map(|m| (m[k] - bias[k]).abs()).collect());
+        (bias, mad(0).max(mad(1)))
+    } else {
+        ([0.0; 3], report.systematic_px)
+    };
+    for (s, shift) in report.spots.iter_mut().zip(shifts) {
+        if shift.is_none() {
+            s.x_px += bias[0];
+            s.y_px += bias[1];
+            s.r_px += bias[2];
+            s.sigma_px = s.sigma_px.hypot(scatter_px);
+        }
+    }
+    report.systematic_px = 0.0;
+}
+
 /// Largest number of pixels in a shaded fit's window.
 const SHADED_BUDGET: usize = 1500;
 
@@ -542,8 +582,15 @@ const SHADED_OUTSIDE_PX: f64 = 2.5;
 
 /// Replace the edge fits of the isolated spots by shaded-sphere fits of their pixels. A fit
 /// replaces the edge fit only when it lands near it (a window holding something else than one
-/// ball image does not).
-fn shade_spots(photo: &Photo, bg: &Background, spots: &mut [Spot]) {
+/// ball image does not) and is surer than the edge fit with its lit-limb systematic (a window
+/// that lost much of the rim to an incline's edge may not be). Gives, for each spot it refined,
+/// the shaded fit minus the edge fit (x, y, r).
+fn shade_spots(
+    photo: &Photo,
+    bg: &Background,
+    spots: &mut [Spot],
+    systematic_px: f64,
+) -> Vec<Option<[f64; 3]>> {
     let fits: Vec<Option<refine::ShadedFit>> = spots
         .par_iter()
         .map(|s| {
@@ -553,23 +600,32 @@ fn shade_spots(photo: &Photo, bg: &Background, spots: &mut [Spot]) {
                 y_px: s.y_px,
                 r_px: s.r_px,
             };
-            refine::shaded_fit(&window, start, None)
+            refine::shaded_fit(&window, start)
         })
         .collect();
-    for (s, fit) in spots.iter_mut().zip(fits) {
+    let mut shaded = vec![None; spots.len()];
+    for ((s, fit), done) in spots.iter_mut().zip(fits).zip(shaded.iter_mut()) {
         let Some(fit) = fit else {
             continue;
         };
         let shift = (fit.circle.x_px - s.x_px).hypot(fit.circle.y_px - s.y_px);
+        let edge_total = s.sigma_px.hypot(systematic_px);
         if shift <= 0.05 * s.r_px + 3.0 * s.sigma_px + 0.1
             && (fit.circle.r_px - s.r_px).abs() <= 0.05 * s.r_px + 0.3
+            && fit.sigma_px < edge_total
         {
+            *done = Some([
+                fit.circle.x_px - s.x_px,
+                fit.circle.y_px - s.y_px,
+                fit.circle.r_px - s.r_px,
+            ]);
             s.x_px = fit.circle.x_px;
             s.y_px = fit.circle.y_px;
             s.r_px = fit.circle.r_px;
             s.sigma_px = fit.sigma_px;
         }
     }
+    shaded
 }
 
 /// Load a photo (and an optional plate) and find its spots.

@@ -107,17 +107,39 @@ pub struct Stamp {
 /// Fraction of the light that is diffuse fill.
 const FILL: f64 = 0.3;
 
-fn shade(dx: f64, dy: f64, r: f64, light: [f64; 3]) -> f64 {
+/// Mean surface normal of a sphere of radius `r` over the part of a pixel its image covers
+/// (`cov`), the pixel centre at (dx, dy) from the image's centre: the normal at the pixel centre
+/// for a pixel wholly inside; for a rim pixel, the mean over the radial strip of the covered
+/// width inside the rim, where the normal turns fastest (nz grows as sqrt(2 t / r) at depth t),
+/// so a grazing light on a small image is not misjudged by a pixel-centre sample.
+pub fn sphere_normal(dx: f64, dy: f64, r: f64, cov: f64) -> [f64; 3] {
+    if cov >= 1.0 {
+        let (nx, ny) = (dx / r, dy / r);
+        let n2 = nx * nx + ny * ny;
+        if n2 < 1.0 {
+            return [nx, ny, (1.0 - n2).sqrt()];
+        }
+    }
+    let d = (dx * dx + dy * dy).sqrt();
+    let (ux, uy) = if d > 1e-12 {
+        (dx / d, dy / d)
+    } else {
+        (1.0, 0.0)
+    };
+    let a = (r - cov.clamp(1e-9, 1.0)).max(0.0);
+    let r2 = r * r;
+    let g =
+        |t: f64| 0.5 * (t * (r2 - t * t).max(0.0).sqrt() + r2 * (t / r).clamp(-1.0, 1.0).asin());
+    let nz = (0.25 * std::f64::consts::PI * r2 - g(a)) / (r * (r - a));
+    let rho = 0.5 * (a + r) / r;
+    [ux * rho, uy * rho, nz]
+}
+
+/// Shading of a lit sphere with surface normal `n` (a unit vector to the camera is +z).
+fn shade(n: [f64; 3], light: [f64; 3]) -> f64 {
     let ln = (light[0] * light[0] + light[1] * light[1] + light[2] * light[2]).sqrt();
     let l = [light[0] / ln, light[1] / ln, light[2] / ln];
-    let (nx, ny) = (dx / r, dy / r);
-    let n2 = nx * nx + ny * ny;
-    let (nx, ny, nz) = if n2 >= 1.0 {
-        let s = n2.sqrt();
-        (nx / s, ny / s, 0.0)
-    } else {
-        (nx, ny, (1.0 - n2).sqrt())
-    };
+    let [nx, ny, nz] = n;
     let lambert = (nx * l[0] + ny * l[1] + nz * l[2]).max(0.0);
     let hv = [l[0], l[1], l[2] + 1.0];
     let hn = (hv[0] * hv[0] + hv[1] * hv[1] + hv[2] * hv[2]).sqrt();
@@ -186,13 +208,14 @@ pub fn paint(width: usize, height: usize, stamps: &[Stamp]) -> Exposure {
                     let d2 = dx * dx + dy * dy;
                     let inner = s.r_px - std::f64::consts::FRAC_1_SQRT_2;
                     let outer = s.r_px + std::f64::consts::FRAC_1_SQRT_2;
-                    let mut cov = if inner > 0.0 && d2 <= inner * inner {
+                    let disc = if inner > 0.0 && d2 <= inner * inner {
                         1.0
                     } else if d2 >= outer * outer {
                         continue;
                     } else {
                         disc_coverage(xf, y, s.x_px, s.y_px, s.r_px)
                     };
+                    let mut cov = disc;
                     if let Some(c) = s.clip {
                         let below = y - (c.line_a + c.line_b * xf);
                         cov *= (below + 0.5).clamp(0.0, 1.0)
@@ -201,7 +224,9 @@ pub fn paint(width: usize, height: usize, stamps: &[Stamp]) -> Exposure {
                     if cov <= 0.0 {
                         continue;
                     }
-                    let sh = s.light.map_or(1.0, |l| shade(dx, dy, s.r_px, l));
+                    let sh = s
+                        .light
+                        .map_or(1.0, |l| shade(sphere_normal(dx, dy, s.r_px, disc), l));
                     let v = s.weight * cov * s.albedo * sh;
                     for (l, tint) in lp.iter_mut().zip(s.rgb) {
                         *l += (v * tint) as f32;
