@@ -1,7 +1,9 @@
-//! Sub-pixel refinement: circles fitted to the edge points each ball image owns.
+//! Sub-pixel refinement: circles fitted to the edge points each ball image owns, then a lit
+//! sphere's image fitted to the pixels of each isolated one.
 //!
-//! Goes in: a [`Region`]'s sub-pixel edge points and the Hough [`Candidate`]s in it. Comes out:
-//! [`CircleFit`]s with centre, radius, a 1-sigma centre uncertainty and a rim-coverage score.
+//! Goes in: a [`Region`]'s sub-pixel edge points and the Hough [`Candidate`]s in it; for the
+//! shaded fit, the [`WindowPixel`]s around one image in linear light. Comes out: [`CircleFit`]s
+//! with centre, radius, a 1-sigma centre uncertainty and a rim-coverage score; [`ShadedFit`]s.
 //!
 //! Method: an algebraic start (Kasa's fit, "A circle fitting procedure and its error analysis",
 //! IEEE Trans. Instrum. Meas. 25, 1976) and a geometric fit minimising the orthogonal distances by
@@ -12,6 +14,11 @@
 //! too little of their rim keep the photo's common radius. The covariance is the Gauss-Newton one
 //! scaled by the residual variance and inflated for the correlation of neighbouring edge points
 //! (lag-1 autocorrelation of the residuals along the rim, AR(1) variance factor (1 + rho)/(1 - rho)).
+//!
+//! The shaded fit ([`shaded_fit`]) models the pixels as a Lambertian sphere under one distant
+//! light plus fill: exact disc coverage times (a + b max(0, n . l)), plus the hidden backdrop and a
+//! constant; (cx, cy, r, light) by Levenberg-Marquardt, the brightness terms linearly (variable
+//! projection, Golub & Pereyra, SIAM J. Numer. Anal. 10, 1973), outliers left out.
 
 use crate::hough::{Candidate, EdgePoint, Region};
 use nalgebra::{Matrix3, Vector3};

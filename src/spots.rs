@@ -1,7 +1,10 @@
 //! Spots: every image of the ball found in one strobe photo.
 //!
 //! Goes in: a photo. Comes out: [`Spot`]s with sub-pixel centres, radius, a 1-sigma centre
-//! uncertainty and a score, plus the candidates that were rejected and why.
+//! uncertainty and a score, plus the candidates that were rejected and why. Isolated images are
+//! refined by a shaded-sphere fit of their pixels in linear light (the stored values decoded as
+//! sRGB, IEC 61966-2-1); the others by their edges, corrected by the lit-limb pull those fits
+//! measure.
 
 use serde::{Deserialize, Serialize};
 
@@ -87,7 +90,8 @@ pub struct SpotOptions {
     pub max_candidates: usize,
     /// Systematic 1-sigma of the centres from edge location on a lit sphere, as pixels x radius:
     /// sigma_sys = this x max(1 / r, SMALL_BALL_R_PX / r^2), reported once per photo beside the
-    /// spots' own (random) sigma. It is common to all images of one ball under one light, so it
+    /// spots' own (random) sigma when no image got the shaded fit (which measures and removes
+    /// the pull instead). It is common to all images of one ball under one light, so it
     /// cancels in differences (velocities, accelerations) and is kept out of the path and physics
     /// weights. The limb of a shaded ball is not a clean step: where the rim is dim, the smoothed
     /// gradient of the shading inside merges with the step's and its maximum moves inwards, which
@@ -159,7 +163,8 @@ pub struct SpotReport {
     pub common_radius_px: Option<f64>,
     /// Radius of the ball images across the photo (it varies under a perspective tilt).
     pub radius_model: Option<refine::RadiusModel>,
-    /// Systematic 1-sigma of every centre (common to all images), pixels.
+    /// Systematic 1-sigma of every centre (common to all images; 0 once shaded fits measured and
+    /// removed the lit-limb pull), pixels.
     pub systematic_px: f64,
     /// Ball images, sorted by x.
     pub spots: Vec<Spot>,
