@@ -238,7 +238,7 @@ struct DetectArgs {
     edge_systematic: f64,
     /// Largest RMS distance of rim points from the fitted circle, pixels (or 2.5 x the median of
     /// the photo's well-covered images, when that is larger).
-    #[arg(long, default_value_t = 0.4)]
+    #[arg(long, default_value_t = 0.5)]
     max_rms: f64,
     /// Images fainter than this fraction of the median rim contrast are rejected as reflections.
     #[arg(long, default_value_t = 0.5)]

@@ -134,7 +134,7 @@ impl Default for SpotOptions {
             radius_px: None,
             radius_tolerance: 0.12,
             min_score: 0.35,
-            max_rms_px: 0.4,
+            max_rms_px: 0.5,
             faint_fraction: 0.5,
             max_candidates: 5000,
             one_radius: true,
