@@ -5,7 +5,7 @@ use beadline::background::Polarity;
 use beadline::load::LoadOptions;
 use beadline::render::{self, scene::Scene};
 use beadline::report::SpotsDoc;
-use beadline::spots::{self, SpotOptions};
+use beadline::spots::{self, SpotOptions, Tone};
 use clap::{Args as ClapArgs, Parser, Subcommand, ValueEnum};
 use std::path::{Path, PathBuf};
 use std::process::ExitCode;
@@ -175,6 +175,13 @@ enum PolarityArg {
     Dark,
 }
 
+/// Tone curve as typed.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, ValueEnum)]
+enum ToneArg {
+    Srgb,
+    Linear,
+}
+
 /// Where and how results go.
 #[derive(Debug, Clone, ClapArgs)]
 struct OutArgs {
@@ -198,6 +205,10 @@ struct DetectArgs {
     /// Ball against background.
     #[arg(long, value_enum, default_value = "auto")]
     polarity: PolarityArg,
+    /// How the stored values encode light: srgb (camera JPEGs and PNGs, IEC 61966-2-1) or linear
+    /// (a raw or scientific camera's 16-bit TIFF).
+    #[arg(long, value_enum, default_value = "srgb")]
+    tone: ToneArg,
     /// Radius range of the ball images, pixels, as MIN..MAX (default: estimated).
     #[arg(long, value_name = "MIN..MAX")]
     radius: Option<String>,
@@ -473,6 +484,10 @@ impl DetectArgs {
             PolarityArg::Auto => None,
             PolarityArg::Bright => Some(Polarity::Bright),
             PolarityArg::Dark => Some(Polarity::Dark),
+        };
+        o.tone = match self.tone {
+            ToneArg::Srgb => Tone::Srgb,
+            ToneArg::Linear => Tone::Linear,
         };
         if let Some(r) = &self.radius {
             let (a, b) = parse_range(r, "--radius")?;

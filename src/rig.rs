@@ -45,6 +45,8 @@ pub struct Profile {
     pub plate: Option<PathBuf>,
     /// `--polarity`: auto, bright or dark.
     pub polarity: Option<String>,
+    /// `--tone`: srgb or linear.
+    pub tone: Option<String>,
     /// `--radius`: [min, max] radius of the ball images, pixels.
     pub radius_px: Option<[f64; 2]>,
     /// `--threshold-sigma`.
@@ -103,6 +105,7 @@ pub struct Profile {
 pub const PROFILE_KEYS: &[(&str, &str)] = &[
     ("plate", "--plate"),
     ("polarity", "--polarity"),
+    ("tone", "--tone"),
     ("radius_px", "--radius"),
     ("threshold_sigma", "--threshold-sigma"),
     ("threshold_level", "--threshold-level"),
@@ -211,6 +214,9 @@ impl Profile {
         }
         if let Some(v) = &self.polarity {
             set("--polarity", v.clone());
+        }
+        if let Some(v) = &self.tone {
+            set("--tone", v.clone());
         }
         if let Some([lo, hi]) = self.radius_px {
             set("--radius", format!("{}..{}", num(lo), num(hi)));

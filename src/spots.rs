@@ -2,8 +2,8 @@
 //!
 //! Goes in: a photo. Comes out: [`Spot`]s with sub-pixel centres, radius, a 1-sigma centre
 //! uncertainty and a score, plus the candidates that were rejected and why. Isolated images are
-//! refined by a shaded-sphere fit of their pixels in linear light (the stored values decoded as
-//! sRGB, IEC 61966-2-1); the others by their edges, corrected by the lit-limb pull those fits
+//! refined by a shaded-sphere fit of their pixels in linear light (the stored values decoded by
+//! the photo's [`Tone`], sRGB by default); the others by their edges, corrected by the lit-limb pull those fits
 //! measure.
 
 use serde::{Deserialize, Serialize};
@@ -64,6 +64,9 @@ pub struct Rejected {
     pub reason: Reason,
 }
 
+/// How a photo's stored values encode light (the renderer's tone curve, read back).
+pub use crate::render::scene::Tone;
+
 /// Every knob of spot finding.
 #[derive(Debug, Clone, Copy, PartialEq)]
 pub struct SpotOptions {
@@ -105,6 +108,8 @@ pub struct SpotOptions {
     /// lit sphere's image to their pixels (0: never). Above it the edge fit's lit-limb bias is
     /// below 0.02 px and the fit's cost grows with the radius.
     pub shaded_max_r_px: f64,
+    /// How the photo's values encode light (the shaded fit works in linear light).
+    pub tone: Tone,
     /// All images show one ball, so they share one radius (or a smooth radius model across the
     /// photo): short rims keep that radius and other radii are rejected. False for photos of
     /// several objects of different sizes.
@@ -140,6 +145,7 @@ impl Default for SpotOptions {
             one_radius: true,
             systematic_px_r: 0.5,
             shaded_max_r_px: 40.0,
+            tone: Tone::Srgb,
         }
     }
 }
@@ -435,7 +441,13 @@ pub fn find_spots(
         }
     }
     if common <= options.shaded_max_r_px {
-        let shifts = shade_spots(photo, &bg, &mut report.spots, report.systematic_px);
+        let shifts = shade_spots(
+            photo,
+            &bg,
+            options.tone,
+            &mut report.spots,
+            report.systematic_px,
+        );
         correct_edge_fits(&mut report, &shifts);
     }
     report.spots.sort_by(|a, b| a.x_px.total_cmp(&b.x_px));
@@ -443,25 +455,13 @@ pub fn find_spots(
     Ok(report)
 }
 
-/// sRGB decoding of a stored value 0..1 to linear light (IEC 61966-2-1).
-#[inline]
-fn srgb_to_linear(v: f32) -> f64 {
-    let v = v as f64;
-    if v <= 0.04045 {
-        v / 12.92
-    } else {
-        ((v + 0.055) / 1.055).powf(2.4)
-    }
-}
-
-/// Replace an isolated spot's edge fit by the shaded-sphere fit of its pixels when that fit
-/// converges close to it.
 /// The pixels around spot `s` in linear light, from 0.65 radius (or 6 px) inside its rim to
 /// 2.5 px outside, without those a neighbouring image may reach; None when a neighbour overlaps
 /// it or takes half of the window.
 fn shade_window(
     photo: &Photo,
     bg: &Background,
+    tone: Tone,
     spots: &[Spot],
     s: &Spot,
 ) -> Option<Vec<refine::WindowPixel>> {
@@ -499,11 +499,11 @@ fn shade_window(
             {
                 continue;
             }
-            let b = srgb_to_linear(bg.at(x, y));
+            let b = tone.to_linear(bg.at(x, y));
             window.push(refine::WindowPixel {
                 x_px: xf,
                 y_px: yf,
-                value: srgb_to_linear(photo.at(x, y)) - b,
+                value: tone.to_linear(photo.at(x, y)) - b,
                 backdrop: b,
             });
         }
@@ -593,13 +593,14 @@ const SHADED_OUTSIDE_PX: f64 = 2.5;
 fn shade_spots(
     photo: &Photo,
     bg: &Background,
+    tone: Tone,
     spots: &mut [Spot],
     systematic_px: f64,
 ) -> Vec<Option<[f64; 3]>> {
     let fits: Vec<Option<refine::ShadedFit>> = spots
         .par_iter()
         .map(|s| {
-            let window = shade_window(photo, bg, spots, s)?;
+            let window = shade_window(photo, bg, tone, spots, s)?;
             let start = refine::Circle {
                 x_px: s.x_px,
                 y_px: s.y_px,

@@ -375,6 +375,19 @@ pub enum Tone {
     Linear,
 }
 
+impl Tone {
+    /// Linear light of a stored value 0..1 (the sRGB curve inverted, IEC 61966-2-1).
+    #[inline]
+    pub fn to_linear(self, v: f32) -> f64 {
+        let v = v as f64;
+        match self {
+            Tone::Linear => v,
+            Tone::Srgb if v <= 0.04045 => v / 12.92,
+            Tone::Srgb => ((v + 0.055) / 1.055).powf(2.4),
+        }
+    }
+}
+
 /// The look of the photograph.
 #[derive(Debug, Clone, Serialize, Deserialize)]
 #[serde(deny_unknown_fields)]

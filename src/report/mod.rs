@@ -56,6 +56,8 @@ pub struct SpotSettings {
     pub edge_systematic_px_r: f64,
     /// Largest common radius at which isolated images get the shaded-sphere fit, pixels.
     pub shaded_max_r_px: f64,
+    /// How the photo's values were taken to encode light.
+    pub tone: crate::spots::Tone,
 }
 
 /// `beadline spots --format json`.
@@ -109,6 +111,7 @@ impl SpotsDoc {
                 one_radius: options.one_radius,
                 edge_systematic_px_r: options.systematic_px_r,
                 shaded_max_r_px: options.shaded_max_r_px,
+                tone: options.tone,
             },
             spots: report.spots.clone(),
             rejected: report.rejected.clone(),
