@@ -245,3 +245,35 @@ fn radial_lens_distortion_is_undone_through_the_plane_file() {
         doc.gravity_mps2.value
     );
 }
+
+#[test]
+fn the_ball_as_the_ruler_gives_gravity_with_an_honest_sigma() {
+    // The demo measured with the ball's own diameter (40 mm) as the only length: the scale comes
+    // from the images' radius, so a radius error is a gravity error (it was +0.57 % while the
+    // edge fit read a lit ball's radius 0.11 px small). Truth: the renderer's physics with
+    // standard gravity 9.80665 m/s^2 (CGPM 1901). The reported sigma carries the scale's own
+    // uncertainty, so it covers the error.
+    let dir = tempfile::tempdir().unwrap();
+    let (photo, truth) = shoot(&Scene::demo(), dir.path(), "demo.png");
+    let settings = MeasureSettings {
+        rate_hz: Some(25.0),
+        scale: Some(ScaleSource::BallDiameter),
+        ball_diameter_m: Some(0.04),
+        ..Default::default()
+    };
+    let m = measure_photo(&photo, &settings).unwrap();
+    let g = &m.doc.measurement.gravity_mps2;
+    assert!(
+        rel(g.value, truth.gravity_mps2) < 0.001,
+        "g {} vs {}",
+        g.value,
+        truth.gravity_mps2
+    );
+    assert!(
+        (g.value - truth.gravity_mps2).abs() <= 3.0 * g.sigma,
+        "g {} +- {} vs {}",
+        g.value,
+        g.sigma,
+        truth.gravity_mps2
+    );
+}

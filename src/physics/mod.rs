@@ -440,19 +440,29 @@ pub fn measure(
         .unwrap_or_else(|| Quantity::new(f64::NAN, f64::NAN, "not given"));
     let arcs_word = format!("estimated from {} flight arcs", flights.len());
     let rel_g = g_app_sigma / g_app;
+    // The arcs' curvature is in metres per flash interval squared: the given scale's and
+    // interval's own uncertainties pass into what is estimated from it.
+    let rel_scale = scale_nominal.relative_sigma();
+    let rel_interval = interval_nominal.relative_sigma();
     let (gravity, interval, scale) = match options.unknown {
-        Unknown::Gravity => (
-            Quantity::new(g_app, g_app_sigma, arcs_word),
-            interval_nominal,
-            scale_nominal,
-        ),
+        Unknown::Gravity => {
+            let rel = (rel_g.powi(2) + rel_scale.powi(2) + (2.0 * rel_interval).powi(2)).sqrt();
+            (
+                Quantity::new(g_app, g_app * rel, arcs_word),
+                interval_nominal,
+                scale_nominal,
+            )
+        }
         Unknown::Interval => {
             let tau = (g_app / g_hint).sqrt();
             for p in &mut pts {
                 p.t_s *= tau;
             }
             let v = interval_nominal.value * tau;
-            let rel = (rel_g.powi(2) + options.gravity.relative_sigma().powi(2)).sqrt() / 2.0;
+            let rel =
+                (rel_g.powi(2) + options.gravity.relative_sigma().powi(2) + rel_scale.powi(2))
+                    .sqrt()
+                    / 2.0;
             (
                 options.gravity.clone(),
                 Quantity::new(v, v * rel, arcs_word),
@@ -467,7 +477,10 @@ pub fn measure(
                 p.sigma_m *= lambda;
             }
             let v = scale_nominal.value / lambda;
-            let rel = (rel_g.powi(2) + options.gravity.relative_sigma().powi(2)).sqrt();
+            let rel = (rel_g.powi(2)
+                + options.gravity.relative_sigma().powi(2)
+                + (2.0 * rel_interval).powi(2))
+            .sqrt();
             (
                 options.gravity.clone(),
                 interval_nominal,
