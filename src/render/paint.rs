@@ -14,6 +14,12 @@ use rand_chacha::ChaCha8Rng;
 use rand_distr::{Distribution, StandardNormal};
 use rayon::prelude::*;
 
+/// G(x) = integral from 0 to x of sqrt(r^2 - t^2) dt = (x sqrt(r^2 - x^2) + r^2 asin(x / r)) / 2,
+/// the area under a half-disc's chord.
+fn half_disc_primitive(x: f64, r: f64) -> f64 {
+    0.5 * (x * (r * r - x * x).max(0.0).sqrt() + r * r * (x / r).clamp(-1.0, 1.0).asin())
+}
+
 /// Exact area of the unit pixel centred at (px, py) covered by the disc centred at (cx, cy) with
 /// radius r. Pixel centres are at integer coordinates, so the pixel spans px - 0.5 .. px + 0.5.
 ///
@@ -30,9 +36,8 @@ pub fn disc_coverage(px: f64, py: f64, cx: f64, cy: f64, r: f64) -> f64 {
     if x0 >= x1 || y0 >= r || y1 <= -r {
         return 0.0;
     }
-    let r2 = r * r;
-    let half_chord = |x: f64| (r2 - x * x).max(0.0).sqrt();
-    let g = |x: f64| 0.5 * (x * half_chord(x) + r2 * (x / r).clamp(-1.0, 1.0).asin());
+    let half_chord = |x: f64| (r * r - x * x).max(0.0).sqrt();
+    let g = |x: f64| half_disc_primitive(x, r);
     // Break points: the columns' edges and where the circle crosses a row edge.
     let mut xs = [x0, x1, x1, x1, x1, x1];
     let mut n = 2;
@@ -127,10 +132,7 @@ pub fn sphere_normal(dx: f64, dy: f64, r: f64, cov: f64) -> [f64; 3] {
         (1.0, 0.0)
     };
     let a = (r - cov.clamp(1e-9, 1.0)).max(0.0);
-    let r2 = r * r;
-    let g =
-        |t: f64| 0.5 * (t * (r2 - t * t).max(0.0).sqrt() + r2 * (t / r).clamp(-1.0, 1.0).asin());
-    let nz = (0.25 * std::f64::consts::PI * r2 - g(a)) / (r * (r - a));
+    let nz = (half_disc_primitive(r, r) - half_disc_primitive(a, r)) / (r * (r - a));
     let rho = 0.5 * (a + r) / r;
     [ux * rho, uy * rho, nz]
 }
