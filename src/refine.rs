@@ -554,6 +554,8 @@ pub struct ShadedFit {
     pub sigma_px: f64,
     /// Direction to the light as (u, v, 1) in the camera frame (x right, y down, z to the lens).
     pub light_uv: [f64; 2],
+    /// 1-sigma of u and of v.
+    pub light_sigma: [f64; 2],
     /// RMS residual, linear light units.
     pub rms: f64,
     /// Fraction of the window's pixels kept (not outliers).
@@ -931,6 +933,7 @@ pub fn shaded_fit(window: &[WindowPixel], start: Circle) -> Option<ShadedFit> {
         },
         sigma_px: var.max(0.0).sqrt(),
         light_uv: [p[3], p[4]],
+        light_sigma: [cov[(3, 3)].max(0.0).sqrt(), cov[(4, 4)].max(0.0).sqrt()],
         rms: (f / n as f64).sqrt(),
         kept: n as f64 / window.len() as f64,
     })

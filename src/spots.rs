@@ -47,6 +47,9 @@ pub enum Reason {
     OutsideFrame,
     /// It lies inside a better ball image (an inner ring, a highlight's edge).
     Inside,
+    /// Its shading shows a light from another side than the photo's other images do (a mirror
+    /// image of the ball in a glossy floor).
+    OtherLight,
 }
 
 /// A candidate that was not kept, with the reason.
@@ -441,14 +444,15 @@ pub fn find_spots(
         }
     }
     if common <= options.shaded_max_r_px {
-        let shifts = shade_spots(
+        let shaded = shade_spots(
             photo,
             &bg,
             options.tone,
             &mut report.spots,
             report.systematic_px,
         );
-        correct_edge_fits(&mut report, &shifts);
+        let shaded = drop_other_lights(&mut report, shaded);
+        correct_edge_fits(&mut report, &shaded);
     }
     report.spots.sort_by(|a, b| a.x_px.total_cmp(&b.x_px));
     report.rejected.sort_by(|a, b| a.x_px.total_cmp(&b.x_px));
@@ -540,6 +544,84 @@ fn shade_window(
     Some(window)
 }
 
+/// What the shaded fit of one spot found.
+#[derive(Debug, Clone, Copy)]
+struct Shaded {
+    /// Shaded fit minus edge fit: x, y, r, pixels.
+    shift: [f64; 3],
+    /// Light direction (u, v, 1) and the 1-sigma of u and v.
+    light_uv: [f64; 2],
+    light_sigma: [f64; 2],
+}
+
+/// Fewest shaded fits that give the photo's light for the others.
+const LIGHT_MIN_FITS: usize = 5;
+
+/// A spot whose light is this far from the photo's, degrees (and 4 of its sigmas), was lit from
+/// elsewhere. The light of one photo's images agrees within about 3 degrees on the bench; a
+/// mirror image in the floor, lit by the mirrored light, is 42 degrees off under the default
+/// light 27 degrees off the lens axis.
+const OTHER_LIGHT_DEG: f64 = 20.0;
+
+/// The photo's images agree on their light when their median angle from it is at most this,
+/// degrees.
+const LIGHT_AGREE_DEG: f64 = 5.0;
+
+/// Spots whose shading shows another light than the photo's (the median of its shaded fits'
+/// light directions, when they agree on it) are rejected as `OtherLight`; the shaded fits of the
+/// rest are returned.
+fn drop_other_lights(report: &mut SpotReport, shaded: Vec<Option<Shaded>>) -> Vec<Option<Shaded>> {
+    let lights: Vec<&Shaded> = shaded.iter().flatten().collect();
+    if lights.len() < LIGHT_MIN_FITS {
+        return shaded;
+    }
+    let median = |mut v: Vec<f64>| {
+        v.sort_by(f64::total_cmp);
+        v[v.len() / 2]
+    };
+    let u = median(lights.iter().map(|f| f.light_uv[0]).collect());
+    let v = median(lights.iter().map(|f| f.light_uv[1]).collect());
+    let unit = |u: f64, v: f64| {
+        let n = (u * u + v * v + 1.0).sqrt();
+        [u / n, v / n, 1.0 / n]
+    };
+    let photo_light = unit(u, v);
+    let angle_deg = |f: &Shaded| {
+        let l = unit(f.light_uv[0], f.light_uv[1]);
+        let cos: f64 = (0..3).map(|i| l[i] * photo_light[i]).sum();
+        cos.clamp(-1.0, 1.0).acos().to_degrees()
+    };
+    // Only a light that the photo's images agree on tells one apart (a faint dark ball against
+    // its plate shows too little shading for that).
+    if median(lights.iter().map(|f| angle_deg(f)).collect()) > LIGHT_AGREE_DEG {
+        return shaded;
+    }
+    let spots = std::mem::take(&mut report.spots);
+    let mut kept = Vec::with_capacity(shaded.len());
+    for (s, f) in spots.into_iter().zip(shaded) {
+        if let Some(f) = &f {
+            let angle_deg = angle_deg(f);
+            // The direction turns by about d(u, v) / (1 + u^2 + v^2) radians.
+            let [a, b] = f.light_uv;
+            let sigma_deg =
+                (f.light_sigma[0].hypot(f.light_sigma[1]) / (1.0 + a * a + b * b)).to_degrees();
+            if angle_deg > OTHER_LIGHT_DEG && angle_deg > 4.0 * sigma_deg {
+                report.rejected.push(Rejected {
+                    x_px: s.x_px,
+                    y_px: s.y_px,
+                    r_px: s.r_px,
+                    score: s.score,
+                    reason: Reason::OtherLight,
+                });
+                continue;
+            }
+        }
+        report.spots.push(s);
+        kept.push(f);
+    }
+    kept
+}
+
 /// Fewest shaded fits that measure the photo's edge bias for the others.
 const EDGE_BIAS_MIN_FITS: usize = 3;
 
@@ -550,8 +632,8 @@ const EDGE_BIAS_MIN_FITS: usize = 3;
 /// axis) joins their sigma. Nothing common is left, so the photo's systematic becomes 0. With one
 /// or two shaded fits the pull is not measured: the edge fits keep their centres and the
 /// systematic joins their sigma (it is now a difference between images, not common to all).
-fn correct_edge_fits(report: &mut SpotReport, shifts: &[Option<[f64; 3]>]) {
-    let measured: Vec<[f64; 3]> = shifts.iter().flatten().copied().collect();
+fn correct_edge_fits(report: &mut SpotReport, shaded: &[Option<Shaded>]) {
+    let measured: Vec<[f64; 3]> = shaded.iter().flatten().map(|f| f.shift).collect();
     if measured.is_empty() {
         return;
     }
@@ -568,7 +650,7 @@ fn correct_edge_fits(report: &mut SpotReport, shifts: &[Option<[f64; 3]>]) {
     } else {
         ([0.0; 3], report.systematic_px)
     };
-    for (s, shift) in report.spots.iter_mut().zip(shifts) {
+    for (s, shift) in report.spots.iter_mut().zip(shaded) {
         if shift.is_none() {
             s.x_px += bias[0];
             s.y_px += bias[1];
@@ -596,7 +678,7 @@ fn shade_spots(
     tone: Tone,
     spots: &mut [Spot],
     systematic_px: f64,
-) -> Vec<Option<[f64; 3]>> {
+) -> Vec<Option<Shaded>> {
     let fits: Vec<Option<refine::ShadedFit>> = spots
         .par_iter()
         .map(|s| {
@@ -620,11 +702,15 @@ fn shade_spots(
             && (fit.circle.r_px - s.r_px).abs() <= 0.05 * s.r_px + 0.3
             && fit.sigma_px < edge_total
         {
-            *done = Some([
-                fit.circle.x_px - s.x_px,
-                fit.circle.y_px - s.y_px,
-                fit.circle.r_px - s.r_px,
-            ]);
+            *done = Some(Shaded {
+                shift: [
+                    fit.circle.x_px - s.x_px,
+                    fit.circle.y_px - s.y_px,
+                    fit.circle.r_px - s.r_px,
+                ],
+                light_uv: fit.light_uv,
+                light_sigma: fit.light_sigma,
+            });
             s.x_px = fit.circle.x_px;
             s.y_px = fit.circle.y_px;
             s.r_px = fit.circle.r_px;

@@ -229,7 +229,10 @@ fn render_with(scene: &Scene, with_ball: bool) -> Rendered {
                     weight: flash * scene.floor.reflectance / subs as f64,
                     albedo: ball_albedo,
                     rgb: p.ball_rgb,
-                    light: p.shading.then_some(p.light_dir),
+                    // The mirror world's light comes from the mirrored side.
+                    light: p
+                        .shading
+                        .then_some([p.light_dir[0], -p.light_dir[1], p.light_dir[2]]),
                     occludes: false,
                     clip: Some(floor_clip(ms.x_m)),
                 });
