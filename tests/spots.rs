@@ -527,7 +527,13 @@ fn a_bright_mirror_image_is_told_apart_by_its_light() {
     // renderer's reflection positions. (Mirror images cut by the plate's front edge get no shaded
     // fit, so not every one is caught: 2 of this scene's are kept.)
     let dir = tempfile::tempdir().unwrap();
-    let scene = Scene::from_toml(MIRROR_SCENE, Path::new("mirror.toml")).unwrap();
+    // The bench suite's glossy scene (bench/suite.py `glossy_r16`) with a floor reflecting 90 %.
+    let mut scene = Scene::demo();
+    scene.seed = 700;
+    scene.ball.diameter_m = 0.032;
+    scene.floor.glossy = true;
+    scene.floor.reflectance = 0.9;
+    scene.floor.depth_m = 0.075;
     let (report, truth, _) = detect(&scene, dir.path(), "mirror.png");
     let s = score(&report, &truth);
     assert_eq!(s.found, s.expected);
@@ -549,45 +555,3 @@ fn a_bright_mirror_image_is_told_apart_by_its_light() {
         );
     }
 }
-
-/// The bench suite's glossy scene (bench/suite.py) with a floor reflecting 90 %.
-const MIRROR_SCENE: &str = r#"
-seed = 700
-
-[ball]
-diameter_m = 0.032
-build = "solid"
-
-[incline]
-length_m = 0.25
-angle_deg = 20.0
-bottom_height_m = 0.45
-bottom_x_m = 0.0
-
-[floor]
-restitution = 0.78
-tangential_ratio = 0.97
-glossy = true
-reflectance = 0.9
-depth_m = 0.075
-
-[strobe]
-rate_hz = 25.0
-first_flash_s = 0.15
-exposure_s = 1.45
-
-[camera]
-px_per_m = 1000.0
-width_px = 1600
-height_px = 900
-origin_x_px = 300.0
-origin_y_px = 820.0
-roll_deg = 0.0
-tilt_deg = 0.0
-k1 = 0.0
-
-[photo]
-polarity = "bright"
-noise = true
-jpeg_quality = 92
-"#;
