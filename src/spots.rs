@@ -384,10 +384,6 @@ pub fn find_spots(
                 && (f.circle.r_px - r).abs() <= options.radius_tolerance * r
         })
         .collect();
-    let median_of = |mut v: Vec<f64>| {
-        v.sort_by(f64::total_cmp);
-        v.get(v.len() / 2).copied().unwrap_or(0.0)
-    };
     let median_strength = median_of(plausible.iter().map(|f| f.edge_strength).collect());
     // Faint images (a dark ball against its clean plate, JPEG noise) have noisier rims than
     // the fixed limit allows; a shape that is not round stands out from the photo's own images.
@@ -575,12 +571,8 @@ fn drop_other_lights(report: &mut SpotReport, shaded: Vec<Option<Shaded>>) -> Ve
     if lights.len() < LIGHT_MIN_FITS {
         return shaded;
     }
-    let median = |mut v: Vec<f64>| {
-        v.sort_by(f64::total_cmp);
-        v[v.len() / 2]
-    };
-    let u = median(lights.iter().map(|f| f.light_uv[0]).collect());
-    let v = median(lights.iter().map(|f| f.light_uv[1]).collect());
+    let u = median_of(lights.iter().map(|f| f.light_uv[0]).collect());
+    let v = median_of(lights.iter().map(|f| f.light_uv[1]).collect());
     let unit = |u: f64, v: f64| {
         let n = (u * u + v * v + 1.0).sqrt();
         [u / n, v / n, 1.0 / n]
@@ -593,7 +585,7 @@ fn drop_other_lights(report: &mut SpotReport, shaded: Vec<Option<Shaded>>) -> Ve
     };
     // Only a light that the photo's images agree on tells one apart (a faint dark ball against
     // its plate shows too little shading for that).
-    if median(lights.iter().map(|f| angle_deg(f)).collect()) > LIGHT_AGREE_DEG {
+    if median_of(lights.iter().map(|f| angle_deg(f)).collect()) > LIGHT_AGREE_DEG {
         return shaded;
     }
     let spots = std::mem::take(&mut report.spots);
@@ -637,15 +629,12 @@ fn correct_edge_fits(report: &mut SpotReport, shaded: &[Option<Shaded>]) {
     if measured.is_empty() {
         return;
     }
-    let median = |mut v: Vec<f64>| {
-        v.sort_by(f64::total_cmp);
-        v[v.len() / 2]
-    };
     let (bias, scatter_px) = if measured.len() >= EDGE_BIAS_MIN_FITS {
         let bias: [f64; 3] =
-            std::array::from_fn(|k| median(measured.iter().map(|m| m[k]).collect()));
-        let mad =
-            |k: usize| 1.4826 * median(measured.iter().map(|m| (m[k] - bias[k]).abs()).collect());
+            std::array::from_fn(|k| median_of(measured.iter().map(|m| m[k]).collect()));
+        let mad = |k: usize| {
+            1.4826 * median_of(measured.iter().map(|m| (m[k] - bias[k]).abs()).collect())
+        };
         (bias, mad(0).max(mad(1)))
     } else {
         ([0.0; 3], report.systematic_px)
@@ -718,6 +707,12 @@ fn shade_spots(
         }
     }
     shaded
+}
+
+/// The median (upper of the middle two), 0 for no values.
+fn median_of(mut v: Vec<f64>) -> f64 {
+    v.sort_by(f64::total_cmp);
+    v.get(v.len() / 2).copied().unwrap_or(0.0)
 }
 
 /// Load a photo (and an optional plate) and find its spots.
