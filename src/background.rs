@@ -12,6 +12,7 @@
 //! of the sampled residuals.
 
 use crate::load::Photo;
+use rayon::prelude::*;
 use serde::{Deserialize, Serialize};
 
 /// Which way the ball differs from the background.
@@ -116,20 +117,41 @@ impl Background {
         }
     }
 
-    /// Mean background over the pixel block `x0..x1` x `y0..y1` (end exclusive). A plate is
-    /// summed; the grid is bilinear, so its mean over a block inside one interpolation cell is its
-    /// value at the block centre, which is what is returned (blocks across a cell border differ
-    /// from the exact mean only by the small kink of the interpolation there).
-    pub fn block_mean(&self, x0: usize, y0: usize, x1: usize, y1: usize) -> f32 {
+    /// Mean background over each block of side `b` in the rows `y0..y1` (end exclusive),
+    /// block `i` spanning columns `i b..(i + 1) b` (the last one cut at the image's edge). A plate
+    /// is summed; the grid is bilinear, so its mean over a block inside one interpolation cell
+    /// is its value at the block centre, which is what is returned (blocks across a cell border
+    /// differ from the exact mean only by the small kink of the interpolation there). `width`
+    /// is the image's width, pixels.
+    pub fn block_means(&self, y0: usize, y1: usize, b: usize, width: usize, out: &mut [f32]) {
         match &self.kind {
             Kind::Plate(v, w) => {
-                let sum: f32 = (y0..y1)
-                    .map(|y| v[y * w + x0..y * w + x1].iter().sum::<f32>())
-                    .sum();
-                sum / ((x1 - x0) * (y1 - y0)) as f32
+                out.fill(0.0);
+                for y in y0..y1 {
+                    for (o, chunk) in out.iter_mut().zip(v[y * w..(y + 1) * w].chunks(b)) {
+                        *o += chunk.iter().sum::<f32>();
+                    }
+                }
+                for (i, o) in out.iter_mut().enumerate() {
+                    let n = ((i * b + b).min(width) - i * b) * (y1 - y0);
+                    *o /= n as f32;
+                }
             }
-            Kind::Grid { .. } => {
-                self.grid_at(0.5 * (x0 + x1 - 1) as f32, 0.5 * (y0 + y1 - 1) as f32)
+            Kind::Grid {
+                values,
+                cols,
+                rows,
+                cell,
+            } => {
+                let (iy, jy, fy) = grid_coord(0.5 * (y0 + y1 - 1) as f32, *cell, *rows);
+                let column: Vec<f32> = (0..*cols)
+                    .map(|i| values[iy * cols + i] * (1.0 - fy) + values[jy * cols + i] * fy)
+                    .collect();
+                for (i, o) in out.iter_mut().enumerate() {
+                    let x1 = (i * b + b).min(width);
+                    let (ix, jx, fx) = grid_coord(0.5 * (i * b + x1 - 1) as f32, *cell, *cols);
+                    *o = column[ix] + (column[jx] - column[ix]) * fx;
+                }
             }
         }
     }
@@ -162,6 +184,49 @@ impl Background {
                 }
             }
         }
+    }
+
+    /// This background for `small`, the photo decimated by `d` (see [`Photo::decimated`]): a
+    /// grid with `d` times smaller cells (exact: decimated pixel centre i lies at full
+    /// resolution i d + (d - 1) / 2), the noise measured again on `small`'s pixels. A plate is
+    /// decimated as the photo is.
+    pub fn decimated(&self, d: usize, small: &Photo) -> Background {
+        let kind = match &self.kind {
+            Kind::Grid {
+                values,
+                cols,
+                rows,
+                cell,
+            } => Kind::Grid {
+                values: values.clone(),
+                cols: *cols,
+                rows: *rows,
+                cell: cell / d as f32,
+            },
+            Kind::Plate(v, w) => {
+                let plate = Photo::from_luma(std::path::Path::new(""), *w, v.len() / w, v.clone());
+                Kind::Plate(plate.decimated(d).luma(), small.width)
+            }
+        };
+        let mut out = Background {
+            kind,
+            polarity: self.polarity,
+            noise_sigma: self.noise_sigma,
+        };
+        // About 200 000 samples; residuals 3 full-resolution sigmas (an upper bound of the
+        // decimated noise) on the ball's side are left out, as in `estimate`.
+        let (w, h) = (small.width, small.height);
+        let step = ((w * h / 200_000) as f64).sqrt().max(1.0) as usize;
+        let sign = self.polarity.sign();
+        let clip = 3.0 * self.noise_sigma;
+        let mut resid: Vec<f32> = (0..h)
+            .step_by(step)
+            .flat_map(|y| (0..w).step_by(step).map(move |x| (x, y)))
+            .map(|(x, y)| small.at(x, y) - out.at(x, y))
+            .filter(|r| sign * r < clip)
+            .collect();
+        out.noise_sigma = robust_sigma(&mut resid).max(1e-6);
+        out
     }
 
     /// The ball-positive difference at a pixel: sign * (photo - background).
@@ -235,13 +300,12 @@ pub fn estimate(photo: &Photo, options: &BackgroundOptions) -> Background {
         }
         out
     };
-    use rayon::prelude::*;
     let samples: Vec<Vec<(usize, usize, f32)>> = (0..rows * cols)
         .into_par_iter()
         .map(|i| sample(i % cols, i / cols))
         .collect();
     let cell_medians: Vec<f32> = samples
-        .iter()
+        .par_iter()
         .map(|s| {
             let mut v: Vec<f32> = s.iter().map(|p| p.2).collect();
             median(&mut v)
@@ -261,9 +325,8 @@ pub fn estimate(photo: &Photo, options: &BackgroundOptions) -> Background {
     };
     // Residuals of all samples against the first estimate: noise level and polarity.
     let mut resid: Vec<f32> = samples
-        .iter()
-        .flatten()
-        .map(|&(x, y, v)| v - bg.at(x, y))
+        .par_iter()
+        .flat_map_iter(|s| s.iter().map(|&(x, y, v)| v - bg.at(x, y)))
         .collect();
     let polarity = options.polarity.unwrap_or_else(|| detect_polarity(&resid));
     let sigma = robust_sigma(&mut resid).max(1e-6);
@@ -307,11 +370,14 @@ pub fn estimate(photo: &Photo, options: &BackgroundOptions) -> Background {
         .map(|(s, f)| s.unwrap_or(f))
         .collect();
     bg.kind = grid(values);
+    let bg_ref = &bg;
     let mut resid: Vec<f32> = samples
-        .iter()
-        .flatten()
-        .map(|&(x, y, v)| v - bg.at(x, y))
-        .filter(|r| sign * r < 3.0 * sigma)
+        .par_iter()
+        .flat_map_iter(|s| {
+            s.iter()
+                .map(|&(x, y, v)| v - bg_ref.at(x, y))
+                .filter(|r| sign * r < 3.0 * sigma)
+        })
         .collect();
     // Residuals clipped on the ball side: the MAD of the kept ones slightly underestimates;
     // 3-sigma clipping of a Gaussian keeps 99.87 % of one tail, negligible.
@@ -321,17 +387,16 @@ pub fn estimate(photo: &Photo, options: &BackgroundOptions) -> Background {
 
 /// Use a clean plate as the background.
 pub fn from_plate(photo: &Photo, plate: &Photo, options: &BackgroundOptions) -> Background {
-    let mut resid: Vec<f32> = photo
-        .luma
-        .iter()
-        .zip(&plate.luma)
+    let plate = plate.luma();
+    let w = photo.width;
+    let mut resid: Vec<f32> = (0..photo.width * photo.height)
         .step_by(7)
-        .map(|(a, b)| a - b)
+        .map(|i| photo.at(i % w, i / w) - plate[i])
         .collect();
     let polarity = options.polarity.unwrap_or_else(|| detect_polarity(&resid));
     let sigma = robust_sigma(&mut resid).max(1e-6);
     Background {
-        kind: Kind::Plate(plate.luma.clone(), plate.width),
+        kind: Kind::Plate(plate, w),
         polarity,
         noise_sigma: sigma,
     }
@@ -340,9 +405,8 @@ pub fn from_plate(photo: &Photo, plate: &Photo, options: &BackgroundOptions) -> 
 /// Polarity from the tails of the residuals: the ball makes one tail long.
 fn detect_polarity(resid: &[f32]) -> Polarity {
     let mut v = resid.to_vec();
+    let med = median(&mut v);
     let sigma = robust_sigma(&mut v).max(1e-6);
-    let mut m = resid.to_vec();
-    let med = median(&mut m);
     let (mut up, mut down) = (0f64, 0f64);
     for &r in resid {
         let d = (r - med) / sigma;
@@ -362,9 +426,9 @@ fn detect_polarity(resid: &[f32]) -> Polarity {
 /// Quantile `q` of the cell values over a (2 half + 1)^2 window of cells.
 fn window_quantile(values: &[f32], cols: usize, rows: usize, half: usize, q: f32) -> Vec<f32> {
     let mut out = vec![0f32; values.len()];
-    let mut buf = Vec::with_capacity((2 * half + 1).pow(2));
-    for j in 0..rows {
-        for i in 0..cols {
+    out.par_chunks_mut(cols).enumerate().for_each(|(j, row)| {
+        let mut buf = Vec::with_capacity((2 * half + 1).pow(2));
+        for (i, o) in row.iter_mut().enumerate() {
             buf.clear();
             for jj in j.saturating_sub(half)..=(j + half).min(rows - 1) {
                 for ii in i.saturating_sub(half)..=(i + half).min(cols - 1) {
@@ -374,15 +438,14 @@ fn window_quantile(values: &[f32], cols: usize, rows: usize, half: usize, q: f32
                     }
                 }
             }
-            if buf.is_empty() {
-                out[j * cols + i] = f32::NAN;
-                continue;
-            }
-            let k = ((buf.len() - 1) as f32 * q).round() as usize;
-            let (_, v, _) = buf.select_nth_unstable_by(k, f32::total_cmp);
-            out[j * cols + i] = *v;
+            *o = if buf.is_empty() {
+                f32::NAN
+            } else {
+                let k = ((buf.len() - 1) as f32 * q).round() as usize;
+                *buf.select_nth_unstable_by(k, f32::total_cmp).1
+            };
         }
-    }
+    });
     out
 }
 
@@ -420,7 +483,63 @@ fn fill_holes(values: &mut [Option<f32>], cols: usize, rows: usize) {
 
 #[cfg(test)]
 mod tests {
-    use super::robust_sigma;
+    use super::*;
+
+    #[test]
+    fn the_background_of_the_decimated_photo_is_the_decimated_background() {
+        // A smooth backdrop with noise (a plane, which the bilinear grid holds exactly away from
+        // the clamped border cells), estimated at full resolution and carried to the photo
+        // decimated by 3: there it matches the plane at the decimated pixels' centres.
+        let (w, h) = (960usize, 600usize);
+        let plane = |x: f32, y: f32| 0.2 + 0.0002 * x + 0.0001 * y;
+        // Noise: the MurmurHash3 finaliser of the pixel index, uniform in +-0.01 (sigma 0.0058).
+        let noise = |i: usize| {
+            let mut x = i as u64 + 1;
+            x ^= x >> 33;
+            x = x.wrapping_mul(0xff51_afd7_ed55_8ccd);
+            x ^= x >> 33;
+            x = x.wrapping_mul(0xc4ce_b9fe_1a85_ec53);
+            x ^= x >> 33;
+            (x % 2001) as f32 * 1e-5 - 0.01
+        };
+        let luma: Vec<f32> = (0..w * h)
+            .map(|i| plane((i % w) as f32, (i / w) as f32) + noise(i))
+            .collect();
+        let photo = Photo::from_luma(std::path::Path::new("plane.png"), w, h, luma);
+        let opts = BackgroundOptions {
+            polarity: Some(Polarity::Bright),
+            ..BackgroundOptions::default()
+        };
+        let full = estimate(&photo, &opts);
+        let small = photo.decimated(3);
+        let carried = full.decimated(3, &small);
+        let mut worst = 0f32;
+        for y in (50..150).step_by(3) {
+            for x in (50..270).step_by(3) {
+                let centre = plane((3 * x + 1) as f32, (3 * y + 1) as f32);
+                worst = worst.max((carried.at(x, y) - centre).abs());
+                // The same grid read at the same place at both resolutions.
+                assert!((carried.at(x, y) - full.at(3 * x + 1, 3 * y + 1)).abs() < 1e-6);
+            }
+        }
+        // Each cell is the median of about 64 samples: 1.25 x 0.0058 / 8 = 0.0009 of noise.
+        assert!(worst < 0.003, "decimated grid off by {worst}");
+        // The noise is measured again on the decimated photo. Full resolution: 1.4826 x MAD of a
+        // uniform +-0.01 is 1.4826 x 0.005 = 0.0074; the mean of 9 such pixels is nearly
+        // Gaussian, its standard deviation 0.02 / sqrt(12) / 3 = 0.0019 (the grid's own error
+        // adds a little).
+        assert!(
+            (full.noise_sigma / 0.00741 - 1.0).abs() < 0.05,
+            "{}",
+            full.noise_sigma
+        );
+        let sd = 0.02 / 12f32.sqrt() / 3.0;
+        assert!(
+            (carried.noise_sigma / sd - 1.0).abs() < 0.1,
+            "{}",
+            carried.noise_sigma
+        );
+    }
 
     #[test]
     fn robust_sigma_of_gaussian_noise_and_of_quantised_noise() {

@@ -632,7 +632,7 @@ fn write_debug(
             .save(&dir.join("3-threshold.png"))?;
     }
     Canvas::from_luma(w, h, &scaled(&d.votes)).save(&dir.join("4-votes.png"))?;
-    let mut c = Canvas::from_luma(w, h, &photo.luma);
+    let mut c = Canvas::from_luma(w, h, &photo.luma());
     for s in &report.spots {
         c.circle(s.x_px, s.y_px, s.r_px, GREEN);
     }

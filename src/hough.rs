@@ -112,15 +112,93 @@ pub fn prepare_region(
     let x1 = (blob.x1 + margin_px).min(photo.width - 1);
     let y1 = (blob.y1 + margin_px).min(photo.height - 1);
     let (w, h) = (x1 - x0 + 1, y1 - y0 + 1);
+    let raw = difference_crop(photo, background, x0, y0, w, h);
+    Region {
+        x0,
+        y0,
+        width: w,
+        height: h,
+        edges: edge_points(&raw, w, h, x0, y0, options, |_, _| true),
+    }
+}
+
+/// The region `x0..=x1` x `y0..=y1` of the photo with the edge points of the given circles only:
+/// those within `band_px` of one of their rims, each taken from a crop around its own circle
+/// (for a large ball found on a decimated photo: the full-resolution rims cost a fraction of
+/// the region's area). A point near two rims is kept once.
+pub fn prepare_band(
+    photo: &Photo,
+    background: &Background,
+    (x0, y0, x1, y1): (usize, usize, usize, usize),
+    circles: &[(f64, f64, f64)],
+    band_px: f64,
+    options: &HoughOptions,
+) -> Region {
+    let x1 = x1.min(photo.width - 1);
+    let y1 = y1.min(photo.height - 1);
+    let in_band = |k: usize, x: f64, y: f64| {
+        let (cx, cy, r) = circles[k];
+        ((x - cx).hypot(y - cy) - r).abs() <= band_px
+    };
+    // Room for the smoothing, the Sobel operator and the sub-pixel peak's neighbours.
+    const HALO_PX: f64 = 6.0;
+    let mut edges = Vec::new();
+    for (k, &(cx, cy, r)) in circles.iter().enumerate() {
+        let reach = r + band_px + HALO_PX;
+        let clip = |v: f64, lo: usize, hi: usize| (v.max(lo as f64).min(hi as f64)) as usize;
+        let (cx0, cx1) = (clip(cx - reach, x0, x1), clip(cx + reach, x0, x1));
+        let (cy0, cy1) = (clip(cy - reach, y0, y1), clip(cy + reach, y0, y1));
+        if cx1 < cx0 + 4 || cy1 < cy0 + 4 {
+            continue;
+        }
+        let (w, h) = (cx1 - cx0 + 1, cy1 - cy0 + 1);
+        let raw = difference_crop(photo, background, cx0, cy0, w, h);
+        let keep = |x: f64, y: f64| in_band(k, x, y) && (0..k).all(|j| !in_band(j, x, y));
+        edges.extend(edge_points(&raw, w, h, cx0, cy0, options, keep));
+    }
+    Region {
+        x0,
+        y0,
+        width: x1 - x0 + 1,
+        height: y1 - y0 + 1,
+        edges,
+    }
+}
+
+/// The ball-positive difference (photo - background, signed by the polarity) over the crop of
+/// `w` x `h` pixels at (`x0`, `y0`), row-major.
+fn difference_crop(
+    photo: &Photo,
+    background: &Background,
+    x0: usize,
+    y0: usize,
+    w: usize,
+    h: usize,
+) -> Vec<f32> {
     let mut raw = Vec::with_capacity(w * h);
     let mut bg_row = vec![0f32; w];
+    let mut luma = vec![0f32; w];
     let sign = background.polarity.sign();
-    for y in y0..=y1 {
+    for y in y0..y0 + h {
         background.row(y, x0, &mut bg_row);
-        let luma = &photo.luma[y * photo.width + x0..=y * photo.width + x1];
+        photo.row(y, x0, &mut luma);
         raw.extend(luma.iter().zip(&bg_row).map(|(v, g)| sign * (v - g)));
     }
-    let (gx, gy, mag) = gradient(&raw, w, h, options.smooth_px);
+    raw
+}
+
+/// Sub-pixel edge points of a difference crop (`w` x `h` at `x0`, `y0` in the photo) whose
+/// photo position (x, y) passes `keep`.
+fn edge_points(
+    raw: &[f32],
+    w: usize,
+    h: usize,
+    x0: usize,
+    y0: usize,
+    options: &HoughOptions,
+    keep: impl Fn(f64, f64) -> bool,
+) -> Vec<EdgePoint> {
+    let (gx, gy, mag) = gradient(raw, w, h, options.smooth_px);
     // Noise of one gradient component: robust sigma over the crop (edges are a minority).
     let mut sample: Vec<f32> = gx.iter().step_by(3).copied().collect();
     let sigma_g = robust_sigma(&mut sample).max(1e-7);
@@ -145,9 +223,13 @@ pub fn prepare_region(
             let Some(offset) = peak_offset(|i, j| mag[j * w + i], w, h, x, y, ux, uy) else {
                 continue;
             };
+            let (ex, ey) = ((x0 + x) as f64 + offset * ux, (y0 + y) as f64 + offset * uy);
+            if !keep(ex, ey) {
+                continue;
+            }
             edges.push(EdgePoint {
-                x_px: (x0 + x) as f64 + offset * ux,
-                y_px: (y0 + y) as f64 + offset * uy,
+                x_px: ex,
+                y_px: ey,
                 ux,
                 uy,
                 magnitude: m,
@@ -166,7 +248,7 @@ pub fn prepare_region(
         let snr = *m.select_nth_unstable_by(mid, f32::total_cmp).1 / sigma_g;
         if snr as f64 >= options.fine_snr {
             for (e, &(px, py)) in edges.iter_mut().zip(&at_pixel) {
-                let fine = |i, j| raw_magnitude(&raw, w, h, i, j);
+                let fine = |i, j| raw_magnitude(raw, w, h, i, j);
                 if let Some(offset) = peak_offset(fine, w, h, px, py, e.ux, e.uy) {
                     e.x_px = (x0 + px) as f64 + offset * e.ux;
                     e.y_px = (y0 + py) as f64 + offset * e.uy;
@@ -174,13 +256,7 @@ pub fn prepare_region(
             }
         }
     }
-    Region {
-        x0,
-        y0,
-        width: w,
-        height: h,
-        edges,
-    }
+    edges
 }
 
 /// Smoothed (Gaussian, sigma in pixels; 0 = none) Sobel gradient of a crop: x, y components and

@@ -41,8 +41,18 @@ pub struct Photo {
     pub width: usize,
     /// Height, pixels.
     pub height: usize,
-    /// Luma 0..1, row-major.
-    pub luma: Vec<f32>,
+    /// The luma samples, row-major, as decoded.
+    samples: Samples,
+}
+
+/// Luma samples as the decoder gave them: 8 or 16 bit kept exactly (read as f32 0..1, so a
+/// 24-megapixel JPEG is not copied into a four times larger buffer), or f32 when the luma was
+/// computed (a colour photo's Rec. 709 weighted sum, a rendered image).
+#[derive(Debug, Clone)]
+enum Samples {
+    U8(Vec<u8>),
+    U16(Vec<u16>),
+    F32(Vec<f32>),
 }
 
 impl Photo {
@@ -53,13 +63,91 @@ impl Photo {
             path: path.to_path_buf(),
             width,
             height,
-            luma,
+            samples: Samples::F32(luma),
         }
     }
 
-    /// Value at a pixel.
+    /// Value at a pixel, luma 0..1.
+    #[inline]
     pub fn at(&self, x: usize, y: usize) -> f32 {
-        self.luma[y * self.width + x]
+        let i = y * self.width + x;
+        match &self.samples {
+            Samples::U8(v) => v[i] as f32 * (1.0 / 255.0),
+            Samples::U16(v) => v[i] as f32 * (1.0 / 65535.0),
+            Samples::F32(v) => v[i],
+        }
+    }
+
+    /// Values of row `y`, columns `x0..x0 + out.len()`, luma 0..1.
+    #[inline]
+    pub fn row(&self, y: usize, x0: usize, out: &mut [f32]) {
+        let i = y * self.width + x0;
+        let n = out.len();
+        match &self.samples {
+            Samples::U8(v) => {
+                for (o, &s) in out.iter_mut().zip(&v[i..i + n]) {
+                    *o = s as f32 * (1.0 / 255.0);
+                }
+            }
+            Samples::U16(v) => {
+                for (o, &s) in out.iter_mut().zip(&v[i..i + n]) {
+                    *o = s as f32 * (1.0 / 65535.0);
+                }
+            }
+            Samples::F32(v) => out.copy_from_slice(&v[i..i + n]),
+        }
+    }
+
+    /// The photo averaged over blocks of `d` x `d` pixels (the last row and column of blocks
+    /// cut at the edge): block (i, j) is centred on full-resolution pixel
+    /// (i d + (d - 1) / 2, j d + (d - 1) / 2).
+    pub fn decimated(&self, d: usize) -> Photo {
+        let d = d.max(1);
+        let (w, h) = (self.width.div_ceil(d), self.height.div_ceil(d));
+        let mut out = vec![0f32; w * h];
+        let width = self.width;
+        // Column sums over the block's rows (one vectorised add per sample), then sums of d
+        // columns, scaled once per block.
+        fn add<T: Copy>(src: &[T], col: &mut [f32], f: impl Fn(T) -> f32) {
+            for (c, &v) in col.iter_mut().zip(src) {
+                *c += f(v);
+            }
+        }
+        let scale = match &self.samples {
+            Samples::U8(_) => 1.0 / 255.0,
+            Samples::U16(_) => 1.0 / 65535.0,
+            Samples::F32(_) => 1.0,
+        };
+        out.par_chunks_mut(w.max(1))
+            .enumerate()
+            .for_each(|(j, row)| {
+                let (y0, y1) = (j * d, (j * d + d).min(self.height));
+                let mut col = vec![0f32; width];
+                for y in y0..y1 {
+                    let r = y * width..(y + 1) * width;
+                    match &self.samples {
+                        Samples::U8(v) => add(&v[r], &mut col, |s| s as f32),
+                        Samples::U16(v) => add(&v[r], &mut col, |s| s as f32),
+                        Samples::F32(v) => add(&v[r], &mut col, |s| s),
+                    }
+                }
+                for (i, (o, chunk)) in row.iter_mut().zip(col.chunks(d)).enumerate() {
+                    let n = ((i * d + d).min(width) - i * d) * (y1 - y0);
+                    *o = chunk.iter().sum::<f32>() * (scale / n as f32);
+                }
+            });
+        Photo::from_luma(&self.path, w, h, out)
+    }
+
+    /// All values, row-major, luma 0..1 (a copy).
+    pub fn luma(&self) -> Vec<f32> {
+        let mut out = vec![0f32; self.width * self.height];
+        if self.width > 0 {
+            out.par_chunks_mut(self.width)
+                .enumerate()
+                .for_each(|(y, row)| self.row(y, 0, row));
+        }
+        out
     }
 }
 
@@ -160,7 +248,7 @@ pub fn load_bytes(path: &Path, bytes: &[u8], options: &LoadOptions) -> Result<Ph
             ),
         ));
     }
-    Ok(to_photo(path, &img))
+    Ok(to_photo(path, img))
 }
 
 /// Decode only the luma plane of a YCbCr or grey JPEG (zune-jpeg skips the chroma's inverse
@@ -195,57 +283,85 @@ fn jpeg_luma(
     Ok(image::GrayImage::from_raw(w, h, raw))
 }
 
-/// Convert a decoded image to grey f32, rows in parallel.
-pub fn to_photo(path: &Path, img: &DynamicImage) -> Photo {
+/// A decoded image as a grey photo: 8- and 16-bit grey kept as they are, colour converted to
+/// Rec. 709 luma in f32 (rows in parallel).
+pub fn to_photo(path: &Path, img: DynamicImage) -> Photo {
     let (w, h) = (img.width() as usize, img.height() as usize);
-    let mut luma = vec![0f32; w * h];
     const KR: f32 = 0.2126;
     const KG: f32 = 0.7152;
     const KB: f32 = 0.0722;
-    match img {
-        DynamicImage::ImageLuma8(b) => {
-            let raw = b.as_raw();
-            luma.par_chunks_mut(w).enumerate().for_each(|(y, row)| {
-                for (x, v) in row.iter_mut().enumerate() {
-                    *v = raw[y * w + x] as f32 / 255.0;
-                }
-            });
-        }
+    let samples = match img {
+        DynamicImage::ImageLuma8(b) => Samples::U8(b.into_raw()),
+        DynamicImage::ImageLuma16(b) => Samples::U16(b.into_raw()),
         DynamicImage::ImageRgb8(b) => {
             let raw = b.as_raw();
-            luma.par_chunks_mut(w).enumerate().for_each(|(y, row)| {
-                let src = &raw[y * w * 3..(y + 1) * w * 3];
-                for (v, p) in row.iter_mut().zip(src.chunks_exact(3)) {
-                    *v = (KR * p[0] as f32 + KG * p[1] as f32 + KB * p[2] as f32) / 255.0;
-                }
-            });
-        }
-        DynamicImage::ImageLuma16(b) => {
-            let raw = b.as_raw();
-            luma.par_chunks_mut(w).enumerate().for_each(|(y, row)| {
-                for (x, v) in row.iter_mut().enumerate() {
-                    *v = raw[y * w + x] as f32 / 65535.0;
-                }
-            });
+            let mut luma = vec![0f32; w * h];
+            luma.par_chunks_mut(w.max(1))
+                .enumerate()
+                .for_each(|(y, row)| {
+                    let src = &raw[y * w * 3..(y + 1) * w * 3];
+                    for (v, p) in row.iter_mut().zip(src.chunks_exact(3)) {
+                        *v = (KR * p[0] as f32 + KG * p[1] as f32 + KB * p[2] as f32) / 255.0;
+                    }
+                });
+            Samples::F32(luma)
         }
         DynamicImage::ImageRgb16(b) => {
             let raw = b.as_raw();
-            luma.par_chunks_mut(w).enumerate().for_each(|(y, row)| {
-                let src = &raw[y * w * 3..(y + 1) * w * 3];
-                for (v, p) in row.iter_mut().zip(src.chunks_exact(3)) {
-                    *v = (KR * p[0] as f32 + KG * p[1] as f32 + KB * p[2] as f32) / 65535.0;
-                }
-            });
+            let mut luma = vec![0f32; w * h];
+            luma.par_chunks_mut(w.max(1))
+                .enumerate()
+                .for_each(|(y, row)| {
+                    let src = &raw[y * w * 3..(y + 1) * w * 3];
+                    for (v, p) in row.iter_mut().zip(src.chunks_exact(3)) {
+                        *v = (KR * p[0] as f32 + KG * p[1] as f32 + KB * p[2] as f32) / 65535.0;
+                    }
+                });
+            Samples::F32(luma)
         }
-        other => {
-            let g = other.to_luma32f();
-            luma.copy_from_slice(g.as_raw());
-        }
-    }
+        other => Samples::F32(other.to_luma32f().into_raw()),
+    };
     Photo {
         path: path.to_path_buf(),
         width: w,
         height: h,
-        luma,
+        samples,
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn decimation_averages_blocks_and_cuts_the_last_ones_at_the_edge() {
+        // 5 x 3 pixels of 8-bit values v = 10 x + y, decimated by 2: blocks 2 x 2, the last
+        // column and row of blocks 1 pixel wide or high. Truth: the mean of each block by hand.
+        let (w, h) = (5usize, 3usize);
+        let raw: Vec<u8> = (0..w * h).map(|i| (10 * (i % w) + i / w) as u8).collect();
+        let img = DynamicImage::ImageLuma8(image::GrayImage::from_raw(5, 3, raw).unwrap());
+        let photo = to_photo(Path::new("t.png"), img);
+        assert_eq!(photo.at(4, 2), 42.0 / 255.0);
+        let small = photo.decimated(2);
+        assert_eq!((small.width, small.height), (3, 2));
+        let want = [[5.5, 25.5, 40.5], [7.0, 27.0, 42.0]];
+        for (j, row) in want.iter().enumerate() {
+            for (i, &v) in row.iter().enumerate() {
+                let got = small.at(i, j) * 255.0;
+                assert!((got - v).abs() < 1e-4, "block ({i}, {j}): {got} vs {v}");
+            }
+        }
+        // A 16-bit photo and the same values in f32 decimate alike.
+        let raw16: Vec<u16> = (0..w * h)
+            .map(|i| (10 * (i % w) + i / w) as u16 * 257)
+            .collect();
+        let img = DynamicImage::ImageLuma16(image::ImageBuffer::from_raw(5, 3, raw16).unwrap());
+        let p16 = to_photo(Path::new("t.png"), img).decimated(2);
+        let pf = Photo::from_luma(Path::new("t.png"), w, h, photo.luma()).decimated(2);
+        for i in 0..6 {
+            let (x, y) = (i % 3, i / 3);
+            assert!((p16.at(x, y) - small.at(x, y)).abs() < 1e-6);
+            assert!((pf.at(x, y) - small.at(x, y)).abs() < 1e-6);
+        }
     }
 }

@@ -219,6 +219,123 @@ fn auto_radius(blobs: &Blobs) -> Option<(f64, f64)> {
     Some(((0.8 * r0 - slack).max(3.0), 1.25 * r0 + slack + 1.0))
 }
 
+/// Smallest radius of a ball on the decimated photo, pixels: a photo whose smallest searched
+/// radius is `r_min` is decimated by floor(r_min / COARSE_R_PX) when that is 2 or more (a 24 MP
+/// photo of a 75 px ball by 5), found there, and refined at full resolution.
+pub const COARSE_R_PX: f64 = 12.0;
+
+/// Half-width of the band around a circle found on the decimated photo in which its
+/// full-resolution edge points are looked for: this plus [`BAND_FRACTION`] x the radius, pixels.
+pub const BAND_PX: f64 = 3.0;
+
+/// See [`BAND_PX`].
+pub const BAND_FRACTION: f64 = 0.1;
+
+/// With the radius left to estimate, the blobs that estimate it come from the photo decimated
+/// to about this many megapixels (a 24 MP photo by 4, a 12 MP one by 2). The detection stays
+/// there when the radius found allows it (see [`COARSE_R_PX`]: the smallest radius is at least
+/// that many decimated pixels and less than twice as many), else it starts again at the
+/// decimation the radius asks for.
+pub const SURVEY_MEGAPIXELS: f64 = 1.5;
+
+fn coarse_factor(r_min_px: f64) -> usize {
+    ((r_min_px / COARSE_R_PX).floor() as usize).max(1)
+}
+
+/// The photo the detection works on (decimated by d, or the photo itself when `photo` is
+/// None), its background and blobs.
+struct Work {
+    photo: Option<Photo>,
+    bg: Background,
+    blobs: Blobs,
+}
+
+impl Work {
+    /// `bg` is the photo's own background (from its plate or estimated) at full resolution.
+    fn new(photo: &Photo, bg: &Background, options: &SpotOptions, d: usize) -> Result<Work> {
+        let small = (d > 1).then(|| photo.decimated(d));
+        let (p, bg) = match &small {
+            Some(s) => (s, bg.decimated(d, s)),
+            None => (photo, bg.clone()),
+        };
+        let blobs = threshold::find_blobs(p, &bg, &options.threshold);
+        if blobs.blobs.len() > options.max_candidates {
+            return Err(Error::measure(
+                &photo.path,
+                format!(
+                    "{} candidate regions, over the limit of {}: this looks like noise or texture, \
+                     not a strobe photo (raise the limit, the threshold, or give the radius range)",
+                    blobs.blobs.len(),
+                    options.max_candidates
+                ),
+            ));
+        }
+        Ok(Work {
+            photo: small,
+            bg,
+            blobs,
+        })
+    }
+}
+
+/// The regions found on the photo decimated by `d`, at full resolution: each region's circles
+/// (first fits there, and the vote's peaks they missed) carried to full-resolution
+/// coordinates, with the edge points in a band around them.
+fn full_resolution_regions(
+    photo: &Photo,
+    bg: &Background,
+    work_regions: &[hough::Region],
+    voted: &[(Vec<hough::Candidate>, Vec<f32>)],
+    d: usize,
+    r_min_px: f64,
+    options: &SpotOptions,
+) -> (Vec<hough::Region>, Vec<Vec<hough::Candidate>>) {
+    let df = d as f64;
+    let full = |v: f64| v * df + 0.5 * (df - 1.0);
+    let band = BAND_PX + BAND_FRACTION * r_min_px;
+    work_regions
+        .par_iter()
+        .zip(voted)
+        .map(|(r, (c, _))| {
+            let fits = refine::refine_region(r, c, None, &options.refine);
+            let mut starts: Vec<hough::Candidate> = fits
+                .iter()
+                .filter(|f| f.coverage >= 0.5 * options.min_score)
+                .map(|f| hough::Candidate {
+                    x_px: full(f.circle.x_px),
+                    y_px: full(f.circle.y_px),
+                    r_px: f.circle.r_px * df,
+                    strength: f.coverage,
+                })
+                .collect();
+            for cand in c {
+                let (x, y) = (full(cand.x_px), full(cand.y_px));
+                if starts
+                    .iter()
+                    .all(|s| (s.x_px - x).hypot(s.y_px - y) > 0.3 * cand.r_px * df)
+                {
+                    starts.push(hough::Candidate {
+                        x_px: x,
+                        y_px: y,
+                        r_px: cand.r_px * df,
+                        strength: cand.strength,
+                    });
+                }
+            }
+            let circles: Vec<(f64, f64, f64)> =
+                starts.iter().map(|s| (s.x_px, s.y_px, s.r_px)).collect();
+            let bbox = (
+                r.x0 * d,
+                r.y0 * d,
+                (r.x0 + r.width) * d - 1,
+                (r.y0 + r.height) * d - 1,
+            );
+            let region = hough::prepare_band(photo, bg, bbox, &circles, band, &options.hough);
+            (region, starts)
+        })
+        .unzip()
+}
+
 /// Find every ball image in `photo`; `plate` is an optional clean plate of the same size.
 pub fn find_spots(
     photo: &Photo,
@@ -226,34 +343,53 @@ pub fn find_spots(
     options: &SpotOptions,
     mut debug: Option<&mut DebugImages>,
 ) -> Result<SpotReport> {
-    let bg: Background = match plate {
-        Some(p) => {
-            if p.width != photo.width || p.height != photo.height {
-                return Err(Error::measure(
-                    &p.path,
-                    format!(
-                        "clean plate is {} x {} px but the photo is {} x {} px",
-                        p.width, p.height, photo.width, photo.height
-                    ),
-                ));
-            }
-            background::from_plate(photo, p, &options.background)
-        }
-        None => background::estimate(photo, &options.background),
-    };
-    let blobs = threshold::find_blobs(photo, &bg, &options.threshold);
-    if blobs.blobs.len() > options.max_candidates {
+    if let Some(p) = plate
+        && (p.width != photo.width || p.height != photo.height)
+    {
         return Err(Error::measure(
-            &photo.path,
+            &p.path,
             format!(
-                "{} candidate regions, over the limit of {}: this looks like noise or texture, not a \
-                 strobe photo (raise the limit, the threshold, or give the radius range)",
-                blobs.blobs.len(),
-                options.max_candidates
+                "clean plate is {} x {} px but the photo is {} x {} px",
+                p.width, p.height, photo.width, photo.height
             ),
         ));
     }
-    let radius = options.radius_px.or_else(|| auto_radius(&blobs));
+    // Large balls are found on the photo averaged over d x d blocks and refined at full
+    // resolution; with the radius left to estimate, it is estimated first on the photo
+    // decimated to at most about SURVEY_MEGAPIXELS.
+    let survey = ((photo.width * photo.height) as f64 / (SURVEY_MEGAPIXELS * 1e6))
+        .sqrt()
+        .floor()
+        .max(1.0) as usize;
+    let mut d = options
+        .radius_px
+        .map_or(survey, |(r_min, _)| coarse_factor(r_min));
+    let bg: Background = match plate {
+        Some(p) => background::from_plate(photo, p, &options.background),
+        None => background::estimate(photo, &options.background),
+    };
+    let mut work = Work::new(photo, &bg, options, d)?;
+    let mut radius = options
+        .radius_px
+        .or_else(|| auto_radius(&work.blobs).map(|(a, b)| (a * d as f64, b * d as f64)));
+    if let Some((r_min, _)) = radius
+        && (coarse_factor(r_min) < d || coarse_factor(r_min) >= 2 * d)
+    {
+        d = coarse_factor(r_min);
+        work = Work::new(photo, &bg, options, d)?;
+    }
+    if radius.is_none() && d > 1 {
+        // Nothing round enough on the survey: small balls need the full resolution.
+        d = 1;
+        work = Work::new(photo, &bg, options, d)?;
+        radius = auto_radius(&work.blobs);
+    }
+    let Work {
+        photo: work_photo,
+        bg: work_bg,
+        blobs,
+    } = work;
+    let work_photo = work_photo.as_ref().unwrap_or(photo);
     let mut report = SpotReport {
         width_px: photo.width,
         height_px: photo.height,
@@ -267,33 +403,51 @@ pub fn find_spots(
         spots: Vec::new(),
         rejected: Vec::new(),
     };
-    if let Some(d) = debug.as_deref_mut() {
+    if let Some(dbg) = debug.as_deref_mut() {
         let (w, h) = (photo.width, photo.height);
-        d.background = (0..w * h).map(|i| bg.at(i % w, i / w)).collect();
-        d.difference = (0..w * h)
+        dbg.background = (0..w * h).map(|i| bg.at(i % w, i / w)).collect();
+        dbg.difference = (0..w * h)
             .map(|i| bg.difference(photo, i % w, i / w))
             .collect();
-        d.mask = Some(blobs.mask.clone());
-        d.votes = vec![0.0; w * h];
+        dbg.mask = Some(blobs.mask.clone());
+        dbg.votes = vec![0.0; w * h];
     }
     let Some((r_min, r_max)) = radius else {
         return Ok(report);
     };
-    let margin = (0.5 * r_max + 4.0).ceil() as usize;
-    let regions: Vec<hough::Region> = blobs
+    let df = d as f64;
+    let (rw_min, rw_max) = (r_min / df, r_max / df);
+    let margin = (0.5 * rw_max + 4.0).ceil() as usize;
+    let work_regions: Vec<hough::Region> = blobs
         .blobs
         .par_iter()
-        .map(|b| hough::prepare_region(photo, &bg, b, margin, &options.hough))
+        .map(|b| hough::prepare_region(work_photo, &work_bg, b, margin, &options.hough))
         .collect();
-    let voted: Vec<(Vec<hough::Candidate>, Vec<f32>)> = regions
+    let voted: Vec<(Vec<hough::Candidate>, Vec<f32>)> = work_regions
         .par_iter()
-        .map(|r| hough::vote(r, r_min, r_max, &options.hough, debug.is_some()))
+        .map(|r| hough::vote(r, rw_min, rw_max, &options.hough, debug.is_some()))
         .collect();
+    if let Some(dbg) = debug {
+        let w = photo.width;
+        for (r, (_, acc)) in work_regions.iter().zip(&voted) {
+            for y in r.y0 * d..((r.y0 + r.height) * d).min(photo.height) {
+                for x in r.x0 * d..((r.x0 + r.width) * d).min(w) {
+                    let v = &mut dbg.votes[y * w + x];
+                    *v = v.max(acc[(y / d - r.y0) * r.width + x / d - r.x0]);
+                }
+            }
+        }
+    }
+    let (regions, candidates): (Vec<hough::Region>, Vec<Vec<hough::Candidate>>) = if d == 1 {
+        (work_regions, voted.into_iter().map(|v| v.0).collect())
+    } else {
+        full_resolution_regions(photo, &bg, &work_regions, &voted, d, r_min, options)
+    };
     // Pass 1: free radii, to learn the common radius.
     let first: Vec<Vec<CircleFit>> = regions
         .par_iter()
-        .zip(&voted)
-        .map(|(r, (c, _))| refine::refine_region(r, c, None, &options.refine))
+        .zip(&candidates)
+        .map(|(r, c)| refine::refine_region(r, c, None, &options.refine))
         .collect();
     let mut good: Vec<refine::Circle> = first
         .iter()
@@ -326,8 +480,8 @@ pub fn find_spots(
     let fits: Vec<CircleFit> = regions
         .par_iter()
         .zip(&first)
-        .zip(&voted)
-        .flat_map_iter(|((r, f), (c, _))| {
+        .zip(&candidates)
+        .flat_map_iter(|((r, f), c)| {
             let mut starts: Vec<hough::Candidate> = f
                 .iter()
                 .map(|f| hough::Candidate {
@@ -354,17 +508,6 @@ pub fn find_spots(
             )
         })
         .collect();
-    if let Some(d) = debug {
-        let w = photo.width;
-        for (r, (_, acc)) in regions.iter().zip(&voted) {
-            for y in 0..r.height {
-                for x in 0..r.width {
-                    let v = &mut d.votes[(r.y0 + y) * w + r.x0 + x];
-                    *v = v.max(acc[y * r.width + x]);
-                }
-            }
-        }
-    }
     // Regions overlap at their margins: one image may be fitted twice.
     let mut fits = fits;
     fits.sort_by(|a, b| b.coverage.total_cmp(&a.coverage));

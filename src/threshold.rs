@@ -97,16 +97,18 @@ pub fn find_blobs(photo: &Photo, background: &Background, options: &ThresholdOpt
     means.par_chunks_mut(bw).enumerate().for_each(|(by, row)| {
         let y0 = by * b;
         let y1 = (y0 + b).min(h);
+        let mut luma = vec![0f32; w];
         for y in y0..y1 {
-            let luma = &photo.luma[y * w..(y + 1) * w];
+            photo.row(y, 0, &mut luma);
             for (cell, chunk) in row.iter_mut().zip(luma.chunks(b)) {
                 *cell += chunk.iter().sum::<f32>();
             }
         }
-        for (bx, v) in row.iter_mut().enumerate() {
-            let (x0, x1) = (bx * b, (bx * b + b).min(w));
-            let n = ((x1 - x0) * (y1 - y0)) as f32;
-            *v = sign * (*v / n - background.block_mean(x0, y0, x1, y1));
+        let mut bg = vec![0f32; row.len()];
+        background.block_means(y0, y1, b, w, &mut bg);
+        for (bx, (v, g)) in row.iter_mut().zip(&bg).enumerate() {
+            let n = (((bx * b + b).min(w) - bx * b) * (y1 - y0)) as f32;
+            *v = sign * (*v / n - g);
         }
     });
     let level_of = |v: &[f32]| {
