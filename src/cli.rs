@@ -244,6 +244,11 @@ struct DetectArgs {
     /// their pixels, pixels (0: edge fit only).
     #[arg(long, default_value_t = 40.0)]
     shaded_max_r: f64,
+    /// Smallest radius of a ball on the decimated photo, pixels: with the smallest searched radius
+    /// r_min, the photo is averaged over floor(r_min / this) pixels squared for the blobs and the
+    /// vote, and the rims are fitted at full resolution (0: full resolution throughout).
+    #[arg(long, default_value_t = spots::COARSE_R_PX)]
+    coarse_r: f64,
     /// Systematic centre uncertainty of a lit sphere's edge, pixels x radius (common to all images).
     #[arg(long, default_value_t = 0.5)]
     edge_systematic: f64,
@@ -553,6 +558,13 @@ impl DetectArgs {
             );
         }
         o.shaded_max_r_px = self.shaded_max_r;
+        if !(self.coarse_r.is_finite() && (self.coarse_r == 0.0 || self.coarse_r >= 4.0)) {
+            bail!(
+                "--coarse-r: must be 0 (off) or at least 4 pixels, got {}",
+                self.coarse_r
+            );
+        }
+        o.coarse_r_px = self.coarse_r;
         o.one_radius = !self.sizes_differ;
         o.faint_fraction = self.faint;
         if self.max_candidates == 0 {

@@ -61,6 +61,8 @@ pub struct Profile {
     pub fine_snr: Option<f64>,
     /// `--shaded-max-r`, pixels.
     pub shaded_max_r_px: Option<f64>,
+    /// `--coarse-r`, pixels.
+    pub coarse_r_px: Option<f64>,
     /// `--edge-sigma`.
     pub edge_sigma: Option<f64>,
     /// `--min-score`.
@@ -113,6 +115,7 @@ pub const PROFILE_KEYS: &[(&str, &str)] = &[
     ("smooth_px", "--smooth"),
     ("fine_snr", "--fine-snr"),
     ("shaded_max_r_px", "--shaded-max-r"),
+    ("coarse_r_px", "--coarse-r"),
     ("edge_sigma", "--edge-sigma"),
     ("min_score", "--min-score"),
     ("radius_tolerance", "--radius-tolerance"),
@@ -227,6 +230,7 @@ impl Profile {
             ("--smooth", self.smooth_px),
             ("--fine-snr", self.fine_snr),
             ("--shaded-max-r", self.shaded_max_r_px),
+            ("--coarse-r", self.coarse_r_px),
             ("--edge-sigma", self.edge_sigma),
             ("--min-score", self.min_score),
             ("--radius-tolerance", self.radius_tolerance),

@@ -113,6 +113,10 @@ pub struct SpotOptions {
     pub shaded_max_r_px: f64,
     /// How the photo's values encode light (the shaded fit works in linear light).
     pub tone: Tone,
+    /// Smallest radius a ball keeps on the decimated photo, pixels: a photo whose smallest
+    /// searched radius is r_min is decimated by floor(r_min / this) when that is 2 or more, found
+    /// there and refined at full resolution (0: full resolution throughout).
+    pub coarse_r_px: f64,
     /// All images show one ball, so they share one radius (or a smooth radius model across the
     /// photo): short rims keep that radius and other radii are rejected. False for photos of
     /// several objects of different sizes.
@@ -149,6 +153,7 @@ impl Default for SpotOptions {
             systematic_px_r: 0.5,
             shaded_max_r_px: 40.0,
             tone: Tone::Srgb,
+            coarse_r_px: COARSE_R_PX,
         }
     }
 }
@@ -175,6 +180,9 @@ pub struct SpotReport {
     /// Systematic 1-sigma of every centre (common to all images; 0 once shaded fits measured and
     /// removed the lit-limb pull), pixels.
     pub systematic_px: f64,
+    /// The blobs and the vote came from the photo averaged over blocks of this many pixels
+    /// squared (1: full resolution).
+    pub decimation: usize,
     /// Ball images, sorted by x.
     pub spots: Vec<Spot>,
     /// Candidates dropped, with the reason.
@@ -219,9 +227,8 @@ fn auto_radius(blobs: &Blobs) -> Option<(f64, f64)> {
     Some(((0.8 * r0 - slack).max(3.0), 1.25 * r0 + slack + 1.0))
 }
 
-/// Smallest radius of a ball on the decimated photo, pixels: a photo whose smallest searched
-/// radius is `r_min` is decimated by floor(r_min / COARSE_R_PX) when that is 2 or more (a 24 MP
-/// photo of a 75 px ball by 5), found there, and refined at full resolution.
+/// Default of [`SpotOptions::coarse_r_px`], pixels (a 24 MP photo of a 75 px ball is decimated
+/// by 5; balls under 24 px stay at full resolution).
 pub const COARSE_R_PX: f64 = 12.0;
 
 /// Half-width of the band around a circle found on the decimated photo in which its
@@ -233,13 +240,17 @@ pub const BAND_FRACTION: f64 = 0.1;
 
 /// With the radius left to estimate, the blobs that estimate it come from the photo decimated
 /// to about this many megapixels (a 24 MP photo by 4, a 12 MP one by 2). The detection stays
-/// there when the radius found allows it (see [`COARSE_R_PX`]: the smallest radius is at least
+/// there when the radius found allows it (see [`SpotOptions::coarse_r_px`]: the smallest radius is at least
 /// that many decimated pixels and less than twice as many), else it starts again at the
 /// decimation the radius asks for.
 pub const SURVEY_MEGAPIXELS: f64 = 1.5;
 
-fn coarse_factor(r_min_px: f64) -> usize {
-    ((r_min_px / COARSE_R_PX).floor() as usize).max(1)
+fn coarse_factor(r_min_px: f64, coarse_r_px: f64) -> usize {
+    if coarse_r_px > 0.0 {
+        ((r_min_px / coarse_r_px).floor() as usize).max(1)
+    } else {
+        1
+    }
 }
 
 /// The photo the detection works on (decimated by d, or the photo itself when `photo` is
@@ -357,13 +368,17 @@ pub fn find_spots(
     // Large balls are found on the photo averaged over d x d blocks and refined at full
     // resolution; with the radius left to estimate, it is estimated first on the photo
     // decimated to at most about SURVEY_MEGAPIXELS.
-    let survey = ((photo.width * photo.height) as f64 / (SURVEY_MEGAPIXELS * 1e6))
-        .sqrt()
-        .floor()
-        .max(1.0) as usize;
-    let mut d = options
-        .radius_px
-        .map_or(survey, |(r_min, _)| coarse_factor(r_min));
+    let survey = if options.coarse_r_px > 0.0 {
+        ((photo.width * photo.height) as f64 / (SURVEY_MEGAPIXELS * 1e6))
+            .sqrt()
+            .floor()
+            .max(1.0) as usize
+    } else {
+        1
+    };
+    let mut d = options.radius_px.map_or(survey, |(r_min, _)| {
+        coarse_factor(r_min, options.coarse_r_px)
+    });
     let bg: Background = match plate {
         Some(p) => background::from_plate(photo, p, &options.background),
         None => background::estimate(photo, &options.background),
@@ -373,9 +388,10 @@ pub fn find_spots(
         .radius_px
         .or_else(|| auto_radius(&work.blobs).map(|(a, b)| (a * d as f64, b * d as f64)));
     if let Some((r_min, _)) = radius
-        && (coarse_factor(r_min) < d || coarse_factor(r_min) >= 2 * d)
+        && (coarse_factor(r_min, options.coarse_r_px) < d
+            || coarse_factor(r_min, options.coarse_r_px) >= 2 * d)
     {
-        d = coarse_factor(r_min);
+        d = coarse_factor(r_min, options.coarse_r_px);
         work = Work::new(photo, &bg, options, d)?;
     }
     if radius.is_none() && d > 1 {
@@ -400,6 +416,7 @@ pub fn find_spots(
         common_radius_px: None,
         radius_model: None,
         systematic_px: 0.0,
+        decimation: d,
         spots: Vec::new(),
         rejected: Vec::new(),
     };

@@ -58,6 +58,12 @@ pub struct SpotSettings {
     pub shaded_max_r_px: f64,
     /// How the photo's values were taken to encode light.
     pub tone: crate::spots::Tone,
+    /// Smallest radius kept on the decimated photo, pixels (0: full resolution throughout).
+    #[serde(default)]
+    pub coarse_r_px: f64,
+    /// The blobs and the vote came from the photo averaged over blocks of this side, pixels.
+    #[serde(default)]
+    pub decimation: usize,
 }
 
 /// `beadline spots --format json`.
@@ -112,6 +118,8 @@ impl SpotsDoc {
                 edge_systematic_px_r: options.systematic_px_r,
                 shaded_max_r_px: options.shaded_max_r_px,
                 tone: options.tone,
+                coarse_r_px: options.coarse_r_px,
+                decimation: report.decimation,
             },
             spots: report.spots.clone(),
             rejected: report.rejected.clone(),
