@@ -1,8 +1,9 @@
 //! Circular Hough transform (ours): edge points of a region vote for circle centres along their
 //! gradient direction.
 //!
-//! Goes in: a region of the photo around one blob, its background and a radius range. Comes out:
-//! a [`Region`] with sub-pixel edge points and [`Candidate`] centres.
+//! Goes in: a region of the photo around one blob, its background and a radius range (or, at
+//! full resolution after a decimated search, the circles found there). Comes out: a [`Region`]
+//! with sub-pixel edge points and [`Candidate`] centres.
 //!
 //! Method: the ball-positive difference is smoothed with a Gaussian (imageproc), differentiated
 //! with the Sobel operator, thinned by non-maximum suppression along the gradient, and each edge

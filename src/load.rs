@@ -1,9 +1,11 @@
 //! Load: a photo file to a grey working image in full precision.
 //!
 //! Goes in: a JPEG, PNG or TIFF (8 or 16 bit, grey or colour, EXIF orientation applied). Comes out:
-//! a [`Photo`] of f32 luma values 0..1 (Rec. 709 weights on the stored values; a YCbCr JPEG gives
-//! its stored luma plane directly, which its encoder made with the Rec. 601 weights, and its
-//! chroma is never decoded). Decoding limits refuse hostile files (a header claiming
+//! a [`Photo`] read as f32 luma values 0..1 at full precision: 8- and 16-bit grey samples are
+//! kept exactly as decoded (no copy four times larger), colour is converted to f32 luma (Rec. 709
+//! weights on the stored values; a YCbCr JPEG gives its stored luma plane directly, which its
+//! encoder made with the Rec. 601 weights, and its chroma is never decoded). A photo can be
+//! decimated to block means for the detection of large balls. Decoding limits refuse hostile files (a header claiming
 //! 100000 x 100000 pixels) before any large allocation.
 
 use crate::error::{Error, Result};

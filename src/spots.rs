@@ -3,8 +3,14 @@
 //! Goes in: a photo. Comes out: [`Spot`]s with sub-pixel centres, radius, a 1-sigma centre
 //! uncertainty and a score, plus the candidates that were rejected and why. Isolated images are
 //! refined by a shaded-sphere fit of their pixels in linear light (the stored values decoded by
-//! the photo's [`Tone`], sRGB by default); the others by their edges, corrected by the lit-limb pull those fits
-//! measure.
+//! the photo's [`Tone`], sRGB by default); the others by their edges, corrected by the lit-limb
+//! pull those fits measure.
+//!
+//! A large ball (smallest searched radius at least 2 x [`SpotOptions::coarse_r_px`]) is found on
+//! the photo averaged over d x d blocks: background, threshold, vote and first circle fits run
+//! there; then each circle's edge points are extracted at full resolution in a band around it
+//! ([`hough::prepare_band`]) and every fit is made again on them. The pixel work of a 24 MP photo
+//! of a 75 px ball falls to about a fifth.
 
 use serde::{Deserialize, Serialize};
 
