@@ -304,7 +304,7 @@ fn full_resolution_regions(
     work_regions: &[hough::Region],
     voted: &[(Vec<hough::Candidate>, Vec<f32>)],
     d: usize,
-    r_min_px: f64,
+    (r_min_px, r_max_px): (f64, f64),
     options: &SpotOptions,
 ) -> (Vec<hough::Region>, Vec<Vec<hough::Candidate>>) {
     let df = d as f64;
@@ -315,9 +315,14 @@ fn full_resolution_regions(
         .zip(voted)
         .map(|(r, (c, _))| {
             let fits = refine::refine_region(r, c, None, &options.refine);
+            // A fit that left the searched radii (a small object on the coarse photo) starts
+            // nothing: the vote's peak there is retried instead.
+            let r_range = 0.5 * r_min_px..=2.0 * r_max_px;
             let mut starts: Vec<hough::Candidate> = fits
                 .iter()
-                .filter(|f| f.coverage >= 0.5 * options.min_score)
+                .filter(|f| {
+                    f.coverage >= 0.5 * options.min_score && r_range.contains(&(f.circle.r_px * df))
+                })
                 .map(|f| hough::Candidate {
                     x_px: full(f.circle.x_px),
                     y_px: full(f.circle.y_px),
@@ -464,7 +469,15 @@ pub fn find_spots(
     let (regions, candidates): (Vec<hough::Region>, Vec<Vec<hough::Candidate>>) = if d == 1 {
         (work_regions, voted.into_iter().map(|v| v.0).collect())
     } else {
-        full_resolution_regions(photo, &bg, &work_regions, &voted, d, r_min, options)
+        full_resolution_regions(
+            photo,
+            &bg,
+            &work_regions,
+            &voted,
+            d,
+            (r_min, r_max),
+            options,
+        )
     };
     // Pass 1: free radii, to learn the common radius.
     let first: Vec<Vec<CircleFit>> = regions
@@ -574,9 +587,13 @@ pub fn find_spots(
             || c.y_px > photo.height as f64 - 0.5
         {
             Some(Reason::OutsideFrame)
-        } else if options.one_radius
+        } else if (options.one_radius
             && (c.r_px - model.at(c.x_px, c.y_px)).abs()
-                > options.radius_tolerance * model.at(c.x_px, c.y_px)
+                > options.radius_tolerance * model.at(c.x_px, c.y_px))
+            || options.radius_px.is_some_and(|(lo, hi)| {
+                c.r_px < lo * (1.0 - options.radius_tolerance)
+                    || c.r_px > hi * (1.0 + options.radius_tolerance)
+            })
         {
             Some(Reason::Radius)
         } else if f.coverage < options.min_score || f.rms_px > rms_limit {

@@ -610,4 +610,12 @@ shading = false
         let r = report.common_radius_px.unwrap();
         assert!((r - 45.0).abs() < 0.15, "{radius_px:?}: radius {r}");
     }
+    // A searched range far above the ball's radius (decimation by 12, where the ball is under
+    // 4 px) keeps nothing of another radius.
+    let options = SpotOptions {
+        radius_px: Some((150.0, 250.0)),
+        ..SpotOptions::default()
+    };
+    let report = find_spots(&img, None, &options, None).unwrap();
+    assert!(report.spots.is_empty(), "{:?}", report.spots);
 }
