@@ -143,10 +143,7 @@ impl Background {
                 rows,
                 cell,
             } => {
-                let (iy, jy, fy) = grid_coord(0.5 * (y0 + y1 - 1) as f32, *cell, *rows);
-                let column: Vec<f32> = (0..*cols)
-                    .map(|i| values[iy * cols + i] * (1.0 - fy) + values[jy * cols + i] * fy)
-                    .collect();
+                let column = grid_row(values, *cols, *rows, *cell, 0.5 * (y0 + y1 - 1) as f32);
                 for (i, o) in out.iter_mut().enumerate() {
                     let x1 = (i * b + b).min(width);
                     let (ix, jx, fx) = grid_coord(0.5 * (i * b + x1 - 1) as f32, *cell, *cols);
@@ -167,10 +164,7 @@ impl Background {
                 rows,
                 cell,
             } => {
-                let (iy, jy, fy) = grid_coord(y as f32, *cell, *rows);
-                let column: Vec<f32> = (0..*cols)
-                    .map(|i| values[iy * cols + i] * (1.0 - fy) + values[jy * cols + i] * fy)
-                    .collect();
+                let column = grid_row(values, *cols, *rows, *cell, y as f32);
                 let inv = 1.0 / cell;
                 let last = (*cols - 1) as f32;
                 let mut gx = (x0 as f32 + 0.5) * inv - 0.5;
@@ -234,6 +228,14 @@ impl Background {
     pub fn difference(&self, photo: &Photo, x: usize, y: usize) -> f32 {
         self.polarity.sign() * (photo.at(x, y) - self.at(x, y))
     }
+}
+
+/// The grid interpolated vertically at row position `y`: one value per grid column.
+fn grid_row(values: &[f32], cols: usize, rows: usize, cell: f32, y: f32) -> Vec<f32> {
+    let (iy, jy, fy) = grid_coord(y, cell, rows);
+    (0..cols)
+        .map(|i| values[iy * cols + i] * (1.0 - fy) + values[jy * cols + i] * fy)
+        .collect()
 }
 
 fn median(v: &mut [f32]) -> f32 {

@@ -285,42 +285,31 @@ fn jpeg_luma(
     Ok(image::GrayImage::from_raw(w, h, raw))
 }
 
+/// Rec. 709 luma of interleaved RGB samples, rows of `w` pixels in parallel, times `scale`.
+fn rgb_luma<T: Copy + Into<f32> + Sync>(raw: &[T], w: usize, scale: f32) -> Vec<f32> {
+    const KR: f32 = 0.2126;
+    const KG: f32 = 0.7152;
+    const KB: f32 = 0.0722;
+    let mut luma = vec![0f32; raw.len() / 3];
+    luma.par_chunks_mut(w.max(1))
+        .zip(raw.par_chunks(3 * w.max(1)))
+        .for_each(|(row, src)| {
+            for (v, p) in row.iter_mut().zip(src.chunks_exact(3)) {
+                *v = (KR * p[0].into() + KG * p[1].into() + KB * p[2].into()) * scale;
+            }
+        });
+    luma
+}
+
 /// A decoded image as a grey photo: 8- and 16-bit grey kept as they are, colour converted to
 /// Rec. 709 luma in f32 (rows in parallel).
 pub fn to_photo(path: &Path, img: DynamicImage) -> Photo {
     let (w, h) = (img.width() as usize, img.height() as usize);
-    const KR: f32 = 0.2126;
-    const KG: f32 = 0.7152;
-    const KB: f32 = 0.0722;
     let samples = match img {
         DynamicImage::ImageLuma8(b) => Samples::U8(b.into_raw()),
         DynamicImage::ImageLuma16(b) => Samples::U16(b.into_raw()),
-        DynamicImage::ImageRgb8(b) => {
-            let raw = b.as_raw();
-            let mut luma = vec![0f32; w * h];
-            luma.par_chunks_mut(w.max(1))
-                .enumerate()
-                .for_each(|(y, row)| {
-                    let src = &raw[y * w * 3..(y + 1) * w * 3];
-                    for (v, p) in row.iter_mut().zip(src.chunks_exact(3)) {
-                        *v = (KR * p[0] as f32 + KG * p[1] as f32 + KB * p[2] as f32) / 255.0;
-                    }
-                });
-            Samples::F32(luma)
-        }
-        DynamicImage::ImageRgb16(b) => {
-            let raw = b.as_raw();
-            let mut luma = vec![0f32; w * h];
-            luma.par_chunks_mut(w.max(1))
-                .enumerate()
-                .for_each(|(y, row)| {
-                    let src = &raw[y * w * 3..(y + 1) * w * 3];
-                    for (v, p) in row.iter_mut().zip(src.chunks_exact(3)) {
-                        *v = (KR * p[0] as f32 + KG * p[1] as f32 + KB * p[2] as f32) / 65535.0;
-                    }
-                });
-            Samples::F32(luma)
-        }
+        DynamicImage::ImageRgb8(b) => Samples::F32(rgb_luma(b.as_raw(), w, 1.0 / 255.0)),
+        DynamicImage::ImageRgb16(b) => Samples::F32(rgb_luma(b.as_raw(), w, 1.0 / 65535.0)),
         other => Samples::F32(other.to_luma32f().into_raw()),
     };
     Photo {
