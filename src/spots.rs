@@ -251,9 +251,14 @@ pub const BAND_FRACTION: f64 = 0.1;
 /// decimation the radius asks for.
 pub const SURVEY_MEGAPIXELS: f64 = 1.5;
 
-fn coarse_factor(r_min_px: f64, coarse_r_px: f64) -> usize {
+/// The decimated photo keeps at least this many pixels on its short side.
+const MIN_DECIMATED_SIDE_PX: usize = 32;
+
+/// The decimation for smallest radius `r_min_px` on `photo` (1: none).
+fn coarse_factor(r_min_px: f64, coarse_r_px: f64, photo: &Photo) -> usize {
+    let most = photo.width.min(photo.height) / MIN_DECIMATED_SIDE_PX;
     if coarse_r_px > 0.0 {
-        ((r_min_px / coarse_r_px).floor() as usize).max(1)
+        ((r_min_px / coarse_r_px).floor() as usize).min(most).max(1)
     } else {
         1
     }
@@ -388,7 +393,7 @@ pub fn find_spots(
         1
     };
     let mut d = options.radius_px.map_or(survey, |(r_min, _)| {
-        coarse_factor(r_min, options.coarse_r_px)
+        coarse_factor(r_min, options.coarse_r_px, photo)
     });
     let bg: Background = match plate {
         Some(p) => background::from_plate(photo, p, &options.background),
@@ -399,10 +404,10 @@ pub fn find_spots(
         .radius_px
         .or_else(|| auto_radius(&work.blobs).map(|(a, b)| (a * d as f64, b * d as f64)));
     if let Some((r_min, _)) = radius
-        && (coarse_factor(r_min, options.coarse_r_px) < d
-            || coarse_factor(r_min, options.coarse_r_px) >= 2 * d)
+        && (coarse_factor(r_min, options.coarse_r_px, photo) < d
+            || coarse_factor(r_min, options.coarse_r_px, photo) >= 2 * d)
     {
-        d = coarse_factor(r_min, options.coarse_r_px);
+        d = coarse_factor(r_min, options.coarse_r_px, photo);
         work = Work::new(photo, &bg, options, d)?;
     }
     if radius.is_none() && d > 1 {

@@ -90,6 +90,15 @@ pub fn find_blobs(photo: &Photo, background: &Background, options: &ThresholdOpt
         options.block_px
     };
     let (bw, bh) = (w.div_ceil(b), h.div_ceil(b));
+    if bw < 2 || bh < 2 {
+        // Too small to hold a ball (and to label).
+        return Blobs {
+            blobs: Vec::new(),
+            block_px: b,
+            level: options.level.unwrap_or(0.0),
+            mask: GrayImage::new(bw as u32, bh as u32),
+        };
+    }
     let sign = background.polarity.sign();
     // Block sums of the photo alone (one cheap pass over the pixels), then the background's mean
     // over each block subtracted: the mean of a difference is the difference of the means.

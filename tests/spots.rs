@@ -619,3 +619,21 @@ shading = false
     let report = find_spots(&img, None, &options, None).unwrap();
     assert!(report.spots.is_empty(), "{:?}", report.spots);
 }
+
+#[test]
+fn a_tiny_photo_searched_for_a_large_ball_gives_an_empty_result() {
+    // The decimation a large radius asks for is capped by the photo's size (a 3 x 3 photo
+    // decimated by 2 left a 1 x 1 block grid, which the labelling refused with a panic).
+    for (w, h) in [(3usize, 3usize), (5, 200), (40, 40)] {
+        let luma: Vec<f32> = (0..w * h).map(|i| ((i * 37) % 11) as f32 / 11.0).collect();
+        let photo = beadline::load::Photo::from_luma(Path::new("tiny.png"), w, h, luma);
+        for radius_px in [(24.0, 30.0), (200.0, 300.0)] {
+            let options = SpotOptions {
+                radius_px: Some(radius_px),
+                ..SpotOptions::default()
+            };
+            let report = find_spots(&photo, None, &options, None).unwrap();
+            assert!(report.spots.is_empty(), "{w} x {h}, {radius_px:?}");
+        }
+    }
+}
