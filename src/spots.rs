@@ -385,10 +385,10 @@ pub fn find_spots(
     // resolution; with the radius left to estimate, it is estimated first on the photo
     // decimated to at most about SURVEY_MEGAPIXELS.
     let survey = if options.coarse_r_px > 0.0 {
-        ((photo.width * photo.height) as f64 / (SURVEY_MEGAPIXELS * 1e6))
-            .sqrt()
-            .floor()
-            .max(1.0) as usize
+        let by_area = ((photo.width * photo.height) as f64 / (SURVEY_MEGAPIXELS * 1e6)).sqrt();
+        (by_area as usize)
+            .min(photo.width.min(photo.height) / MIN_DECIMATED_SIDE_PX)
+            .max(1)
     } else {
         1
     };
