@@ -637,3 +637,44 @@ fn a_tiny_photo_searched_for_a_large_ball_gives_an_empty_result() {
         }
     }
 }
+
+#[test]
+fn the_decimated_search_keeps_the_full_resolution_centres() {
+    // A lit, noisy 30 px ball: searched with 24..36 px the photo is decimated by 2, with
+    // `coarse_r_px` 0 it is not. Both must meet the targets against the renderer's truth, and
+    // each centre may move between the two by no more than its own sigma.
+    let dir = tempfile::tempdir().unwrap();
+    let scene = throw_scene(0.03, 12);
+    let rendered = render::render(&scene);
+    let path = dir.path().join("lit.png");
+    rendered.save(&path).unwrap();
+    let img = load(&path, &LoadOptions::default()).unwrap();
+    let run = |coarse_r_px| {
+        let options = SpotOptions {
+            radius_px: Some((24.0, 36.0)),
+            coarse_r_px,
+            ..SpotOptions::default()
+        };
+        find_spots(&img, None, &options, None).unwrap()
+    };
+    let (coarse, full) = (run(12.0), run(0.0));
+    assert_eq!((coarse.decimation, full.decimation), (2, 1));
+    for report in [&coarse, &full] {
+        let s = score(report, &rendered.truth);
+        assert_eq!(s.found, s.expected);
+        assert_eq!(s.false_spots, 0);
+        assert!(s.isolated_rms_px <= 0.05, "isolated {}", s.isolated_rms_px);
+        assert!(s.overlap_rms_px <= 0.15, "overlapping {}", s.overlap_rms_px);
+    }
+    assert_eq!(coarse.spots.len(), full.spots.len());
+    for (a, b) in coarse.spots.iter().zip(&full.spots) {
+        let moved = (a.x_px - b.x_px).hypot(a.y_px - b.y_px);
+        assert!(
+            moved <= a.sigma_px.max(b.sigma_px),
+            "({:.2}, {:.2}) moved {moved} px, sigma {}",
+            b.x_px,
+            b.y_px,
+            b.sigma_px
+        );
+    }
+}
