@@ -68,7 +68,7 @@ pub struct Background {
 
 #[derive(Debug, Clone)]
 enum Kind {
-    Plate(Vec<f32>, usize),
+    Plate(Photo),
     Grid {
         values: Vec<f32>,
         cols: usize,
@@ -91,7 +91,7 @@ impl Background {
     #[inline]
     pub fn at(&self, x: usize, y: usize) -> f32 {
         match &self.kind {
-            Kind::Plate(v, w) => v[y * w + x],
+            Kind::Plate(p) => p.at(x, y),
             Kind::Grid { .. } => self.grid_at(x as f32, y as f32),
         }
     }
@@ -100,7 +100,7 @@ impl Background {
     #[inline]
     fn grid_at(&self, x: f32, y: f32) -> f32 {
         match &self.kind {
-            Kind::Plate(v, w) => v[y.round() as usize * w + x.round() as usize],
+            Kind::Plate(p) => p.at(x.round() as usize, y.round() as usize),
             Kind::Grid {
                 values,
                 cols,
@@ -125,10 +125,12 @@ impl Background {
     /// is the image's width, pixels.
     pub fn block_means(&self, y0: usize, y1: usize, b: usize, width: usize, out: &mut [f32]) {
         match &self.kind {
-            Kind::Plate(v, w) => {
+            Kind::Plate(p) => {
                 out.fill(0.0);
+                let mut line = vec![0f32; width];
                 for y in y0..y1 {
-                    for (o, chunk) in out.iter_mut().zip(v[y * w..(y + 1) * w].chunks(b)) {
+                    p.row(y, 0, &mut line);
+                    for (o, chunk) in out.iter_mut().zip(line.chunks(b)) {
                         *o += chunk.iter().sum::<f32>();
                     }
                 }
@@ -157,7 +159,7 @@ impl Background {
     /// vertically once, then horizontally (much cheaper than [`Background::at`] per pixel).
     pub fn row(&self, y: usize, x0: usize, out: &mut [f32]) {
         match &self.kind {
-            Kind::Plate(v, w) => out.copy_from_slice(&v[y * w + x0..y * w + x0 + out.len()]),
+            Kind::Plate(p) => p.row(y, x0, out),
             Kind::Grid {
                 values,
                 cols,
@@ -197,10 +199,7 @@ impl Background {
                 rows: *rows,
                 cell: cell / d as f32,
             },
-            Kind::Plate(v, w) => {
-                let plate = Photo::from_luma(std::path::Path::new(""), *w, v.len() / w, v.clone());
-                Kind::Plate(plate.decimated(d).luma(), small.width)
-            }
+            Kind::Plate(p) => Kind::Plate(p.decimated(d)),
         };
         let mut out = Background {
             kind,
@@ -389,16 +388,15 @@ pub fn estimate(photo: &Photo, options: &BackgroundOptions) -> Background {
 
 /// Use a clean plate as the background.
 pub fn from_plate(photo: &Photo, plate: &Photo, options: &BackgroundOptions) -> Background {
-    let plate = plate.luma();
     let w = photo.width;
     let mut resid: Vec<f32> = (0..photo.width * photo.height)
         .step_by(7)
-        .map(|i| photo.at(i % w, i / w) - plate[i])
+        .map(|i| photo.at(i % w, i / w) - plate.at(i % w, i / w))
         .collect();
     let polarity = options.polarity.unwrap_or_else(|| detect_polarity(&resid));
     let sigma = robust_sigma(&mut resid).max(1e-6);
     Background {
-        kind: Kind::Plate(plate, w),
+        kind: Kind::Plate(plate.clone()),
         polarity,
         noise_sigma: sigma,
     }

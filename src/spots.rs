@@ -265,10 +265,10 @@ fn coarse_factor(r_min_px: f64, coarse_r_px: f64, photo: &Photo) -> usize {
 }
 
 /// The photo the detection works on (decimated by d, or the photo itself when `photo` is
-/// None), its background and blobs.
+/// None), its background (None: the photo's own) and blobs.
 struct Work {
     photo: Option<Photo>,
-    bg: Background,
+    bg: Option<Background>,
     blobs: Blobs,
 }
 
@@ -276,11 +276,9 @@ impl Work {
     /// `bg` is the photo's own background (from its plate or estimated) at full resolution.
     fn new(photo: &Photo, bg: &Background, options: &SpotOptions, d: usize) -> Result<Work> {
         let small = (d > 1).then(|| photo.decimated(d));
-        let (p, bg) = match &small {
-            Some(s) => (s, bg.decimated(d, s)),
-            None => (photo, bg.clone()),
-        };
-        let blobs = threshold::find_blobs(p, &bg, &options.threshold);
+        let small_bg = small.as_ref().map(|s| bg.decimated(d, s));
+        let p = small.as_ref().unwrap_or(photo);
+        let blobs = threshold::find_blobs(p, small_bg.as_ref().unwrap_or(bg), &options.threshold);
         if blobs.blobs.len() > options.max_candidates {
             return Err(Error::measure(
                 &photo.path,
@@ -294,7 +292,7 @@ impl Work {
         }
         Ok(Work {
             photo: small,
-            bg,
+            bg: small_bg,
             blobs,
         })
     }
@@ -422,6 +420,7 @@ pub fn find_spots(
         blobs,
     } = work;
     let work_photo = work_photo.as_ref().unwrap_or(photo);
+    let work_bg = work_bg.as_ref().unwrap_or(&bg);
     let mut report = SpotReport {
         width_px: photo.width,
         height_px: photo.height,
@@ -454,7 +453,7 @@ pub fn find_spots(
     let work_regions: Vec<hough::Region> = blobs
         .blobs
         .par_iter()
-        .map(|b| hough::prepare_region(work_photo, &work_bg, b, margin, &options.hough))
+        .map(|b| hough::prepare_region(work_photo, work_bg, b, margin, &options.hough))
         .collect();
     let voted: Vec<(Vec<hough::Candidate>, Vec<f32>)> = work_regions
         .par_iter()

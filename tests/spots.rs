@@ -6,14 +6,19 @@ use beadline::render::{self, Truth, scene::Scene};
 use beadline::spots::{SpotOptions, SpotReport, find_spots};
 use std::path::{Path, PathBuf};
 
+/// Render `scene` into `path` and load it back.
+fn render_and_load(scene: &Scene, path: &Path) -> (beadline::load::Photo, Truth) {
+    let photo = render::render(scene);
+    photo.save(path).unwrap();
+    (load(path, &LoadOptions::default()).unwrap(), photo.truth)
+}
+
 /// Render `scene` into `dir/name`, load it back and find its spots.
 fn detect(scene: &Scene, dir: &Path, name: &str) -> (SpotReport, Truth, PathBuf) {
-    let photo = render::render(scene);
     let path = dir.join(name);
-    photo.save(&path).unwrap();
-    let img = load(&path, &LoadOptions::default()).unwrap();
+    let (img, truth) = render_and_load(scene, &path);
     let report = find_spots(&img, None, &SpotOptions::default(), None).unwrap();
-    (report, photo.truth, path)
+    (report, truth, path)
 }
 
 struct Score {
@@ -426,17 +431,14 @@ fn a_small_lit_sphere_is_centred_by_its_shaded_fit() {
     // spots issue: isolated centre RMS <= 0.05 px (here per axis, so <= 0.035).
     let dir = tempfile::tempdir().unwrap();
     let scene = throw_scene(0.016, 12);
-    let photo = render::render(&scene);
-    let path = dir.path().join("lit.png");
-    photo.save(&path).unwrap();
-    let img = load(&path, &LoadOptions::default()).unwrap();
+    let (img, truth) = render_and_load(&scene, &dir.path().join("lit.png"));
     let shaded = find_spots(&img, None, &SpotOptions::default(), None).unwrap();
     let edge_only = SpotOptions {
         shaded_max_r_px: 0.0,
         ..SpotOptions::default()
     };
     let edge = find_spots(&img, None, &edge_only, None).unwrap();
-    let (s, e) = (score(&shaded, &photo.truth), score(&edge, &photo.truth));
+    let (s, e) = (score(&shaded, &truth), score(&edge, &truth));
     assert_eq!(s.found, s.expected);
     assert_eq!(s.false_spots, 0);
     assert!(
@@ -452,7 +454,7 @@ fn a_small_lit_sphere_is_centred_by_its_shaded_fit() {
         s.isolated_rms_px
     );
     // The radius of the silhouette, which calibrations by the ball's diameter use.
-    let r_true = photo.truth.flashes[0].r_px;
+    let r_true = truth.flashes[0].r_px;
     for spot in &shaded.spots {
         assert!(
             (spot.r_px - r_true).abs() < 0.03,
@@ -474,21 +476,15 @@ fn a_linear_sixteen_bit_photo_is_fitted_in_its_own_tone() {
     let mut scene = throw_scene(0.016, 12);
     scene.photo.tone = render::scene::Tone::Linear;
     scene.photo.bit_depth = 16;
-    let photo = render::render(&scene);
-    let path = dir.path().join("linear.png");
-    photo.save(&path).unwrap();
-    let img = load(&path, &LoadOptions::default()).unwrap();
+    let (img, truth) = render_and_load(&scene, &dir.path().join("linear.png"));
     let linear = SpotOptions {
         tone: render::scene::Tone::Linear,
         ..SpotOptions::default()
     };
-    let right = score(
-        &find_spots(&img, None, &linear, None).unwrap(),
-        &photo.truth,
-    );
+    let right = score(&find_spots(&img, None, &linear, None).unwrap(), &truth);
     let wrong = score(
         &find_spots(&img, None, &SpotOptions::default(), None).unwrap(),
-        &photo.truth,
+        &truth,
     );
     assert_eq!(right.found, right.expected);
     assert!(
@@ -586,17 +582,14 @@ shading = false
 "#;
     let scene = Scene::from_toml(text, Path::new("large.toml")).unwrap();
     let dir = tempfile::tempdir().unwrap();
-    let rendered = render::render(&scene);
-    let path = dir.path().join("large.png");
-    rendered.save(&path).unwrap();
-    let img = load(&path, &LoadOptions::default()).unwrap();
+    let (img, truth) = render_and_load(&scene, &dir.path().join("large.png"));
     for radius_px in [Some((38.0, 54.0)), None] {
         let options = SpotOptions {
             radius_px,
             ..SpotOptions::default()
         };
         let report = find_spots(&img, None, &options, None).unwrap();
-        let s = score(&report, &rendered.truth);
+        let s = score(&report, &truth);
         assert!(s.expected >= 6, "{} images in the frame", s.expected);
         assert_eq!(s.found, s.expected, "{radius_px:?}");
         assert_eq!(s.false_spots, 0, "{radius_px:?}");
@@ -645,10 +638,7 @@ fn the_decimated_search_keeps_the_full_resolution_centres() {
     // each centre may move between the two by no more than its own sigma.
     let dir = tempfile::tempdir().unwrap();
     let scene = throw_scene(0.03, 12);
-    let rendered = render::render(&scene);
-    let path = dir.path().join("lit.png");
-    rendered.save(&path).unwrap();
-    let img = load(&path, &LoadOptions::default()).unwrap();
+    let (img, truth) = render_and_load(&scene, &dir.path().join("lit.png"));
     let run = |coarse_r_px| {
         let options = SpotOptions {
             radius_px: Some((24.0, 36.0)),
@@ -660,7 +650,7 @@ fn the_decimated_search_keeps_the_full_resolution_centres() {
     let (coarse, full) = (run(12.0), run(0.0));
     assert_eq!((coarse.decimation, full.decimation), (2, 1));
     for report in [&coarse, &full] {
-        let s = score(report, &rendered.truth);
+        let s = score(report, &truth);
         assert_eq!(s.found, s.expected);
         assert_eq!(s.false_spots, 0);
         assert!(s.isolated_rms_px <= 0.05, "isolated {}", s.isolated_rms_px);
