@@ -828,6 +828,10 @@ const SHADED_OUTLIER_SIGMAS: f64 = 4.0;
 /// Pixels within this many pixels (chessboard distance) of a structure of outliers are left out.
 const SHADED_MASK_GROW: i64 = 2;
 
+/// Flat fits are tried when a uniform disc at the Lambert fit's circle misses by less than this
+/// many times Schwarz's penalty (in n ln RSS).
+const FLAT_TRY_FACTOR: f64 = 4.0;
+
 /// Outliers are left out only while this fraction of the window remains.
 const SHADED_MIN_KEPT: f64 = 0.6;
 
@@ -967,12 +971,20 @@ pub fn shaded_fit(window: &[WindowPixel], start: Circle) -> Option<ShadedFit> {
     let nf = n as f64;
     // Neighbouring residuals that are correlated (JPEG blocks) are fewer independent ones.
     let n_eff = nf / correlation;
+    let penalty = 3.0 * n_eff.ln();
+    // A disc at the Lambert fit's circle that misses by far more than the penalty is a lit
+    // sphere: moving the circle cannot make up for shading inside it, so the flat fits are not
+    // tried (tried always, they took a 1.5 MP photo of 37 lit images from 0.09 to 0.14 s).
+    let mut scratch = Vec::with_capacity(n);
+    let plausible = shaded_residuals(&pixels, &p, Shading::Flat, &mut scratch)
+        .is_some_and(|ff| n_eff * (ff / f).ln() < FLAT_TRY_FACTOR * penalty);
     let flat = [p, [start.x_px, start.y_px, start.r_px, p[3], p[4]]]
         .into_iter()
+        .filter(|_| plausible)
         .filter_map(|q| shaded_lm(&pixels, q, Shading::Flat))
         .filter(|(q, ..)| q.iter().all(|v| v.is_finite()))
         .min_by(|a, b| a.1.total_cmp(&b.1))
-        .filter(|(_, ff, ..)| n_eff * (ff / f).ln() < 3.0 * n_eff.ln());
+        .filter(|(_, ff, ..)| n_eff * (ff / f).ln() < penalty);
     let is_flat = flat.is_some();
     let (circle_p, var, rss) = match flat {
         Some((q, ff, rf, jf)) => {
