@@ -216,13 +216,12 @@ fn auto_radius(blobs: &Blobs) -> Option<(f64, f64)> {
         .filter(|b| b.is_compact())
         .map(|b| 0.25 * (b.width_px() + b.height_px()))
         .collect();
+    // A chain's largest inscribed disc also takes in the halo of the threshold and whatever
+    // the chain rests on (an incline's edge): its radius is an upper bound more than a measure.
+    let mut low = 0.8;
     if radii.is_empty() {
-        radii = blobs
-            .blobs
-            .iter()
-            .filter(|b| b.blocks >= 4)
-            .map(|b| 0.5 * b.width_px().min(b.height_px()))
-            .collect();
+        radii = inscribed_radii(blobs);
+        low = 0.5;
     }
     if radii.is_empty() {
         return None;
@@ -230,7 +229,45 @@ fn auto_radius(blobs: &Blobs) -> Option<(f64, f64)> {
     radii.sort_by(f64::total_cmp);
     let r0 = radii[radii.len() / 2];
     let slack = blobs.block_px as f64;
-    Some(((0.8 * r0 - slack).max(3.0), 1.25 * r0 + slack + 1.0))
+    Some(((low * r0 - slack).max(3.0), 1.25 * r0 + slack + 1.0))
+}
+
+/// With no round blob alone (every image touches a neighbour: a chain rolling down an incline),
+/// the radius of each blob of four blocks or more is that of the largest disc inside it: its
+/// largest Euclidean distance to a block outside (Felzenszwalb & Huttenlocher, "Distance
+/// transforms of sampled functions", via imageproc). A chain of overlapping images of radius r
+/// is 2 r wide, so that disc has radius r; a bounding box would give the chain's extent.
+fn inscribed_radii(blobs: &Blobs) -> Vec<f64> {
+    use image::{GrayImage, Luma};
+    let (w, h) = blobs.mask.dimensions();
+    // Outside the photo counts as outside the blob: a one-block frame around the mask.
+    let mut outside = GrayImage::from_pixel(w + 2, h + 2, Luma([255u8]));
+    for (x, y, p) in blobs.mask.enumerate_pixels() {
+        if p[0] > 0 {
+            outside.put_pixel(x + 1, y + 1, Luma([0]));
+        }
+    }
+    let d2 = imageproc::distance_transform::euclidean_squared_distance_transform(&outside);
+    let b = blobs.block_px;
+    blobs
+        .blobs
+        .iter()
+        .filter(|blob| blob.blocks >= 4)
+        .filter_map(|blob| {
+            let (bx0, by0) = (blob.x0 / b, blob.y0 / b);
+            let (bx1, by1) = (
+                (blob.x1 / b).min(w as usize - 1),
+                (blob.y1 / b).min(h as usize - 1),
+            );
+            let mut best: f64 = 0.0;
+            for by in by0..=by1 {
+                for bx in bx0..=bx1 {
+                    best = best.max(d2.get_pixel(bx as u32 + 1, by as u32 + 1)[0]);
+                }
+            }
+            (best > 0.0).then(|| best.sqrt() * b as f64)
+        })
+        .collect()
 }
 
 /// Default of [`SpotOptions::coarse_r_px`], pixels (a 24 MP photo of a 75 px ball is decimated
