@@ -66,7 +66,7 @@ enum Command {
         #[command(flatten)]
         out: OutArgs,
         /// Write plots (height against time, restitution against impact speed) as SVG.
-        #[arg(long, value_name = "SVG")]
+        #[arg(long, value_name = "SVG", value_parser = svg_path)]
         plot: Option<PathBuf>,
     },
     /// Plan a shot: flash rate, number of flashes, exposure and delay, before taking the photo.
@@ -74,7 +74,7 @@ enum Command {
         /// Scene file (TOML) with [flash_unit] and [wishes].
         scene: PathBuf,
         /// Render the planned photo as PNG.
-        #[arg(long, value_name = "PNG")]
+        #[arg(long, value_name = "PNG", value_parser = png_path)]
         preview: Option<PathBuf>,
         /// Output format (text or json).
         #[arg(long, value_enum, default_value = "text")]
@@ -182,6 +182,29 @@ enum ToneArg {
     Linear,
 }
 
+/// A path for an image we write as `kind`: its name must say so, so that no viewer or script
+/// takes it for another format.
+fn typed_path(s: &str, kind: &str) -> std::result::Result<PathBuf, String> {
+    let p = PathBuf::from(s);
+    match p.extension().and_then(|e| e.to_str()) {
+        Some(e) if e.eq_ignore_ascii_case(kind) => Ok(p),
+        _ => Err(format!(
+            "'{s}': the image is written as {}, so its name must end in .{kind}",
+            kind.to_uppercase()
+        )),
+    }
+}
+
+/// See [`typed_path`].
+fn png_path(s: &str) -> std::result::Result<PathBuf, String> {
+    typed_path(s, "png")
+}
+
+/// See [`typed_path`].
+fn svg_path(s: &str) -> std::result::Result<PathBuf, String> {
+    typed_path(s, "svg")
+}
+
 /// Where and how results go.
 #[derive(Debug, Clone, ClapArgs)]
 struct OutArgs {
@@ -192,7 +215,7 @@ struct OutArgs {
     #[arg(short = 'o', long = "output", value_name = "FILE")]
     output: Option<PathBuf>,
     /// Draw what was found on the photo and write it as PNG.
-    #[arg(long, value_name = "PNG")]
+    #[arg(long, value_name = "PNG", value_parser = png_path)]
     overlay: Option<PathBuf>,
 }
 

@@ -84,6 +84,12 @@ fn bad_input_gives_one_line_naming_the_file_and_a_failing_status() {
     assert!(String::from_utf8_lossy(&out.stderr).contains("--radius"));
     let out = beadline(&["spots", "bad.jpg", "--min-score", "NaN"], dir.path());
     assert!(!out.status.success());
+    // The overlay is PNG: a name that says otherwise is refused before any work.
+    let out = beadline(&["spots", "bad.jpg", "--overlay", "o.jpg"], dir.path());
+    assert!(!out.status.success());
+    let err = String::from_utf8_lossy(&out.stderr);
+    assert!(err.contains("o.jpg") && err.contains(".png"), "{err}");
+    assert!(!dir.path().join("o.jpg").exists());
     std::fs::write(dir.path().join("s.toml"), "[ball]\ndiameter_m = -1\n").unwrap();
     let out = beadline(&["render", "s.toml", "--out", "x.png"], dir.path());
     assert!(!out.status.success());
