@@ -666,8 +666,8 @@ def targets_lines(rows, speed_rows, references):
              f"| {yes(s['recall_scope'] >= 0.995)} |")
     L.append(f"| precision >= 0.995 | {fmt(s['precision'], '.4f')} | "
              f"{yes(s['precision'] >= 0.995)} |")
-    L.append(f"| centre RMS, isolated images <= 0.05 px | {fmt(s['rms_iso'])} (bright-ball classes "
-             f"{fmt(lit['rms_iso'])}, dark class {fmt(dark['rms_iso'])}: see its information "
+    L.append(f"| centre RMS, isolated images <= 0.05 px | {fmt(s['rms_iso'])} "
+             f"(bright-ball classes {fmt(lit['rms_iso'])}, dark class {fmt(dark['rms_iso'])}: see its information "
              f"limit below) | {yes(s['rms_iso'] <= 0.05)} |")
     L.append(f"| centre RMS, overlapping images <= 0.15 px | {fmt(s['rms_ovl'])} | "
              f"{yes(s['rms_ovl'] <= 0.15)} |")
@@ -685,7 +685,8 @@ def targets_lines(rows, speed_rows, references):
                  f"setting, precision) | {fmt(s['recall_scope_first_fp'])} against "
                  f"{fmt(r['recall_scope_first_fp'])} ({fmt(s['recall_scope'])} at "
                  f"{fmt(s['precision'])} against {fmt(r['recall_scope'])} at "
-                 f"{fmt(r['precision'])}) | {yes(s['recall_scope_first_fp'] > r['recall_scope_first_fp'])} |")
+                 f"{fmt(r['precision'])}) | "
+                 f"{yes(s['recall_scope_first_fp'] > r['recall_scope_first_fp'])} |")
     big = [r for r in speed_rows if r["kind"] == "size" and "beadline_s" in r]
     if big:
         r = max(big, key=lambda r: r["w"] * r["h"])
