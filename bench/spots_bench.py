@@ -667,8 +667,8 @@ def targets_lines(rows, speed_rows, references):
     L.append(f"| precision >= 0.995 | {fmt(s['precision'], '.4f')} | "
              f"{yes(s['precision'] >= 0.995)} |")
     L.append(f"| centre RMS, isolated images <= 0.05 px | {fmt(s['rms_iso'])} "
-             f"(bright-ball classes {fmt(lit['rms_iso'])}, dark class {fmt(dark['rms_iso'])}: see its information "
-             f"limit below) | {yes(s['rms_iso'] <= 0.05)} |")
+             f"(bright-ball classes {fmt(lit['rms_iso'])}, dark class {fmt(dark['rms_iso'])}: "
+             f"see its information limit below) | {yes(s['rms_iso'] <= 0.05)} |")
     L.append(f"| centre RMS, overlapping images <= 0.15 px | {fmt(s['rms_ovl'])} | "
              f"{yes(s['rms_ovl'] <= 0.15)} |")
     if "rms_sigma" in s and "rms_sigma_iso" in s:
