@@ -361,6 +361,14 @@ impl RadiusModel {
     }
 }
 
+/// Starts of a cluster's fit closer than this fraction of a radius to a stronger start are
+/// dropped as second guesses at one image: half the closest spacing of two images the spots
+/// issue asks to separate (0.8 radius), so a start displaced by up to 0.2 radius towards a true
+/// neighbour still stands. On the bench, the start of a rolling r = 8 px ball's chain lost 2 of
+/// its 41 images in scope to such pairs (each point claimed by both went to neither); with the
+/// rule, none, and of the suite's 757 images in scope 1 is missed instead of 4.
+pub const DUPLICATE_FRACTION: f64 = 0.4;
+
 /// Fit all candidates of a region jointly. `radius` is the photo's radius model when known.
 pub fn refine_region(
     region: &Region,
@@ -377,7 +385,19 @@ pub fn refine_region(
         })
         .collect();
     let mut held = vec![false; circles.len()];
+    // A start within DUPLICATE_FRACTION of a radius of a stronger one is a second guess at the
+    // same image: kept, the two would share its rim points, neither owning enough of them.
     let mut alive = vec![true; circles.len()];
+    let mut order: Vec<usize> = (0..circles.len()).collect();
+    order.sort_by(|&a, &b| candidates[b].strength.total_cmp(&candidates[a].strength));
+    for (k, &i) in order.iter().enumerate() {
+        let (c, kept) = (circles[i], &order[..k]);
+        alive[i] = !kept.iter().any(|&j| {
+            alive[j]
+                && (c.x_px - circles[j].x_px).hypot(c.y_px - circles[j].y_px)
+                    < DUPLICATE_FRACTION * c.r_px.min(circles[j].r_px)
+        });
+    }
     let mut result: Vec<Option<CircleFit>> = vec![None; circles.len()];
     for round in 0..options.rounds {
         let tol = if round == 0 {
