@@ -384,7 +384,6 @@ pub fn refine_region(
             r_px: radius.map_or(c.r_px, |m| m.at(c.x_px, c.y_px)),
         })
         .collect();
-    let mut held = vec![false; circles.len()];
     // A start within DUPLICATE_FRACTION of a radius of a stronger one is a second guess at the
     // same image: kept, the two would share its rim points, neither owning enough of them.
     let mut alive = vec![true; circles.len()];
@@ -415,64 +414,16 @@ pub fn refine_region(
                 result[i] = None;
                 continue;
             }
-            let pts: Vec<[f64; 2]> = pts_idx
-                .iter()
-                .map(|&k| [region.edges[k].x_px, region.edges[k].y_px])
-                .collect();
-            let cov = coverage_of(&circles[i], &pts);
-            let hold = match radius {
-                Some(m) if cov < options.free_radius_coverage => {
-                    Some(m.at(circles[i].x_px, circles[i].y_px))
+            match fit_owned(region, pts_idx, circles[i], radius, options) {
+                Some(f) => {
+                    circles[i] = f.circle;
+                    result[i] = Some(f);
                 }
-                _ => None,
-            };
-            let Some(fit) = geometric_fit(&pts, circles[i], hold) else {
-                alive[i] = false;
-                result[i] = None;
-                continue;
-            };
-            // Drop gross outliers (beyond 3 robust sigmas) and refit once.
-            let mut res: Vec<f64> = pts
-                .iter()
-                .map(|q| {
-                    (dist(q[0] - fit.circle.x_px, q[1] - fit.circle.y_px) - fit.circle.r_px).abs()
-                })
-                .collect();
-            let mut sorted = res.clone();
-            sorted.sort_by(f64::total_cmp);
-            let cut = (3.0 * 1.4826 * sorted[sorted.len() / 2]).max(0.05);
-            let kept: Vec<[f64; 2]> = pts
-                .iter()
-                .zip(res.iter_mut())
-                .filter(|(_, r)| **r <= cut)
-                .map(|(q, _)| *q)
-                .collect();
-            let fit = if kept.len() >= options.min_points && kept.len() < pts.len() {
-                geometric_fit(&kept, fit.circle, hold).unwrap_or(fit)
-            } else {
-                fit
-            };
-            let used = if kept.len() >= options.min_points {
-                &kept
-            } else {
-                &pts
-            };
-            circles[i] = fit.circle;
-            held[i] = hold.is_some();
-            let mut mags: Vec<f32> = pts_idx.iter().map(|&k| region.edges[k].magnitude).collect();
-            let mid = mags.len() / 2;
-            let strength = *mags.select_nth_unstable_by(mid, f32::total_cmp).1 as f64;
-            let inflation = correlation_factor(&fit.circle, used);
-            let var = 0.5 * (fit.covariance[(0, 0)] + fit.covariance[(1, 1)]) * inflation;
-            result[i] = Some(CircleFit {
-                circle: fit.circle,
-                sigma_px: var.max(0.0).sqrt(),
-                coverage: coverage_of(&fit.circle, used),
-                rms_px: fit.rms_px,
-                points: used.len(),
-                edge_strength: strength,
-                radius_held: held[i],
-            });
+                None => {
+                    alive[i] = false;
+                    result[i] = None;
+                }
+            }
         }
         // Candidates with almost no rim stop claiming points.
         for i in 0..circles.len() {
@@ -505,6 +456,66 @@ pub fn refine_region(
         }
     }
     result.into_iter().flatten().collect()
+}
+
+/// Geometric fit of one circle to the edge points it owns (`pts_idx` into `region.edges`), from
+/// `start`: the radius held at the photo's model where the rim is short, gross outliers (beyond
+/// 3 robust sigmas) dropped and the fit made again, the centre's sigma inflated for points that
+/// are neighbours along the rim. None when too few points remain or the fit fails.
+fn fit_owned(
+    region: &Region,
+    pts_idx: &[usize],
+    start: Circle,
+    radius: Option<&RadiusModel>,
+    options: &RefineOptions,
+) -> Option<CircleFit> {
+    let pts: Vec<[f64; 2]> = pts_idx
+        .iter()
+        .map(|&k| [region.edges[k].x_px, region.edges[k].y_px])
+        .collect();
+    let cov = coverage_of(&start, &pts);
+    let hold = match radius {
+        Some(m) if cov < options.free_radius_coverage => Some(m.at(start.x_px, start.y_px)),
+        _ => None,
+    };
+    let fit = geometric_fit(&pts, start, hold)?;
+    let res: Vec<f64> = pts
+        .iter()
+        .map(|q| (dist(q[0] - fit.circle.x_px, q[1] - fit.circle.y_px) - fit.circle.r_px).abs())
+        .collect();
+    let mut sorted = res.clone();
+    sorted.sort_by(f64::total_cmp);
+    let cut = (3.0 * 1.4826 * sorted[sorted.len() / 2]).max(0.05);
+    let kept: Vec<[f64; 2]> = pts
+        .iter()
+        .zip(&res)
+        .filter(|(_, r)| **r <= cut)
+        .map(|(q, _)| *q)
+        .collect();
+    let fit = if kept.len() >= options.min_points && kept.len() < pts.len() {
+        geometric_fit(&kept, fit.circle, hold).unwrap_or(fit)
+    } else {
+        fit
+    };
+    let used = if kept.len() >= options.min_points {
+        &kept
+    } else {
+        &pts
+    };
+    let mut mags: Vec<f32> = pts_idx.iter().map(|&k| region.edges[k].magnitude).collect();
+    let mid = mags.len() / 2;
+    let strength = *mags.select_nth_unstable_by(mid, f32::total_cmp).1 as f64;
+    let inflation = correlation_factor(&fit.circle, used);
+    let var = 0.5 * (fit.covariance[(0, 0)] + fit.covariance[(1, 1)]) * inflation;
+    Some(CircleFit {
+        circle: fit.circle,
+        sigma_px: var.max(0.0).sqrt(),
+        coverage: coverage_of(&fit.circle, used),
+        rms_px: fit.rms_px,
+        points: used.len(),
+        edge_strength: strength,
+        radius_held: hold.is_some(),
+    })
 }
 
 /// Give each edge point to the circle whose rim it lies on and whose centre its gradient points
