@@ -277,3 +277,63 @@ fn the_ball_as_the_ruler_gives_gravity_with_an_honest_sigma() {
         truth.gravity_mps2
     );
 }
+
+#[test]
+#[ignore = "known failure: the path walk takes every other image (half the flash rate), see \
+            the comment"]
+fn one_more_true_image_at_an_apex_keeps_the_drop_test_interval() {
+    // The drop test above with the spots it finds plus the image of the flash three before the
+    // first bounce's apex, where the detector misses it (its truth position): the path must
+    // still give the interval of the rendered truth within 0.2 %. It does not yet: the fall
+    // and the first rise lie side by side (the ball drifts 2 px per flash), and a chain taking
+    // every other image (rising on one, up to the release, down the other) bridges the six
+    // unfound images at the apex that stop the true chain (at most 4 missed flashes), so it is
+    // longer and wins; the interval comes out 0.0678 s against 0.0333 s. Found with a
+    // second-chance pass of the spot fits that finds that image.
+    use beadline::load::{LoadOptions, load};
+    use beadline::measure::measure_spots;
+    use beadline::spots::{Spot, find_spots};
+    let dir = tempfile::tempdir().unwrap();
+    let (photo, truth) = shoot(&drop_scene(0.75, 2.54, 0.067), dir.path(), "drop.png");
+    let mut settings = MeasureSettings {
+        rate_hz: None,
+        scale: Some(ScaleSource::PxPerM(290.0)),
+        ball_diameter_m: Some(0.067),
+        ..Default::default()
+    };
+    settings.physics.unknown = Unknown::Interval;
+    let img = load(&photo, &LoadOptions::default()).unwrap();
+    let mut report = find_spots(&img, None, &settings.spots, None).unwrap();
+    let apex = truth
+        .flashes
+        .iter()
+        .filter(|f| f.arc == 1 && f.in_frame)
+        .min_by(|a, b| a.y_px.total_cmp(&b.y_px))
+        .unwrap();
+    let mut added = 0;
+    for f in truth.flashes.iter().filter(|f| f.arc == 1 && f.in_frame) {
+        let dn = f.n as i64 - apex.n as i64;
+        let clear = !report
+            .spots
+            .iter()
+            .any(|s| (s.x_px - f.x_px).hypot(s.y_px - f.y_px) < 0.5 * f.r_px);
+        if (-4..=-3).contains(&dn) && clear {
+            report.spots.push(Spot {
+                x_px: f.x_px,
+                y_px: f.y_px,
+                r_px: f.r_px,
+                sigma_px: 0.1,
+                score: 0.5,
+            });
+            added += 1;
+        }
+    }
+    assert_eq!(added, 1);
+    let m = measure_spots(&photo, report, &settings).unwrap();
+    let dt = m.doc.measurement.flash_interval_s.value;
+    assert!(
+        rel(dt, truth.interval_s) < 0.002,
+        "interval {dt} vs {}",
+        truth.interval_s
+    );
+}
