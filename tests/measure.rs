@@ -99,12 +99,8 @@ origin_y_px = 860.0
     Scene::from_toml(&text, Path::new("drop.toml")).unwrap()
 }
 
-#[test]
-fn a_drop_test_with_unknown_flash_rate_yields_the_interval() {
-    // Standard gravity known (ISO 80000-3), scale known: the flash interval comes from the arcs,
-    // target within 0.2 %.
-    let dir = tempfile::tempdir().unwrap();
-    let (photo, truth) = shoot(&drop_scene(0.75, 2.54, 0.067), dir.path(), "drop.png");
+/// The drop test's settings: flash rate unknown, scale and ball known.
+fn interval_settings() -> MeasureSettings {
     let mut settings = MeasureSettings {
         rate_hz: None,
         scale: Some(ScaleSource::PxPerM(290.0)),
@@ -112,6 +108,16 @@ fn a_drop_test_with_unknown_flash_rate_yields_the_interval() {
         ..Default::default()
     };
     settings.physics.unknown = Unknown::Interval;
+    settings
+}
+
+#[test]
+fn a_drop_test_with_unknown_flash_rate_yields_the_interval() {
+    // Standard gravity known (ISO 80000-3), scale known: the flash interval comes from the arcs,
+    // target within 0.2 %.
+    let dir = tempfile::tempdir().unwrap();
+    let (photo, truth) = shoot(&drop_scene(0.75, 2.54, 0.067), dir.path(), "drop.png");
+    let settings = interval_settings();
     let m = measure_photo(&photo, &settings).unwrap();
     let dt = m.doc.measurement.flash_interval_s.value;
     assert!(
@@ -287,7 +293,7 @@ fn one_more_true_image_at_an_apex_keeps_the_drop_test_interval() {
     // still give the interval of the rendered truth within 0.2 %. It does not yet: the fall
     // and the first rise lie side by side (the ball drifts 2 px per flash), and a chain taking
     // every other image (rising on one, up to the release, down the other) bridges the six
-    // unfound images at the apex that stop the true chain (at most 4 missed flashes), so it is
+    // unfound images at the apex that stop the true chain (one missed flash by default), so it is
     // longer and wins; the interval comes out 0.0678 s against 0.0333 s. Found with a
     // second-chance pass of the spot fits that finds that image.
     use beadline::load::{LoadOptions, load};
@@ -295,13 +301,7 @@ fn one_more_true_image_at_an_apex_keeps_the_drop_test_interval() {
     use beadline::spots::{Spot, find_spots};
     let dir = tempfile::tempdir().unwrap();
     let (photo, truth) = shoot(&drop_scene(0.75, 2.54, 0.067), dir.path(), "drop.png");
-    let mut settings = MeasureSettings {
-        rate_hz: None,
-        scale: Some(ScaleSource::PxPerM(290.0)),
-        ball_diameter_m: Some(0.067),
-        ..Default::default()
-    };
-    settings.physics.unknown = Unknown::Interval;
+    let settings = interval_settings();
     let img = load(&photo, &LoadOptions::default()).unwrap();
     let mut report = find_spots(&img, None, &settings.spots, None).unwrap();
     let apex = truth
