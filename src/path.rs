@@ -19,7 +19,8 @@
 //!    other (turn under 60 degrees, step ratio 0.5..2, radii within the tolerance), smallest
 //!    second difference first. Slow parts of the path (the start from rest, the tops of the
 //!    arcs) give the best seeds; up to [`SEEDS_TRIED`] seeds are walked and the longest chain
-//!    wins.
+//!    wins, less one point for each step that passes over another image (a chain at half the
+//!    flash rate, see `Finder::chain_score`).
 //! 3. From a seed the walk runs forward and backward in time. The next position `k` flashes
 //!    ahead is the quadratic through the last three points of the current arc (for `k = 1`:
 //!    `p = 3 p_n - 3 p_(n-1) + p_(n-2)`); with only two points after a bounce it is
@@ -98,6 +99,15 @@ const CLEAR_FRACTION: f64 = 0.25;
 const MIN_DOWN_COS: f64 = 0.85;
 /// Most consecutive missed flashes the walk bridges, whatever the options say.
 const MAX_MISSES_LIMIT: usize = 4;
+
+/// See [`Finder::chain_score`]: a spot this near (in radii) to a step's midpoint was passed over.
+/// Under constant acceleration a the image between two flashes lies |a| / 2 (pixels per flash
+/// squared) from their midpoint: a few tenths of a radius at most where steps are long.
+const SKIPPED_MID_R: f64 = 0.3;
+
+/// See [`Finder::chain_score`]: only steps longer than this many radii are checked (shorter
+/// ones cannot hold a separate image between their ends).
+const SKIPPED_STEP_R: f64 = 1.2;
 /// Most paths built, whatever the options say.
 const MAX_PATHS_LIMIT: usize = 8;
 
@@ -523,7 +533,7 @@ impl Finder<'_> {
     /// The longest chain from the best seeds, or none when there is no seed.
     fn best_chain(&mut self) -> Option<Chain> {
         let seeds = self.seeds();
-        let mut best: Option<Chain> = None;
+        let mut best: Option<(Chain, (i64, i64))> = None;
         let mut in_best = vec![false; self.items.len()];
         let available = self.taken.iter().filter(|t| !**t).count();
         let mut tried = 0;
@@ -536,20 +546,53 @@ impl Finder<'_> {
             }
             tried += 1;
             let chain = self.walk_from(seed);
-            let better = best.as_ref().is_none_or(|b| chain.score() > b.score());
-            if better {
+            // The plain score bounds the checked one from above: most chains lose on it alone.
+            if best.as_ref().is_some_and(|(_, b)| chain.score() <= *b) {
+                continue;
+            }
+            let score = self.chain_score(&chain);
+            if best.as_ref().is_none_or(|(_, b)| score > *b) {
                 in_best.iter_mut().for_each(|v| *v = false);
                 for node in &chain.nodes {
                     in_best[node.item] = true;
                 }
                 let complete = chain.nodes.len() == available;
-                best = Some(chain);
+                best = Some((chain, score));
                 if complete {
                     break;
                 }
             }
         }
-        best
+        best.map(|(chain, _)| chain)
+    }
+
+    /// A chain's score ([`Chain::score`]) less one for each of its one-flash steps that passes
+    /// over another image: a spot within [`SKIPPED_MID_R`] radii of the step's midpoint, on a
+    /// step longer than [`SKIPPED_STEP_R`] radii. Such a step is two flashes, and a chain made
+    /// of them runs at half the flash rate: where a fall and the rise after a bounce lie side
+    /// by side, every other image of both makes a chain as smooth as the true one (the third
+    /// difference vanishes for any fixed step), and a longer one where the true chain stops
+    /// at an apex whose images are too close to be found.
+    fn chain_score(&self, chain: &Chain) -> (i64, i64) {
+        let r = chain.r_ref_px;
+        let skipped = chain
+            .nodes
+            .windows(2)
+            .filter(|w| w[1].n == w[0].n + 1)
+            .filter(|w| {
+                let (a, b) = (self.pos(w[0].item), self.pos(w[1].item));
+                if norm(sub(b, a)) <= SKIPPED_STEP_R * r {
+                    return false;
+                }
+                let mid = scale(add(a, b), 0.5);
+                self.tree
+                    .within(mid[0], mid[1], SKIPPED_MID_R * r, 4)
+                    .iter()
+                    .any(|nb| nb.index != w[0].item && nb.index != w[1].item)
+            })
+            .count() as i64;
+        let (points, misses) = chain.score();
+        (points - skipped, misses)
     }
 
     /// Seed triples (first, middle, last), best first.

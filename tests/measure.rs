@@ -285,17 +285,15 @@ fn the_ball_as_the_ruler_gives_gravity_with_an_honest_sigma() {
 }
 
 #[test]
-#[ignore = "known failure: the path walk takes every other image (half the flash rate), see \
-            the comment"]
 fn one_more_true_image_at_an_apex_keeps_the_drop_test_interval() {
     // The drop test above with the spots it finds plus the image of the flash three before the
     // first bounce's apex, where the detector misses it (its truth position): the path must
-    // still give the interval of the rendered truth within 0.2 %. It does not yet: the fall
-    // and the first rise lie side by side (the ball drifts 2 px per flash), and a chain taking
-    // every other image (rising on one, up to the release, down the other) bridges the six
-    // unfound images at the apex that stop the true chain (one missed flash by default), so it is
-    // longer and wins; the interval comes out 0.0678 s against 0.0333 s. Found with a
-    // second-chance pass of the spot fits that finds that image.
+    // still give the interval of the rendered truth within 0.2 %. The fall and the first rise
+    // lie side by side (the ball drifts 2 px per flash), and a chain taking every other image
+    // (rising on one, up to the release, down the other) is as smooth as the true one and
+    // bridges the six unfound images at the apex that stop the true chain: it was longer and
+    // won (interval 0.0678 s against 0.0333 s) until steps that pass over an image counted
+    // against a chain.
     use beadline::load::{LoadOptions, load};
     use beadline::measure::measure_spots;
     use beadline::spots::{Spot, find_spots};
