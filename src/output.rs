@@ -32,9 +32,11 @@ where
 {
     // Where the bytes finally go: through any links, when the target exists already.
     let dest = std::fs::canonicalize(path).unwrap_or_else(|_| path.to_path_buf());
+    // `/dev/stdout` redirected to a file resolves to that file: it too is written in place, so the
+    // bytes land where the shell's redirection expects them.
+    let special_name = path.starts_with("/dev") || path.starts_with("/proc");
     if let Ok(meta) = std::fs::metadata(&dest)
-        && !meta.is_file()
-        && !meta.is_dir()
+        && (special_name || (!meta.is_file() && !meta.is_dir()))
     {
         return write_special(&dest, fill).map_err(|e| Error::io(path, e));
     }
@@ -53,12 +55,12 @@ where
     })
 }
 
-/// Write into an existing special file (device, named pipe) in place.
+/// Write into an existing special file (device, named pipe) in place, after what it holds.
 fn write_special<F>(dest: &Path, fill: F) -> std::io::Result<()>
 where
     F: FnOnce(&mut dyn Write) -> std::io::Result<()>,
 {
-    let file = std::fs::OpenOptions::new().write(true).open(dest)?;
+    let file = std::fs::OpenOptions::new().append(true).open(dest)?;
     let mut writer = std::io::BufWriter::new(file);
     fill(&mut writer)?;
     writer.flush()

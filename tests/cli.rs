@@ -67,6 +67,18 @@ fn render_then_spots_json_reads_back_with_the_schema_types() {
     let csv = String::from_utf8(out.stdout).unwrap();
     assert!(csv.starts_with("x_px,y_px,r_px,sigma_px,score"));
     assert_eq!(csv.lines().count(), doc.spots.len() + 1);
+    // `-o /dev/stdout` writes into the pipe the caller reads (no file renamed over the device).
+    let out = beadline(
+        &["spots", "p.png", "--format", "json", "-o", "/dev/stdout"],
+        dir.path(),
+    );
+    assert!(
+        out.status.success(),
+        "{}",
+        String::from_utf8_lossy(&out.stderr)
+    );
+    let piped: SpotsDoc = serde_json::from_slice(&out.stdout).unwrap();
+    assert_eq!(piped.spots.len(), doc.spots.len());
 }
 
 #[test]
