@@ -4,10 +4,10 @@
 //!
 //! `cargo bench --bench path_order`
 
-use beadline::path::{PathOptions, order_path};
-use beadline::render::scene::Scene;
-use beadline::render::sim::Motion;
-use beadline::spots::Spot;
+use beadline::detect::Spot;
+use beadline::synth::scene::Scene;
+use beadline::synth::sim::Motion;
+use beadline::track::{PathOptions, order_path};
 use std::time::Instant;
 
 fn main() {

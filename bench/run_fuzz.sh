@@ -3,7 +3,7 @@
 # executions run. Usage: bench/run_fuzz.sh [SECONDS_PER_TARGET] (default 60).
 set -euo pipefail
 root="$(cd "$(dirname "$0")/.." && pwd)"
-cd "$root/bench/fuzz"
+cd "$root/fuzz"
 seconds="${1:-60}"
 if ! rustup toolchain list 2>/dev/null | grep -q '^nightly'; then
     if ! rustup toolchain install nightly --profile minimal; then
@@ -25,7 +25,7 @@ for target in load_spots profile; do
     log="$target.log"
     # -rss_limit_mb: the decoding limits must keep memory bounded on any input.
     # cargo fuzz looks for fuzz/ at the project root unless told where the fuzz crate is.
-    (cd "$root" && cargo +nightly fuzz run --fuzz-dir bench/fuzz "$target" "bench/fuzz/$corpus" -- \
+    (cd "$root" && cargo +nightly fuzz run --fuzz-dir fuzz "$target" "fuzz/$corpus" -- \
         -max_total_time="$seconds" -rss_limit_mb=2048 -max_len=262144) 2>&1 | tee "$log" | tail -n 3
     execs=$(grep -o 'Done [0-9]* runs' "$log" | tail -n 1 | grep -o '[0-9]*' || echo "?")
     echo "run_fuzz: $target: $execs executions in ${seconds} s without a crash"

@@ -4,8 +4,8 @@
 //! the file alone (the image crate, as `load` uses it), `load` (decode + grey conversion), and the
 //! whole `find_spots`, and their ratios. Used by bench/run_spots.sh for the speed table.
 
-use beadline::load::{LoadOptions, load};
-use beadline::spots::{SpotOptions, find_spots};
+use beadline::detect::{SpotOptions, find_spots};
+use beadline::image::load::{LoadOptions, load};
 use std::time::Instant;
 
 fn median(mut v: Vec<f64>) -> f64 {

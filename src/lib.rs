@@ -3,47 +3,38 @@
 //! pixels to metres, splits the path into rolling, flight and bounce phases and fits the physics.
 //! It also renders synthetic strobe photos with exact ground truth.
 //!
-//! Stages, one module each:
-//! - [`load`]: photo file -> grey f32 working image (EXIF orientation, decoding limits).
-//! - [`background`]: background estimate or clean plate, polarity, noise level.
-//! - [`threshold`]: regions that differ from the background (blobs).
-//! - [`hough`]: sub-pixel edge points and the circular Hough transform.
-//! - [`refine`]: joint geometric circle fits with uncertainties.
-//! - [`spots`]: the detection pipeline end to end: photo -> ball images.
-//! - [`measure`]: the main job, photo -> timed path -> physics (chains the stages).
-//! - [`rig`]: many photos unattended on a test rig: profile, parallel runs, JSON lines, watch.
-//! - [`plan`]: choose flash rate, count and exposure before the shot.
-//! - [`path`]: spots -> the ball's path in time order with flash indices, and the strays.
-//! - [`overlay`], [`plot`]: pictures a person checks at a glance.
-//! - [`render`]: synthetic photos from a scene (physics, camera, exact disc coverage, noise).
+//! Stages, one folder each, over a shared [`core`]:
+//! - [`image`]: photo file -> grey f32 working image, its background and the blobs that differ.
+//! - [`detect`]: blobs -> ball images with sub-pixel centres (Hough transform, circle fits).
+//! - [`track`]: ball images -> the ball's path in time order with flash indices, and the strays.
 //! - [`calibrate`]: pixels to world metres (uniform scale, plane homography by DLT, distortion).
 //! - [`physics`]: timed path to phases, fits and physics numbers with 1-sigma uncertainties.
+//! - [`pipeline`]: the main job, photo -> timed path -> physics (chains the stages).
+//! - [`report`]: the documents every command writes (JSON, text, CSV), one schema version.
+//! - [`draw`]: pictures a person checks at a glance (overlay, plots).
+//! - [`rig`]: many photos unattended on a test rig: profile, parallel runs, JSON lines, watch.
+//! - [`synth`]: synthetic photos from a scene (physics, camera, exact disc coverage, noise) and
+//!   shot planning; it uses the stages, they never use it.
 //!
 //! # Examples
 //! ```
-//! use beadline::render::scene::Scene;
+//! use beadline::synth::scene::Scene;
 //! let scene = Scene::demo();
 //! assert_eq!(scene.strobe.rate_hz, 25.0);
 //! ```
 #![deny(missing_docs)]
 
-pub mod background;
 pub mod calibrate;
+pub mod core;
+pub mod detect;
+pub mod draw;
 pub mod error;
-pub mod hough;
-pub mod load;
-pub mod measure;
-pub mod output;
-pub mod overlay;
-pub mod path;
+pub mod image;
 pub mod physics;
-pub mod plan;
-pub mod plot;
-pub mod refine;
-pub mod render;
+pub mod pipeline;
 pub mod report;
 pub mod rig;
-pub mod spots;
-pub mod threshold;
+pub mod synth;
+pub mod track;
 
 pub use error::{Error, Result};

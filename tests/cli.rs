@@ -17,7 +17,7 @@ fn render_then_spots_json_reads_back_with_the_schema_types() {
     let dir = tempfile::tempdir().unwrap();
     std::fs::write(
         dir.path().join("scene.toml"),
-        beadline::render::scene::DEMO_SCENE,
+        beadline::synth::scene::DEMO_SCENE,
     )
     .unwrap();
     let out = beadline(
@@ -58,7 +58,7 @@ fn render_then_spots_json_reads_back_with_the_schema_types() {
         serde_json::from_str(&std::fs::read_to_string(dir.path().join("s.json")).unwrap()).unwrap();
     assert_eq!(doc.schema_version, beadline::report::SCHEMA_VERSION);
     assert_eq!((doc.width_px, doc.height_px), (1600, 900));
-    let truth: beadline::render::Truth =
+    let truth: beadline::synth::Truth =
         serde_json::from_str(&std::fs::read_to_string(dir.path().join("t.json")).unwrap()).unwrap();
     assert!(doc.spots.len() + 1 >= truth.flashes.len());
     assert!(image::open(dir.path().join("o.png")).is_ok());

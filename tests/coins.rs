@@ -5,8 +5,8 @@
 //! (bench/coins_truth.py), not from a published table: they are good to about 3 px, the
 //! tolerance their file states.
 
-use beadline::load::{LoadOptions, load};
-use beadline::spots::{SpotOptions, find_spots};
+use beadline::detect::{SpotOptions, find_spots};
+use beadline::image::load::{LoadOptions, load};
 use std::path::Path;
 
 #[test]
@@ -29,7 +29,7 @@ fn all_24_coins_are_found_and_nothing_else() {
         faint_fraction: 0.2,
         ..SpotOptions::default()
     };
-    options.background.polarity = Some(beadline::background::Polarity::Bright);
+    options.background.polarity = Some(beadline::image::background::Polarity::Bright);
     let report = find_spots(&photo, None, &options, None).unwrap();
     let mut used = vec![false; report.spots.len()];
     for c in coins {

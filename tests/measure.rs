@@ -1,14 +1,14 @@
 //! The main job end to end — photo rendered with exact physics -> spots -> path -> calibration ->
 //! fits — against the renderer's ground truth and published acceptance bands.
 
-use beadline::measure::{MeasureSettings, ScaleSource, measure_photo};
 use beadline::physics::bands::{Band, Outcome};
 use beadline::physics::{Quantity, Unknown};
-use beadline::render::{self, Truth, scene::Scene};
+use beadline::pipeline::{MeasureSettings, ScaleSource, measure_photo};
+use beadline::synth::{self, Truth, scene::Scene};
 use std::path::Path;
 
 fn shoot(scene: &Scene, dir: &Path, name: &str) -> (std::path::PathBuf, Truth) {
-    let photo = render::render(scene);
+    let photo = synth::render(scene);
     let path = dir.join(name);
     photo.save(&path).unwrap();
     (path, photo.truth)
@@ -159,7 +159,7 @@ fn rebound_standards_as_acceptance_bands() {
 /// A plane file of six points of the plane of motion with their world coordinates, as a user
 /// would mark them on the rig, seen through the scene's camera; `header` adds distortion keys.
 fn plane_file(scene: &Scene, dir: &Path, header: &str) -> std::path::PathBuf {
-    let proj = render::camera::Projection::new(&scene.camera);
+    let proj = synth::camera::Projection::new(&scene.camera);
     let mut plane = header.to_string();
     for (x, y) in [
         (0.0, 0.0),
@@ -294,9 +294,9 @@ fn one_more_true_image_at_an_apex_keeps_the_drop_test_interval() {
     // bridges the six unfound images at the apex that stop the true chain: it was longer and
     // won (interval 0.0678 s against 0.0333 s) until steps that pass over an image counted
     // against a chain.
-    use beadline::load::{LoadOptions, load};
-    use beadline::measure::measure_spots;
-    use beadline::spots::{Spot, find_spots};
+    use beadline::detect::{Spot, find_spots};
+    use beadline::image::load::{LoadOptions, load};
+    use beadline::pipeline::measure_spots;
     let dir = tempfile::tempdir().unwrap();
     let (photo, truth) = shoot(&drop_scene(0.75, 2.54, 0.067), dir.path(), "drop.png");
     let settings = interval_settings();

@@ -1,6 +1,6 @@
 //! Output writing: complete files or none, and special targets left what they are.
 
-use beadline::output::{write_atomic, write_text};
+use beadline::core::output::{write_atomic, write_text};
 use std::os::unix::fs::FileTypeExt;
 
 /// Names in `dir` other than the ones listed: a leftover temporary file shows up here.

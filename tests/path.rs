@@ -1,8 +1,8 @@
 //! Path ordering checks against a brute-force linear scan and against rendered ground truth.
 
-use beadline::path::{PathOptions, PathResult, PixelPoint, SpotTree, StrayReason, order_path};
-use beadline::render::{self, FlashTruth, scene::Scene};
-use beadline::spots::Spot;
+use beadline::detect::Spot;
+use beadline::synth::{self, FlashTruth, scene::Scene};
+use beadline::track::{PathOptions, PathResult, PixelPoint, SpotTree, StrayReason, order_path};
 use rand::seq::SliceRandom;
 use rand::{RngExt, SeedableRng};
 use rand_chacha::ChaCha8Rng;
@@ -10,7 +10,7 @@ use std::path::Path;
 
 /// Truth flashes inside the frame, in time order.
 fn truth_flashes(scene: &Scene) -> Vec<FlashTruth> {
-    let photo = render::render(scene);
+    let photo = synth::render(scene);
     photo
         .truth
         .flashes
@@ -165,7 +165,7 @@ fn drop_test_with_bounces_is_recovered_in_order() {
     // drift, so the arcs come down close to where they went up.
     let scene = drop_scene();
     let flashes = truth_flashes(&scene);
-    let photo = render::render(&scene);
+    let photo = synth::render(&scene);
     assert!(photo.truth.bounces.len() >= 3);
     let (spots, truth_n) = shuffled_spots(&flashes, 2);
     let result = order_path(&spots, &PathOptions::default());

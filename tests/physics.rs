@@ -4,9 +4,9 @@ use beadline::calibrate::{Calibration, Distortion, homography_dlt};
 use beadline::physics::bands::{Band, Outcome};
 use beadline::physics::fit::{CovarianceScaling, FitOptions, polynomial_fit};
 use beadline::physics::{MeasureOptions, Measurement, Quantity, TimedPoint, Unknown, measure};
-use beadline::render::camera::Projection;
-use beadline::render::scene::{Build, Scene};
-use beadline::render::sim::{Motion, rolling_end_speed_mps};
+use beadline::synth::camera::Projection;
+use beadline::synth::scene::{Build, Scene};
+use beadline::synth::sim::{Motion, rolling_end_speed_mps};
 use nalgebra::Matrix3;
 use rand::SeedableRng;
 use rand_distr::{Distribution, Normal};
@@ -74,7 +74,7 @@ fn normalised(h: &Matrix3<f64>) -> Matrix3<f64> {
 
 #[test]
 fn dlt_recovers_the_renderer_homography() {
-    // Exact points of a tilted, rolled camera (render::camera): the normalised DLT (Hartley &
+    // Exact points of a tilted, rolled camera (synth::camera): the normalised DLT (Hartley &
     // Zisserman alg. 4.2) must return the same homography to 1e-9 relative.
     let mut scene = Scene::demo();
     scene.camera.tilt_deg = 20.0;
@@ -233,7 +233,7 @@ fn check_bounces(m: &Measurement, s: &Shot, min_bounces: usize) -> f64 {
 
 #[test]
 fn demo_incline_launch_bounces_and_gravity() {
-    // Rendered ground truth (render::sim): Scene::demo with a longer exposure and a wider view so
+    // Rendered ground truth (synth::sim): Scene::demo with a longer exposure and a wider view so
     // that 3 bounces have fitted arcs on both sides; incline + 3 bounces, gravity estimated.
     let mut scene = Scene::demo();
     scene.strobe.exposure_s = 2.0;
@@ -493,7 +493,7 @@ fn refuses_bad_paths_without_panicking() {
 
 #[test]
 fn quadratic_drag_is_recovered_when_asked() {
-    // Rendered truth with quadratic drag a = -D |v| v (render::sim, RK4): the drag fit returns D.
+    // Rendered truth with quadratic drag a = -D |v| v (synth::sim, RK4): the drag fit returns D.
     let mut scene = Scene::demo();
     scene.flight.drag_per_m = 0.1;
     scene.strobe.rate_hz = 50.0;

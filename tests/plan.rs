@@ -1,7 +1,7 @@
 //! Shot planning against answers worked out by hand from the equations of motion.
 
-use beadline::plan::{CAUTION, plan};
-use beadline::render::{self, scene::Scene, sim::Motion};
+use beadline::synth::plan::{CAUTION, plan};
+use beadline::synth::{self, scene::Scene, sim::Motion};
 use std::path::Path;
 
 fn drop_scene(max_flashes: usize, max_rate_hz: f64, wishes: &str) -> Scene {
@@ -108,7 +108,7 @@ fn every_plan_in_the_flicker_band_carries_the_caution() {
 fn the_preview_is_rendered_with_the_planned_settings() {
     let scene = drop_scene(200, 60.0, "bounces = 1");
     let p = plan(&scene).unwrap();
-    let photo = render::render(&p.apply(&scene));
+    let photo = synth::render(&p.apply(&scene));
     assert_eq!(photo.truth.flashes.len(), p.flashes);
     assert_eq!(photo.truth.rate_hz, p.rate_hz);
     assert!((photo.truth.flashes[0].t_s - p.first_flash_s).abs() < 1e-12);

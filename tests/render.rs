@@ -1,9 +1,9 @@
 //! Renderer checks against physics formulas and exact geometry.
 
-use beadline::render::paint::disc_coverage;
-use beadline::render::scene::{Build, STANDARD_GRAVITY_MPS2, Scene, inertia_factor};
-use beadline::render::sim::{Motion, Phase, rolling_end_speed_mps};
-use beadline::render::{self};
+use beadline::synth::paint::disc_coverage;
+use beadline::synth::scene::{Build, STANDARD_GRAVITY_MPS2, Scene, inertia_factor};
+use beadline::synth::sim::{Motion, Phase, rolling_end_speed_mps};
+use beadline::synth::{self};
 use std::path::Path;
 
 fn incline_scene(build: &str, angle_deg: f64, length_m: f64) -> Scene {
@@ -219,7 +219,7 @@ fn rendered_disc_has_the_analytic_centroid_and_area() {
     let dir = tempfile::tempdir().unwrap();
     for &(x_m, y_m) in &[(0.1, 0.12), (0.1213, 0.1171), (0.09876, 0.13333)] {
         let scene = one_flash_scene(x_m, y_m);
-        let photo = render::render(&scene);
+        let photo = synth::render(&scene);
         let path = dir.path().join("disc.png");
         photo.save(&path).unwrap();
         let img = image::open(&path).unwrap().to_luma16();
@@ -263,19 +263,19 @@ fn renderer_is_deterministic_for_a_seed() {
     scene.camera.px_per_m = 200.0;
     scene.camera.origin_x_px = 60.0;
     scene.camera.origin_y_px = 180.0;
-    let a = render::render(&scene);
-    let b = render::render(&scene);
+    let a = synth::render(&scene);
+    let b = synth::render(&scene);
     assert_eq!(a.pixels, b.pixels);
     assert_eq!(a.truth, b.truth);
     scene.seed += 1;
-    let c = render::render(&scene);
+    let c = synth::render(&scene);
     assert_ne!(a.pixels, c.pixels);
     assert_eq!(a.truth.flashes, c.truth.flashes);
 }
 
 #[test]
 fn camera_roll_and_tilt_round_trip() {
-    use beadline::render::camera::Projection;
+    use beadline::synth::camera::Projection;
     let mut scene = Scene::demo();
     scene.camera.roll_deg = 3.0;
     scene.camera.tilt_deg = 15.0;
@@ -296,12 +296,12 @@ fn scene_errors_name_the_key() {
         .unwrap_err()
         .to_string();
     assert!(err.contains("s.toml") && err.contains("spin"), "{err}");
-    let mut text = beadline::render::scene::DEMO_SCENE.replace("rate_hz = 25.0", "rate_hz = -25.0");
+    let mut text = beadline::synth::scene::DEMO_SCENE.replace("rate_hz = 25.0", "rate_hz = -25.0");
     let err = Scene::from_toml(&text, Path::new("s.toml"))
         .unwrap_err()
         .to_string();
     assert!(err.contains("strobe.rate_hz"), "{err}");
-    text = beadline::render::scene::DEMO_SCENE.replace("angle_deg = 20.0", "angle_deg = nan");
+    text = beadline::synth::scene::DEMO_SCENE.replace("angle_deg = 20.0", "angle_deg = nan");
     let err = Scene::from_toml(&text, Path::new("s.toml"))
         .unwrap_err()
         .to_string();
@@ -314,13 +314,13 @@ fn the_clean_plate_is_the_photo_without_the_ball() {
     // its own flash only, so the plate is brighter by about 1/N of the backdrop level at each
     // image centre and equal wherever no image falls.
     let mut scene = Scene::demo();
-    scene.photo.polarity = render::scene::Polarity::Dark;
+    scene.photo.polarity = synth::scene::Polarity::Dark;
     scene.photo.noise = false;
     scene.photo.ambient_exposure = 0.0;
     scene.photo.vignetting = 0.0;
-    scene.photo.tone = render::scene::Tone::Linear;
-    let photo = render::render(&scene);
-    let plate = render::render_plate(&scene);
+    scene.photo.tone = synth::scene::Tone::Linear;
+    let photo = synth::render(&scene);
+    let plate = synth::render_plate(&scene);
     assert_eq!(photo.truth, plate.truth);
     let w = photo.width as usize;
     let n = photo.truth.flashes.len() as f64;

@@ -1,7 +1,7 @@
 //! `beadline rig`: bad inputs, exit statuses, profile precedence, parseable outputs, and the
 //! watch journal's exactly-once behaviour across a kill. Every photo is generated here.
 
-use beadline::render::{self, scene::Scene};
+use beadline::synth::{self, scene::Scene};
 use std::io::{BufRead, BufReader};
 use std::path::{Path, PathBuf};
 use std::process::{Command, Output, Stdio};
@@ -18,7 +18,7 @@ fn small_scene() -> Scene {
 }
 
 fn render_to(scene: &Scene, path: &Path) {
-    render::render(scene).save(path).expect("render the photo");
+    synth::render(scene).save(path).expect("render the photo");
 }
 
 /// The demo's measure settings: 25 Hz strobe, 40 mm ball.

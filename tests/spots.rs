@@ -1,14 +1,14 @@
 //! Spot finding against rendered ground truth (exact centres from the renderer's physics and
 //! camera model) and against bad input.
 
-use beadline::load::{LoadOptions, load};
-use beadline::render::{self, Truth, scene::Scene};
-use beadline::spots::{SpotOptions, SpotReport, find_spots};
+use beadline::detect::{SpotOptions, SpotReport, find_spots};
+use beadline::image::load::{LoadOptions, load};
+use beadline::synth::{self, Truth, scene::Scene};
 use std::path::{Path, PathBuf};
 
 /// Render `scene` into `path` and load it back.
-fn render_and_load(scene: &Scene, path: &Path) -> (beadline::load::Photo, Truth) {
-    let photo = render::render(scene);
+fn render_and_load(scene: &Scene, path: &Path) -> (beadline::image::load::Photo, Truth) {
+    let photo = synth::render(scene);
     photo.save(path).unwrap();
     (load(path, &LoadOptions::default()).unwrap(), photo.truth)
 }
@@ -174,10 +174,10 @@ fn dark_ball_on_bright_backdrop_is_found() {
     // Few flashes: each image dims the backdrop by about 1/N (physics of the long exposure).
     let dir = tempfile::tempdir().unwrap();
     let mut scene = throw_scene(0.02, 6);
-    scene.photo.polarity = render::scene::Polarity::Dark;
+    scene.photo.polarity = synth::scene::Polarity::Dark;
     scene.photo.texture = 0.03;
     let (report, truth, _) = detect(&scene, dir.path(), "dark.png");
-    assert_eq!(report.polarity, beadline::background::Polarity::Dark);
+    assert_eq!(report.polarity, beadline::image::background::Polarity::Dark);
     let s = score(&report, &truth);
     assert_eq!(s.found, s.expected);
     assert_eq!(s.false_spots, 0);
@@ -210,13 +210,13 @@ fn distractors_of_another_size_and_reflections_are_not_kept() {
     let mut scene = Scene::demo();
     scene.floor.glossy = true;
     scene.distractors = vec![
-        render::scene::Distractor {
+        synth::scene::Distractor {
             x_px: 1300.0,
             y_px: 150.0,
             r_px: 36.0,
             albedo: 0.02,
         },
-        render::scene::Distractor {
+        synth::scene::Distractor {
             x_px: 900.0,
             y_px: 120.0,
             r_px: 11.0,
@@ -259,7 +259,7 @@ fn bad_files_get_an_error_naming_the_file() {
     std::fs::write(&text, b"this is not a photo\n").unwrap();
     let scene = throw_scene(0.02, 3);
     let good = dir.path().join("good.jpg");
-    render::render(&scene).save(&good).unwrap();
+    synth::render(&scene).save(&good).unwrap();
     let bytes = std::fs::read(&good).unwrap();
     let truncated = dir.path().join("truncated.jpg");
     std::fs::write(&truncated, &bytes[..bytes.len() / 3]).unwrap();
@@ -301,7 +301,7 @@ fn a_photo_of_noise_is_refused_with_a_clear_message() {
             }
         }
     }
-    let photo = beadline::load::Photo::from_luma(Path::new("noise.png"), w, h, luma);
+    let photo = beadline::image::load::Photo::from_luma(Path::new("noise.png"), w, h, luma);
     let err = find_spots(&photo, None, &SpotOptions::default(), None)
         .unwrap_err()
         .to_string();
@@ -375,14 +375,18 @@ fn photo_and_plate(
     scene: &Scene,
     dir: &Path,
     ext: &str,
-) -> (beadline::load::Photo, beadline::load::Photo, Truth) {
-    let photo = render::render(scene);
+) -> (
+    beadline::image::load::Photo,
+    beadline::image::load::Photo,
+    Truth,
+) {
+    let photo = synth::render(scene);
     let (pp, qp) = (
         dir.join(format!("dark.{ext}")),
         dir.join(format!("plate.{ext}")),
     );
     photo.save(&pp).unwrap();
-    render::render_plate(scene).save(&qp).unwrap();
+    synth::render_plate(scene).save(&qp).unwrap();
     let img = load(&pp, &LoadOptions::default()).unwrap();
     let clean = load(&qp, &LoadOptions::default()).unwrap();
     (img, clean, photo.truth)
@@ -395,10 +399,10 @@ fn a_dark_ball_under_many_flashes_is_found_against_its_clean_plate() {
     // scene without the ball, its own sensor noise) removes the texture.
     let dir = tempfile::tempdir().unwrap();
     let mut scene = Scene::demo();
-    scene.photo.polarity = render::scene::Polarity::Dark;
+    scene.photo.polarity = synth::scene::Polarity::Dark;
     let (img, clean, truth) = photo_and_plate(&scene, dir.path(), "png");
     let with = find_spots(&img, Some(&clean), &SpotOptions::default(), None).unwrap();
-    assert_eq!(with.polarity, beadline::background::Polarity::Dark);
+    assert_eq!(with.polarity, beadline::image::background::Polarity::Dark);
     let s = score(&with, &truth);
     assert_eq!((s.found, s.false_spots), (s.expected, 0));
     assert!(s.isolated_rms_px < 0.2, "{}", s.isolated_rms_px);
@@ -474,11 +478,11 @@ fn a_linear_sixteen_bit_photo_is_fitted_in_its_own_tone() {
     // distorted and the fit is worse.
     let dir = tempfile::tempdir().unwrap();
     let mut scene = throw_scene(0.016, 12);
-    scene.photo.tone = render::scene::Tone::Linear;
+    scene.photo.tone = synth::scene::Tone::Linear;
     scene.photo.bit_depth = 16;
     let (img, truth) = render_and_load(&scene, &dir.path().join("linear.png"));
     let linear = SpotOptions {
-        tone: render::scene::Tone::Linear,
+        tone: synth::scene::Tone::Linear,
         ..SpotOptions::default()
     };
     let right = score(&find_spots(&img, None, &linear, None).unwrap(), &truth);
@@ -504,8 +508,8 @@ fn a_linear_sixteen_bit_photo_is_fitted_in_its_own_tone() {
 fn the_srgb_curve_is_inverted_exactly() {
     // IEC 61966-2-1: stored 0.5 is linear ((0.5 + 0.055) / 1.055)^2.4 = 0.21404 (value from
     // memory, recomputed from the standard's formula); round trip through the renderer's encoder.
-    use beadline::render::paint::srgb_encode;
-    use beadline::render::scene::Tone;
+    use beadline::synth::paint::srgb_encode;
+    use beadline::synth::scene::Tone;
     assert!((Tone::Srgb.to_linear(0.5) - 0.21404).abs() < 1e-5);
     assert_eq!(Tone::Linear.to_linear(0.5), 0.5);
     for i in 0..=100 {
@@ -536,7 +540,7 @@ fn a_bright_mirror_image_is_told_apart_by_its_light() {
     let other: Vec<_> = report
         .rejected
         .iter()
-        .filter(|r| r.reason == beadline::spots::Reason::OtherLight)
+        .filter(|r| r.reason == beadline::detect::Reason::OtherLight)
         .collect();
     assert!(!other.is_empty(), "no mirror image rejected by its light");
     for r in other {
@@ -619,7 +623,7 @@ fn a_tiny_photo_searched_for_a_large_ball_gives_an_empty_result() {
     // decimated by 2 left a 1 x 1 block grid, which the labelling refused with a panic).
     for (w, h) in [(3usize, 3usize), (5, 200), (40, 40)] {
         let luma: Vec<f32> = (0..w * h).map(|i| ((i * 37) % 11) as f32 / 11.0).collect();
-        let photo = beadline::load::Photo::from_luma(Path::new("tiny.png"), w, h, luma);
+        let photo = beadline::image::load::Photo::from_luma(Path::new("tiny.png"), w, h, luma);
         for radius_px in [(24.0, 30.0), (200.0, 300.0)] {
             let options = SpotOptions {
                 radius_px: Some(radius_px),

@@ -24,7 +24,7 @@ pub mod incline;
 pub mod phases;
 
 use crate::error::{Error, Result};
-use crate::render::scene::{Build, STANDARD_GRAVITY_MPS2, inertia_factor};
+use crate::synth::scene::{Build, STANDARD_GRAVITY_MPS2, inertia_factor};
 use bands::{Band, Verdict};
 use bounce::Bounce;
 use fit::{CovarianceScaling, FitOptions, polynomial_fit};

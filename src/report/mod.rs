@@ -3,9 +3,9 @@
 //! Goes in: stage results. Comes out: serde types (the JSON interface for rig pipelines, versioned
 //! by [`SCHEMA_VERSION`]), text for a person and CSV rows.
 
-use crate::background::Polarity;
-use crate::path::{PathPoint, PathResult, Stray};
-use crate::spots::{Rejected, Spot, SpotOptions, SpotReport};
+use crate::detect::{Rejected, Spot, SpotOptions, SpotReport};
+use crate::image::background::Polarity;
+use crate::track::{PathPoint, PathResult, Stray};
 use serde::{Deserialize, Serialize};
 
 /// Version of every JSON document Beadline writes; raised when a key changes meaning or goes.
@@ -57,7 +57,7 @@ pub struct SpotSettings {
     /// Largest common radius at which isolated images get the shaded-sphere fit, pixels.
     pub shaded_max_r_px: f64,
     /// How the photo's values were taken to encode light.
-    pub tone: crate::spots::Tone,
+    pub tone: crate::detect::Tone,
     /// Smallest radius kept on the decimated photo, pixels (0: full resolution throughout).
     #[serde(default)]
     pub coarse_r_px: f64,
@@ -178,7 +178,7 @@ pub struct PathDoc {
     /// Flash indexes with no image.
     pub missing: Vec<usize>,
     /// Further paths (another ball), each with its points and missing flashes.
-    pub other_paths: Vec<crate::path::Path>,
+    pub other_paths: Vec<crate::track::Path>,
     /// Spots on no path, with the reason.
     pub strays: Vec<Stray>,
 }

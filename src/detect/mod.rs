@@ -12,6 +12,9 @@
 //! ([`hough::prepare_band`]) and every fit is made again on them. The pixel work of a 24 MP photo
 //! of a 75 px ball falls to about a fifth.
 
+pub mod hough;
+pub mod refine;
+
 use serde::{Deserialize, Serialize};
 
 /// One image of the ball in the photo.
@@ -29,13 +32,13 @@ pub struct Spot {
     pub score: f64,
 }
 
-use crate::background::{self, Background, BackgroundOptions, Polarity};
 use crate::error::{Error, Result};
-use crate::hough::{self, HoughOptions};
-use crate::load::Photo;
-use crate::refine::{self, CircleFit, RefineOptions};
-use crate::threshold::{self, Blobs, ThresholdOptions};
+use crate::image::background::{self, Background, BackgroundOptions, Polarity};
+use crate::image::load::Photo;
+use crate::image::threshold::{self, Blobs, ThresholdOptions};
+use hough::HoughOptions;
 use rayon::prelude::*;
+use refine::{CircleFit, RefineOptions};
 use std::path::Path;
 
 /// Why a candidate was not kept as a ball image.
@@ -74,7 +77,7 @@ pub struct Rejected {
 }
 
 /// How a photo's stored values encode light (the renderer's tone curve, read back).
-pub use crate::render::scene::Tone;
+pub use crate::synth::scene::Tone;
 
 /// Every knob of spot finding.
 #[derive(Debug, Clone, Copy, PartialEq)]
@@ -955,10 +958,12 @@ fn median_of(mut v: Vec<f64>) -> f64 {
 pub fn find_spots_in_file(
     path: &Path,
     plate: Option<&Path>,
-    load: &crate::load::LoadOptions,
+    load: &crate::image::load::LoadOptions,
     options: &SpotOptions,
 ) -> Result<SpotReport> {
-    let photo = crate::load::load(path, load)?;
-    let plate = plate.map(|p| crate::load::load(p, load)).transpose()?;
+    let photo = crate::image::load::load(path, load)?;
+    let plate = plate
+        .map(|p| crate::image::load::load(p, load))
+        .transpose()?;
     find_spots(&photo, plate.as_ref(), options, None)
 }

@@ -12,8 +12,8 @@
 //! run: each gets an `error` result naming the file and the problem.
 
 use crate::error::{Error, Result};
-use crate::measure::{MeasureDoc, MeasureSettings};
 use crate::physics::bands::Outcome;
+use crate::pipeline::{MeasureDoc, MeasureSettings};
 use rayon::prelude::*;
 use serde::{Deserialize, Serialize};
 use std::collections::{HashMap, HashSet};
@@ -470,13 +470,17 @@ impl PhotoResult {
 pub fn measure_one(path: &Path, options: &RigOptions, permits: &Semaphore) -> PhotoResult {
     let file = path.display().to_string();
     let _permit = permits.acquire();
-    let outcome = crate::measure::measure_photo(path, &options.settings).and_then(|m| {
+    let outcome = crate::pipeline::measure_photo(path, &options.settings).and_then(|m| {
         if let Some(dir) = &options.overlay_dir {
             let name = path
                 .file_stem()
                 .map(|s| s.to_string_lossy().into_owned())
                 .unwrap_or_else(|| "photo".into());
-            crate::overlay::measure_overlay(path, &m, &dir.join(format!("{name}.overlay.png")))?;
+            crate::draw::overlay::measure_overlay(
+                path,
+                &m,
+                &dir.join(format!("{name}.overlay.png")),
+            )?;
         }
         Ok(m)
     });

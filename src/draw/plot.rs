@@ -3,9 +3,9 @@
 //!
 //! Goes in: a [`MeasureDoc`]. Comes out: SVG text (written atomically by the caller).
 
-use crate::measure::MeasureDoc;
 use crate::physics::PhaseKind;
 use crate::physics::fit::{FitOptions, polynomial_fit};
+use crate::pipeline::MeasureDoc;
 use std::fmt::Write;
 
 const W: f64 = 900.0;

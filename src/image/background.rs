@@ -11,7 +11,7 @@
 //! from their neighbours. The noise level is the robust sigma (1.4826 x median absolute deviation)
 //! of the sampled residuals.
 
-use crate::load::Photo;
+use crate::image::load::Photo;
 use rayon::prelude::*;
 use serde::{Deserialize, Serialize};
 

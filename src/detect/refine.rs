@@ -21,7 +21,7 @@
 //! projection, Golub & Pereyra, SIAM J. Numer. Anal. 10, 1973), outliers left out. Where the
 //! Lambert term is not significant (Schwarz's criterion), a uniform disc's silhouette is kept.
 
-use crate::hough::{Candidate, EdgePoint, Region};
+use crate::detect::hough::{Candidate, EdgePoint, Region};
 use nalgebra::{Matrix3, Vector3};
 use std::f64::consts::FRAC_1_SQRT_2;
 
@@ -718,7 +718,7 @@ fn shaded_basis(q: &WindowPixel, p: &[f64; 5], shading: Shading) -> [f64; SHADED
     } else if d2 >= outer * outer {
         return [0.0, 0.0, 0.0, 1.0];
     } else {
-        crate::render::paint::disc_coverage(q.x_px, q.y_px, p[0], p[1], p[2])
+        crate::synth::paint::disc_coverage(q.x_px, q.y_px, p[0], p[1], p[2])
     };
     if cov <= 0.0 {
         return [0.0, 0.0, 0.0, 1.0];
@@ -726,7 +726,7 @@ fn shaded_basis(q: &WindowPixel, p: &[f64; 5], shading: Shading) -> [f64; SHADED
     if shading == Shading::Flat {
         return [cov, 0.0, cov * q.backdrop, 1.0];
     }
-    let [nx, ny, nz] = crate::render::paint::sphere_normal(dx, dy, p[2], cov);
+    let [nx, ny, nz] = crate::synth::paint::sphere_normal(dx, dy, p[2], cov);
     let ln = (p[3] * p[3] + p[4] * p[4] + 1.0).sqrt();
     let lambert = ((nx * p[3] + ny * p[4] + nz) / ln).max(0.0);
     [cov, cov * lambert, cov * q.backdrop, 1.0]
@@ -973,8 +973,8 @@ fn light_start(window: &[WindowPixel], c: Circle) -> [f64; SHADED_NP] {
     let mut ata = SMatrix::<f64, 6, 6>::zeros();
     let mut atb = SVector::<f64, 6>::zeros();
     for q in window {
-        let cov = crate::render::paint::disc_coverage(q.x_px, q.y_px, cx, cy, r);
-        let [nx, ny, nz] = crate::render::paint::sphere_normal(q.x_px - cx, q.y_px - cy, r, cov);
+        let cov = crate::synth::paint::disc_coverage(q.x_px, q.y_px, cx, cy, r);
+        let [nx, ny, nz] = crate::synth::paint::sphere_normal(q.x_px - cx, q.y_px - cy, r, cov);
         let v = SVector::<f64, 6>::from_column_slice(&[
             cov,
             cov * nx,

@@ -141,13 +141,13 @@ impl Canvas {
         self.image
             .write_to(&mut buf, image::ImageFormat::Png)
             .map_err(|e| Error::io(path, std::io::Error::other(e)))?;
-        crate::output::write_atomic(path, |w| w.write_all(buf.get_ref()))
+        crate::core::output::write_atomic(path, |w| w.write_all(buf.get_ref()))
     }
 }
 
 /// The measure overlay: ball images numbered by flash, strays, the path by phase, the floor line
 /// and each bounce labelled with its restitution.
-pub fn measure_overlay(photo: &Path, m: &crate::measure::Measured, out: &Path) -> Result<()> {
+pub fn measure_overlay(photo: &Path, m: &crate::pipeline::Measured, out: &Path) -> Result<()> {
     let mut c = Canvas::open(photo)?;
     let doc = &m.doc;
     let scale = (doc.width_px.max(doc.height_px) as f64 / 800.0)

@@ -7,7 +7,7 @@
 //!
 //! # Examples
 //! ```
-//! use beadline::render::{render, scene::Scene};
+//! use beadline::synth::{render, scene::Scene};
 //! let mut scene = Scene::demo();
 //! scene.camera.width_px = 400;
 //! scene.camera.height_px = 240;
@@ -21,6 +21,7 @@
 
 pub mod camera;
 pub mod paint;
+pub mod plan;
 pub mod scene;
 pub mod sim;
 
@@ -511,7 +512,7 @@ impl Rendered {
             }
         };
         let quality = self.jpeg_quality;
-        crate::output::write_atomic(path, |wr| {
+        crate::core::output::write_atomic(path, |wr| {
             if format == image::ImageFormat::Jpeg {
                 let enc = image::codecs::jpeg::JpegEncoder::new_with_quality(wr, quality);
                 image.write_with_encoder(enc).map_err(std::io::Error::other)

@@ -56,8 +56,8 @@
 //!
 //! # Examples
 //! ```
-//! use beadline::path::{PathOptions, order_path};
-//! use beadline::spots::Spot;
+//! use beadline::track::{PathOptions, order_path};
+//! use beadline::detect::Spot;
 //! // A ball falling from rest: y = 5 + 2 n^2 pixels, drifting right 30 px per flash.
 //! let spots: Vec<Spot> = [3usize, 0, 4, 1, 2, 5]
 //!     .iter()
@@ -75,7 +75,7 @@
 //! assert_eq!(result.paths[0].points[0].spot_index, 1);
 //! ```
 
-use crate::spots::Spot;
+use crate::detect::Spot;
 use kiddo::{ImmutableKdTree, SquaredEuclidean};
 use serde::{Deserialize, Serialize};
 use std::num::NonZero;

@@ -18,9 +18,9 @@
 //! Peaks are local maxima of the smoothed accumulator within a disc of `nms_fraction` x radius, so
 //! neighbours down to 0.8 radius apart stay separate.
 
-use crate::background::{Background, robust_sigma};
-use crate::load::Photo;
-use crate::threshold::Blob;
+use crate::image::background::{Background, robust_sigma};
+use crate::image::load::Photo;
+use crate::image::threshold::Blob;
 use image::{ImageBuffer, Luma};
 
 /// Settings of the Hough stage.

@@ -1,11 +1,11 @@
 //! Command-line arguments (what the user typed) and their validation into library settings.
 
 use anyhow::{Context, Result, bail};
-use beadline::background::Polarity;
-use beadline::load::LoadOptions;
-use beadline::render::{self, scene::Scene};
+use beadline::detect::{self, SpotOptions, Tone};
+use beadline::image::background::Polarity;
+use beadline::image::load::LoadOptions;
 use beadline::report::SpotsDoc;
-use beadline::spots::{self, SpotOptions, Tone};
+use beadline::synth::{self, scene::Scene};
 use clap::{Args as ClapArgs, Parser, Subcommand, ValueEnum};
 use std::path::{Path, PathBuf};
 use std::process::ExitCode;
@@ -270,7 +270,7 @@ struct DetectArgs {
     /// Smallest radius of a ball on the decimated photo, pixels: with the smallest searched radius
     /// r_min, the photo is averaged over floor(r_min / this) pixels squared for the blobs and the
     /// vote, and the rims are fitted at full resolution (0: full resolution throughout).
-    #[arg(long, default_value_t = spots::COARSE_R_PX)]
+    #[arg(long, default_value_t = detect::COARSE_R_PX)]
     coarse_r: f64,
     /// Systematic centre uncertainty of a lit sphere's edge, pixels x radius (common to all images).
     #[arg(long, default_value_t = 0.5)]
@@ -353,10 +353,10 @@ fn parse_numbers(text: &str, count: usize, name: &str) -> Result<Vec<f64>> {
 }
 
 /// `--start X,Y` as a pixel point.
-fn parse_start(text: Option<&str>) -> Result<Option<beadline::path::PixelPoint>> {
+fn parse_start(text: Option<&str>) -> Result<Option<beadline::track::PixelPoint>> {
     text.map(|t| {
         let v = parse_numbers(t, 2, "--start")?;
-        Ok(beadline::path::PixelPoint {
+        Ok(beadline::track::PixelPoint {
             x_px: v[0],
             y_px: v[1],
         })
@@ -379,9 +379,9 @@ fn formatted<T: serde::Serialize>(
 }
 
 impl MeasureArgs {
-    fn validate(&self, detect: &Detect) -> Result<beadline::measure::MeasureSettings> {
-        use beadline::measure::{MeasureSettings, ScaleSource};
+    fn validate(&self, detect: &Detect) -> Result<beadline::pipeline::MeasureSettings> {
         use beadline::physics::{Quantity, Unknown};
+        use beadline::pipeline::{MeasureSettings, ScaleSource};
         let mut s = MeasureSettings {
             spots: detect.options,
             plate: detect.plate.clone(),
@@ -446,8 +446,8 @@ impl MeasureArgs {
             None => Unknown::Gravity,
         };
         let (build, inner) = match self.ball.as_str() {
-            "solid" => (render::scene::Build::Solid, None),
-            "shell" => (render::scene::Build::Shell, None),
+            "solid" => (synth::scene::Build::Solid, None),
+            "shell" => (synth::scene::Build::Shell, None),
             other => {
                 let Some(d) = other.strip_prefix("thick:") else {
                     bail!("--ball: expected solid, shell or thick:INNER_DIAMETER_M, got '{other}'");
@@ -461,7 +461,7 @@ impl MeasureArgs {
                 if !(inner.is_finite() && inner >= 0.0 && inner < outer) {
                     bail!("--ball: the inner diameter must be 0 <= inner < {outer} m");
                 }
-                (render::scene::Build::Thick, Some(inner / outer))
+                (synth::scene::Build::Thick, Some(inner / outer))
             }
         };
         s.physics.build = build;
@@ -605,7 +605,7 @@ impl DetectArgs {
 /// Write `text` to the output file (atomically) or standard output.
 fn emit(out: &OutArgs, text: &str) -> Result<()> {
     match &out.output {
-        Some(p) => beadline::output::write_text(p, text)?,
+        Some(p) => beadline::core::output::write_text(p, text)?,
         None => {
             use std::io::Write;
             let mut stdout = std::io::stdout().lock();
@@ -617,19 +617,19 @@ fn emit(out: &OutArgs, text: &str) -> Result<()> {
 }
 
 /// Find spots, writing debug images when asked.
-fn detect(photo_path: &Path, detect: &Detect) -> Result<spots::SpotReport> {
+fn detect(photo_path: &Path, detect: &Detect) -> Result<detect::SpotReport> {
     let load = LoadOptions::default();
-    let photo = beadline::load::load(photo_path, &load)?;
+    let photo = beadline::image::load::load(photo_path, &load)?;
     let plate = detect
         .plate
         .as_deref()
-        .map(|p| beadline::load::load(p, &load))
+        .map(|p| beadline::image::load::load(p, &load))
         .transpose()?;
     let mut debug = detect
         .debug_dir
         .as_ref()
-        .map(|_| spots::DebugImages::default());
-    let report = spots::find_spots(&photo, plate.as_ref(), &detect.options, debug.as_mut())?;
+        .map(|_| detect::DebugImages::default());
+    let report = detect::find_spots(&photo, plate.as_ref(), &detect.options, debug.as_mut())?;
     if let (Some(dir), Some(d)) = (&detect.debug_dir, &debug) {
         write_debug(dir, &photo, &report, d)?;
     }
@@ -638,11 +638,11 @@ fn detect(photo_path: &Path, detect: &Detect) -> Result<spots::SpotReport> {
 
 fn write_debug(
     dir: &Path,
-    photo: &beadline::load::Photo,
-    report: &spots::SpotReport,
-    d: &spots::DebugImages,
+    photo: &beadline::image::load::Photo,
+    report: &detect::SpotReport,
+    d: &detect::DebugImages,
 ) -> Result<()> {
-    use beadline::overlay::{Canvas, GREEN, RED};
+    use beadline::draw::overlay::{Canvas, GREEN, RED};
     std::fs::create_dir_all(dir)
         .with_context(|| format!("{}: cannot create folder", dir.display()))?;
     let (w, h) = (photo.width, photo.height);
@@ -678,8 +678,8 @@ fn write_debug(
     Ok(())
 }
 
-fn spots_overlay(photo: &Path, report: &spots::SpotReport, out: &Path) -> Result<()> {
-    use beadline::overlay::{Canvas, GREEN, RED, YELLOW};
+fn spots_overlay(photo: &Path, report: &detect::SpotReport, out: &Path) -> Result<()> {
+    use beadline::draw::overlay::{Canvas, GREEN, RED, YELLOW};
     let mut c = Canvas::open(photo)?;
     for (i, s) in report.spots.iter().enumerate() {
         c.circle(s.x_px, s.y_px, s.r_px, GREEN);
@@ -702,22 +702,22 @@ fn spots_overlay(photo: &Path, report: &spots::SpotReport, out: &Path) -> Result
 /// Write a measurement: the document in the chosen format, and the pictures asked for.
 fn write_measure(
     photo: &Path,
-    m: &beadline::measure::Measured,
+    m: &beadline::pipeline::Measured,
     out: &OutArgs,
     plot: Option<&Path>,
 ) -> Result<()> {
     let text = formatted(out.format, &m.doc, || m.doc.text(), || m.doc.csv())?;
     if let Some(o) = &out.overlay {
-        beadline::overlay::measure_overlay(photo, m, o)?;
+        beadline::draw::overlay::measure_overlay(photo, m, o)?;
     }
     if let Some(p) = plot {
-        beadline::output::write_text(p, &beadline::plot::svg(&m.doc))?;
+        beadline::core::output::write_text(p, &beadline::draw::plot::svg(&m.doc))?;
     }
     emit(out, &text)
 }
 
 /// Exit status 3 when a result lies outside an acceptance band, else 0.
-fn verdict_status(doc: &beadline::measure::MeasureDoc) -> ExitCode {
+fn verdict_status(doc: &beadline::pipeline::MeasureDoc) -> ExitCode {
     use beadline::physics::bands::Outcome;
     if doc
         .measurement
@@ -775,7 +775,7 @@ fn dispatch(args: Args) -> Result<ExitCode> {
             let scene = Scene::load(&scene)?;
             render_to(&scene, &out, truth.as_deref())?;
             if let Some(p) = plate {
-                render::render_plate(&scene).save(&p)?;
+                synth::render_plate(&scene).save(&p)?;
             }
             Ok(ExitCode::SUCCESS)
         }
@@ -807,11 +807,11 @@ fn dispatch(args: Args) -> Result<ExitCode> {
         } => {
             let d = d.validate()?;
             let report = detect(&photo, &d)?;
-            let options = beadline::path::PathOptions {
+            let options = beadline::track::PathOptions {
                 start: parse_start(start.as_deref())?,
                 ..Default::default()
             };
-            let result = beadline::path::order_path(&report.spots, &options);
+            let result = beadline::track::order_path(&report.spots, &options);
             let doc = beadline::report::PathDoc::new(&photo.display().to_string(), &result);
             let text = formatted(out.format, &doc, || doc.text(), || doc.csv())?;
             if let Some(o) = &out.overlay {
@@ -829,7 +829,7 @@ fn dispatch(args: Args) -> Result<ExitCode> {
         } => {
             let d = d.validate()?;
             let settings = measure.validate(&d)?;
-            let m = beadline::measure::measure_photo(&photo, &settings)?;
+            let m = beadline::pipeline::measure_photo(&photo, &settings)?;
             write_measure(&photo, &m, &out, plot.as_deref())?;
             Ok(verdict_status(&m.doc))
         }
@@ -840,10 +840,10 @@ fn dispatch(args: Args) -> Result<ExitCode> {
             output,
         } => {
             let scene = Scene::load(&scene_path)?;
-            let plan = beadline::plan::plan(&scene)
+            let plan = beadline::synth::plan::plan(&scene)
                 .map_err(|e| anyhow::anyhow!("{}: {e}", scene_path.display()))?;
             if let Some(p) = &preview {
-                render::render(&plan.apply(&scene)).save(p)?;
+                synth::render(&plan.apply(&scene)).save(p)?;
             }
             let text = match format {
                 Format::Json => serde_json::to_string_pretty(&plan)? + "\n",
@@ -1016,16 +1016,16 @@ fn rig(args: RigArgs) -> Result<ExitCode> {
         b.finish_and_clear();
     }
     if let Some(p) = &args.summary {
-        beadline::output::write_text(p, &r::summary_csv(&results)?)?;
+        beadline::core::output::write_text(p, &r::summary_csv(&results)?)?;
     }
     Ok(ExitCode::from(r::exit_status(&results)))
 }
 
-fn render_to(scene: &Scene, out: &Path, truth: Option<&Path>) -> Result<render::Rendered> {
-    let photo = render::render(scene);
+fn render_to(scene: &Scene, out: &Path, truth: Option<&Path>) -> Result<synth::Rendered> {
+    let photo = synth::render(scene);
     photo.save(out)?;
     if let Some(t) = truth {
-        beadline::output::write_json(t, &photo.truth)?;
+        beadline::core::output::write_json(t, &photo.truth)?;
     }
     Ok(photo)
 }
@@ -1035,7 +1035,7 @@ fn demo(dir: &Path) -> Result<ExitCode> {
         .with_context(|| format!("{}: cannot create folder", dir.display()))?;
     let scene = Scene::demo();
     let scene_path = dir.join("scene.toml");
-    beadline::output::write_text(&scene_path, render::scene::DEMO_SCENE)?;
+    beadline::core::output::write_text(&scene_path, synth::scene::DEMO_SCENE)?;
     let photo_path = dir.join("photo.png");
     let truth_path = dir.join("truth.json");
     let photo = render_to(&scene, &photo_path, Some(&truth_path))?;
@@ -1052,22 +1052,22 @@ fn demo(dir: &Path) -> Result<ExitCode> {
     println!("  truth    {}", truth_path.display());
     // The main job, as a user would run it:
     //   beadline measure photo.png --rate 25 --ball-diameter 0.04 --accept restitution=0.75..0.80
-    let mut settings = beadline::measure::MeasureSettings {
+    let mut settings = beadline::pipeline::MeasureSettings {
         rate_hz: Some(scene.strobe.rate_hz),
         ball_diameter_m: Some(scene.ball.diameter_m),
-        scale: Some(beadline::measure::ScaleSource::BallDiameter),
+        scale: Some(beadline::pipeline::ScaleSource::BallDiameter),
         ..Default::default()
     };
     settings.physics.bands = vec![beadline::physics::bands::Band::parse(
         "restitution=0.75..0.80",
     )?];
-    let m = beadline::measure::measure_photo(&photo_path, &settings)?;
+    let m = beadline::pipeline::measure_photo(&photo_path, &settings)?;
     let json = dir.join("measure.json");
     let overlay = dir.join("overlay.png");
     let plot = dir.join("plot.svg");
-    beadline::output::write_json(&json, &m.doc)?;
-    beadline::overlay::measure_overlay(&photo_path, &m, &overlay)?;
-    beadline::output::write_text(&plot, &beadline::plot::svg(&m.doc))?;
+    beadline::core::output::write_json(&json, &m.doc)?;
+    beadline::draw::overlay::measure_overlay(&photo_path, &m, &overlay)?;
+    beadline::core::output::write_text(&plot, &beadline::draw::plot::svg(&m.doc))?;
     println!(
         "  measured {}, {}, {}",
         json.display(),

@@ -3,14 +3,14 @@
 //! Goes in: a photo file and [`MeasureSettings`]. Comes out: a [`MeasureDoc`] (the timed path in
 //! pixels and metres, the phases, bounces, launch, incline, calibration quantities with their
 //! 1-sigma and source, and the verdicts of acceptance bands) plus the intermediate results for
-//! pictures. This module only chains the stages: [`crate::spots`] -> [`crate::path`] ->
+//! pictures. This module only chains the stages: [`crate::detect`] -> [`crate::track`] ->
 //! [`crate::calibrate`] -> [`crate::physics`].
 
 use crate::calibrate::{self, Calibration, PlaneFile};
+use crate::detect::{self, SpotOptions, SpotReport};
 use crate::error::{Error, Result};
-use crate::path::{self, PathOptions, PathResult, Stray};
 use crate::physics::{self, MeasureOptions, Measurement, Quantity, TimedPoint, Unknown};
-use crate::spots::{self, SpotOptions, SpotReport};
+use crate::track::{self, PathOptions, PathResult, Stray};
 use serde::Serialize;
 use std::path::{Path, PathBuf};
 
@@ -52,7 +52,7 @@ pub struct MeasureSettings {
     /// Physics options (gravity, ball build, level, floor, drag, bands...).
     pub physics: MeasureOptions,
     /// Decoding limits.
-    pub load: crate::load::LoadOptions,
+    pub load: crate::image::load::LoadOptions,
 }
 
 /// One point of the timed path in the output.
@@ -113,13 +113,13 @@ pub struct Measured {
 
 /// Measure one photo.
 pub fn measure_photo(photo_path: &Path, settings: &MeasureSettings) -> Result<Measured> {
-    let photo = crate::load::load(photo_path, &settings.load)?;
+    let photo = crate::image::load::load(photo_path, &settings.load)?;
     let plate = settings
         .plate
         .as_deref()
-        .map(|p| crate::load::load(p, &settings.load))
+        .map(|p| crate::image::load::load(p, &settings.load))
         .transpose()?;
-    let report = spots::find_spots(&photo, plate.as_ref(), &settings.spots, None)?;
+    let report = detect::find_spots(&photo, plate.as_ref(), &settings.spots, None)?;
     measure_spots(photo_path, report, settings)
 }
 
@@ -136,7 +136,7 @@ pub fn measure_spots(
             report.spots.len()
         )));
     }
-    let paths = path::order_path(&report.spots, &settings.path);
+    let paths = track::order_path(&report.spots, &settings.path);
     let Some(best) = paths.paths.first() else {
         return Err(fail(format!(
             "no path could be ordered from the {} ball images",

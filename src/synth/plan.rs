@@ -5,15 +5,15 @@
 //! says what each choice buys (images per arc, closest images, motion blur, what is left of the
 //! path after the last image) or which wish to drop when no setting meets them all.
 //!
-//! Method: the motion is simulated from physics ([`crate::render::sim`]); every power level and
+//! Method: the motion is simulated from physics ([`crate::synth::sim`]); every power level and
 //! every flash rate on a 0.25 Hz grid up to the level's limit is tried; the first flash waits until
 //! consecutive images are at least 0.8 radius apart (closer piles cannot be separated, see the
 //! spot finder); among the settings that meet every wish the one with the most images on its
 //! poorest arc wins (ties: the lower rate, which needs fewer flashes).
 
-use crate::render::camera::Projection;
-use crate::render::scene::{PowerLevel, Scene, Wishes};
-use crate::render::sim::Motion;
+use crate::synth::camera::Projection;
+use crate::synth::scene::{PowerLevel, Scene, Wishes};
+use crate::synth::sim::Motion;
 use serde::{Deserialize, Serialize};
 
 /// Rates from about 3 to 60 Hz are the band most likely to trigger photosensitive seizures

@@ -1,0 +1,4 @@
+//! The shared core under every stage: atomic output, geometry, robust statistics, tone curves,
+//! physical constants. It depends on no stage.
+
+pub mod output;
