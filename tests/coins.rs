@@ -29,7 +29,7 @@ fn all_24_coins_are_found_and_nothing_else() {
         faint_fraction: 0.2,
         ..SpotOptions::default()
     };
-    options.background.polarity = Some(beadline::image::background::Polarity::Bright);
+    options.background.polarity = Some(beadline::core::light::Polarity::Bright);
     let report = find_spots(&photo, None, &options, None).unwrap();
     let mut used = vec![false; report.spots.len()];
     for c in coins {

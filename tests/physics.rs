@@ -1,11 +1,12 @@
 //! Measurement core checks: NIST reference data, textbook homographies and rendered ground truth.
 
 use beadline::calibrate::{Calibration, Distortion, homography_dlt};
+use beadline::core::ball::Build;
 use beadline::physics::bands::{Band, Outcome};
 use beadline::physics::fit::{CovarianceScaling, FitOptions, polynomial_fit};
 use beadline::physics::{MeasureOptions, Measurement, Quantity, TimedPoint, Unknown, measure};
 use beadline::synth::camera::Projection;
-use beadline::synth::scene::{Build, Scene};
+use beadline::synth::scene::Scene;
 use beadline::synth::sim::{Motion, rolling_end_speed_mps};
 use nalgebra::Matrix3;
 use rand::SeedableRng;

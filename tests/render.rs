@@ -1,7 +1,9 @@
 //! Renderer checks against physics formulas and exact geometry.
 
-use beadline::synth::paint::disc_coverage;
-use beadline::synth::scene::{Build, STANDARD_GRAVITY_MPS2, Scene, inertia_factor};
+use beadline::core::ball::{Build, inertia_factor};
+use beadline::core::geometry::disc_coverage;
+use beadline::core::units::STANDARD_GRAVITY_MPS2;
+use beadline::synth::scene::Scene;
 use beadline::synth::sim::{Motion, Phase, rolling_end_speed_mps};
 use beadline::synth::{self};
 use std::path::Path;
@@ -314,11 +316,11 @@ fn the_clean_plate_is_the_photo_without_the_ball() {
     // its own flash only, so the plate is brighter by about 1/N of the backdrop level at each
     // image centre and equal wherever no image falls.
     let mut scene = Scene::demo();
-    scene.photo.polarity = synth::scene::Polarity::Dark;
+    scene.photo.polarity = beadline::core::light::Polarity::Dark;
     scene.photo.noise = false;
     scene.photo.ambient_exposure = 0.0;
     scene.photo.vignetting = 0.0;
-    scene.photo.tone = synth::scene::Tone::Linear;
+    scene.photo.tone = beadline::core::light::Tone::Linear;
     let photo = synth::render(&scene);
     let plate = synth::render_plate(&scene);
     assert_eq!(photo.truth, plate.truth);

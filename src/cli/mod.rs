@@ -1,8 +1,10 @@
 //! Command-line arguments (what the user typed) and their validation into library settings.
 
 use anyhow::{Context, Result, bail};
-use beadline::detect::{self, SpotOptions, Tone};
-use beadline::image::background::Polarity;
+use beadline::core::light::Polarity;
+use beadline::core::light::Tone;
+use beadline::core::units::STANDARD_GRAVITY_MPS2;
+use beadline::detect::{self, SpotOptions};
 use beadline::image::load::LoadOptions;
 use beadline::report::SpotsDoc;
 use beadline::synth::{self, scene::Scene};
@@ -317,7 +319,7 @@ struct MeasureArgs {
     #[arg(long, value_name = "FILE")]
     plane: Option<PathBuf>,
     /// Gravity, m/s^2, when it is not the quantity estimated.
-    #[arg(long, default_value_t = 9.80665)]
+    #[arg(long, default_value_t = STANDARD_GRAVITY_MPS2)]
     gravity: f64,
     /// The quantity estimated from the flight arcs (default: gravity when rate and scale are
     /// given; otherwise the missing one).
@@ -431,7 +433,7 @@ impl MeasureArgs {
         s.physics.gravity = Quantity::new(
             g,
             0.0,
-            if g == 9.80665 {
+            if g == STANDARD_GRAVITY_MPS2 {
                 "standard gravity (ISO 80000-3)"
             } else {
                 "given"
@@ -446,8 +448,8 @@ impl MeasureArgs {
             None => Unknown::Gravity,
         };
         let (build, inner) = match self.ball.as_str() {
-            "solid" => (synth::scene::Build::Solid, None),
-            "shell" => (synth::scene::Build::Shell, None),
+            "solid" => (beadline::core::ball::Build::Solid, None),
+            "shell" => (beadline::core::ball::Build::Shell, None),
             other => {
                 let Some(d) = other.strip_prefix("thick:") else {
                     bail!("--ball: expected solid, shell or thick:INNER_DIAMETER_M, got '{other}'");
@@ -461,7 +463,7 @@ impl MeasureArgs {
                 if !(inner.is_finite() && inner >= 0.0 && inner < outer) {
                     bail!("--ball: the inner diameter must be 0 <= inner < {outer} m");
                 }
-                (synth::scene::Build::Thick, Some(inner / outer))
+                (beadline::core::ball::Build::Thick, Some(inner / outer))
             }
         };
         s.physics.build = build;

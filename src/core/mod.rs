@@ -1,4 +1,9 @@
 //! The shared core under every stage: atomic output, geometry, robust statistics, tone curves,
 //! physical constants. It depends on no stage.
 
+pub mod ball;
+pub mod geometry;
+pub mod light;
 pub mod output;
+pub mod stats;
+pub mod units;

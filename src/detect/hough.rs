@@ -18,7 +18,8 @@
 //! Peaks are local maxima of the smoothed accumulator within a disc of `nms_fraction` x radius, so
 //! neighbours down to 0.8 radius apart stay separate.
 
-use crate::image::background::{Background, robust_sigma};
+use crate::core::stats::robust_sigma;
+use crate::image::background::Background;
 use crate::image::load::Photo;
 use crate::image::threshold::Blob;
 use image::{ImageBuffer, Luma};

@@ -32,8 +32,10 @@ pub struct Spot {
     pub score: f64,
 }
 
+use crate::core::light::{Polarity, Tone};
+use crate::core::stats::{MAD_TO_SIGMA, upper_median};
 use crate::error::{Error, Result};
-use crate::image::background::{self, Background, BackgroundOptions, Polarity};
+use crate::image::background::{self, Background, BackgroundOptions};
 use crate::image::load::Photo;
 use crate::image::threshold::{self, Blobs, ThresholdOptions};
 use hough::HoughOptions;
@@ -75,9 +77,6 @@ pub struct Rejected {
     /// Why it was dropped.
     pub reason: Reason,
 }
-
-/// How a photo's stored values encode light (the renderer's tone curve, read back).
-pub use crate::synth::scene::Tone;
 
 /// Every knob of spot finding.
 #[derive(Debug, Clone, Copy, PartialEq)]
@@ -607,13 +606,13 @@ pub fn find_spots(
                 && (f.circle.r_px - r).abs() <= options.radius_tolerance * r
         })
         .collect();
-    let median_strength = median_of(plausible.iter().map(|f| f.edge_strength).collect());
+    let median_strength = upper_median(plausible.iter().map(|f| f.edge_strength).collect());
     // Faint images (a dark ball against its clean plate, JPEG noise) have noisier rims than
     // the fixed limit allows; a shape that is not round stands out from the photo's own images.
     let well_covered = plausible.iter().filter(|f| f.coverage >= WELL_COVERED);
     let rms_limit = options
         .max_rms_px
-        .max(RMS_OVER_MEDIAN * median_of(well_covered.map(|f| f.rms_px).collect()));
+        .max(RMS_OVER_MEDIAN * upper_median(well_covered.map(|f| f.rms_px).collect()));
     let kept_before: Vec<CircleFit> = unique.clone();
     for f in unique {
         let c = f.circle;
@@ -799,8 +798,8 @@ fn drop_other_lights(report: &mut SpotReport, shaded: Vec<Option<Shaded>>) -> Ve
     if lights.len() < LIGHT_MIN_FITS {
         return shaded;
     }
-    let u = median_of(lights.iter().map(|f| f.light_uv[0]).collect());
-    let v = median_of(lights.iter().map(|f| f.light_uv[1]).collect());
+    let u = upper_median(lights.iter().map(|f| f.light_uv[0]).collect());
+    let v = upper_median(lights.iter().map(|f| f.light_uv[1]).collect());
     let unit = |u: f64, v: f64| {
         let n = (u * u + v * v + 1.0).sqrt();
         [u / n, v / n, 1.0 / n]
@@ -813,7 +812,7 @@ fn drop_other_lights(report: &mut SpotReport, shaded: Vec<Option<Shaded>>) -> Ve
     };
     // Only a light that the photo's images agree on tells one apart (a faint dark ball against
     // its plate shows too little shading for that).
-    if median_of(lights.iter().map(|f| angle_deg(f)).collect()) > LIGHT_AGREE_DEG {
+    if upper_median(lights.iter().map(|f| angle_deg(f)).collect()) > LIGHT_AGREE_DEG {
         return shaded;
     }
     let spots = std::mem::take(&mut report.spots);
@@ -869,9 +868,9 @@ fn correct_edge_fits(report: &mut SpotReport, shaded: &[Option<Shaded>]) {
     let measured: Vec<[f64; 3]> = fits.iter().filter(|f| !f.flat).map(|f| f.shift).collect();
     let (bias, scatter_px) = if measured.len() >= EDGE_BIAS_MIN_FITS {
         let bias: [f64; 3] =
-            std::array::from_fn(|k| median_of(measured.iter().map(|m| m[k]).collect()));
+            std::array::from_fn(|k| upper_median(measured.iter().map(|m| m[k]).collect()));
         let mad = |k: usize| {
-            1.4826 * median_of(measured.iter().map(|m| (m[k] - bias[k]).abs()).collect())
+            MAD_TO_SIGMA * upper_median(measured.iter().map(|m| (m[k] - bias[k]).abs()).collect())
         };
         (bias, mad(0).max(mad(1)))
     } else {
@@ -946,12 +945,6 @@ fn shade_spots(
         }
     }
     shaded
-}
-
-/// The median (upper of the middle two), 0 for no values.
-fn median_of(mut v: Vec<f64>) -> f64 {
-    v.sort_by(f64::total_cmp);
-    v.get(v.len() / 2).copied().unwrap_or(0.0)
 }
 
 /// Load a photo (and an optional plate) and find its spots.

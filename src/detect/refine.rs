@@ -21,6 +21,8 @@
 //! projection, Golub & Pereyra, SIAM J. Numer. Anal. 10, 1973), outliers left out. Where the
 //! Lambert term is not significant (Schwarz's criterion), a uniform disc's silhouette is kept.
 
+use crate::core::geometry::{disc_coverage, sphere_normal};
+use crate::core::stats::MAD_TO_SIGMA;
 use crate::detect::hough::{Candidate, EdgePoint, Region};
 use nalgebra::{Matrix3, Vector3};
 use std::f64::consts::FRAC_1_SQRT_2;
@@ -348,7 +350,7 @@ impl RadiusModel {
                 .map(|c| (c.r_px - model.at(c.x_px, c.y_px)).abs())
                 .collect();
             dev.sort_by(f64::total_cmp);
-            let cut = (3.0 * 1.4826 * dev[dev.len() / 2]).max(0.02 * median.a_px);
+            let cut = (3.0 * MAD_TO_SIGMA * dev[dev.len() / 2]).max(0.02 * median.a_px);
             use_all = circles
                 .iter()
                 .filter(|c| (c.r_px - model.at(c.x_px, c.y_px)).abs() <= cut)
@@ -581,7 +583,7 @@ fn fit_owned(
         .collect();
     let mut sorted = res.clone();
     sorted.sort_by(f64::total_cmp);
-    let cut = (3.0 * 1.4826 * sorted[sorted.len() / 2]).max(0.05);
+    let cut = (3.0 * MAD_TO_SIGMA * sorted[sorted.len() / 2]).max(0.05);
     let kept: Vec<[f64; 2]> = pts
         .iter()
         .zip(&res)
@@ -718,7 +720,7 @@ fn shaded_basis(q: &WindowPixel, p: &[f64; 5], shading: Shading) -> [f64; SHADED
     } else if d2 >= outer * outer {
         return [0.0, 0.0, 0.0, 1.0];
     } else {
-        crate::synth::paint::disc_coverage(q.x_px, q.y_px, p[0], p[1], p[2])
+        disc_coverage(q.x_px, q.y_px, p[0], p[1], p[2])
     };
     if cov <= 0.0 {
         return [0.0, 0.0, 0.0, 1.0];
@@ -726,7 +728,7 @@ fn shaded_basis(q: &WindowPixel, p: &[f64; 5], shading: Shading) -> [f64; SHADED
     if shading == Shading::Flat {
         return [cov, 0.0, cov * q.backdrop, 1.0];
     }
-    let [nx, ny, nz] = crate::synth::paint::sphere_normal(dx, dy, p[2], cov);
+    let [nx, ny, nz] = sphere_normal(dx, dy, p[2], cov);
     let ln = (p[3] * p[3] + p[4] * p[4] + 1.0).sqrt();
     let lambert = ((nx * p[3] + ny * p[4] + nz) / ln).max(0.0);
     [cov, cov * lambert, cov * q.backdrop, 1.0]
@@ -973,8 +975,8 @@ fn light_start(window: &[WindowPixel], c: Circle) -> [f64; SHADED_NP] {
     let mut ata = SMatrix::<f64, 6, 6>::zeros();
     let mut atb = SVector::<f64, 6>::zeros();
     for q in window {
-        let cov = crate::synth::paint::disc_coverage(q.x_px, q.y_px, cx, cy, r);
-        let [nx, ny, nz] = crate::synth::paint::sphere_normal(q.x_px - cx, q.y_px - cy, r, cov);
+        let cov = disc_coverage(q.x_px, q.y_px, cx, cy, r);
+        let [nx, ny, nz] = sphere_normal(q.x_px - cx, q.y_px - cy, r, cov);
         let v = SVector::<f64, 6>::from_column_slice(&[
             cov,
             cov * nx,
@@ -1042,7 +1044,7 @@ pub fn shaded_fit(window: &[WindowPixel], start: Circle) -> Option<ShadedFit> {
         // Noise-free pixels (a rendered photo without noise) leave only the model's own small
         // misfit, which is not an outlier: the cut is at least 1 % of the image's contrast.
         let contrast = pixels.iter().fold(0.0f64, |m, q| m.max(q.value.abs()));
-        let cut = (SHADED_OUTLIER_SIGMAS * 1.4826 * mad).max(0.01 * contrast);
+        let cut = (SHADED_OUTLIER_SIGMAS * MAD_TO_SIGMA * mad).max(0.01 * contrast);
         if res.iter().all(|r| r.abs() <= cut) || round == 2 {
             out = Some((f, jtj, pixels.len(), res));
             break;

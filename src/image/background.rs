@@ -11,29 +11,10 @@
 //! from their neighbours. The noise level is the robust sigma (1.4826 x median absolute deviation)
 //! of the sampled residuals.
 
+use crate::core::light::Polarity;
+use crate::core::stats::{median_f32, robust_sigma};
 use crate::image::load::Photo;
 use rayon::prelude::*;
-use serde::{Deserialize, Serialize};
-
-/// Which way the ball differs from the background.
-#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize)]
-#[serde(rename_all = "lowercase")]
-pub enum Polarity {
-    /// Bright ball on a dark backdrop.
-    Bright,
-    /// Dark ball on a bright backdrop.
-    Dark,
-}
-
-impl Polarity {
-    /// +1 for bright, -1 for dark: multiplies (photo - background) so the ball is positive.
-    pub fn sign(self) -> f32 {
-        match self {
-            Polarity::Bright => 1.0,
-            Polarity::Dark => -1.0,
-        }
-    }
-}
 
 /// Settings of the background stage.
 #[derive(Debug, Clone, Copy, PartialEq)]
@@ -261,35 +242,6 @@ fn grid_row(values: &[f32], cols: usize, rows: usize, cell: f32, y: f32) -> Vec<
         .collect()
 }
 
-fn median(v: &mut [f32]) -> f32 {
-    if v.is_empty() {
-        return f32::NAN;
-    }
-    let mid = v.len() / 2;
-    let (_, m, _) = v.select_nth_unstable_by(mid, f32::total_cmp);
-    *m
-}
-
-/// Robust sigma: 1.4826 x median absolute deviation about the median. Quantised data (two JPEGs
-/// of one scene, where most differences are exactly 0) can have a zero median deviation while
-/// the noise is not zero: then the mean absolute deviation of the central 98 % x sqrt(pi / 2)
-/// (its Gaussian scale factor) is used instead.
-pub fn robust_sigma(values: &mut [f32]) -> f32 {
-    let m = median(values);
-    for v in values.iter_mut() {
-        *v = (*v - m).abs();
-    }
-    let mad = median(values);
-    if mad > 0.0 || values.is_empty() {
-        return 1.4826 * mad;
-    }
-    let k = (values.len() - 1) * 98 / 100;
-    values.select_nth_unstable_by(k, f32::total_cmp);
-    let central = &values[..=k];
-    let mean = central.iter().map(|&v| v as f64).sum::<f64>() / central.len() as f64;
-    (std::f64::consts::FRAC_PI_2.sqrt() * mean) as f32
-}
-
 /// Automatic cell side for an image: about 48 cells across the short side, 16..128 px.
 fn auto_cell(width: usize, height: usize) -> usize {
     (width.min(height) / 48).clamp(16, 128)
@@ -333,7 +285,7 @@ pub fn estimate(photo: &Photo, options: &BackgroundOptions) -> Background {
         .par_iter()
         .map(|s| {
             let mut v: Vec<f32> = s.iter().map(|p| p.2).collect();
-            median(&mut v)
+            median_f32(&mut v)
         })
         .collect();
     let first = window_quantile(&cell_medians, cols, rows, options.window_cells, 0.5);
@@ -381,7 +333,7 @@ pub fn estimate(photo: &Photo, options: &BackgroundOptions) -> Background {
             if keep.len() * 4 < s.len().max(1) {
                 None
             } else {
-                Some(median(&mut keep))
+                Some(median_f32(&mut keep))
             }
         })
         .collect();
@@ -429,7 +381,7 @@ pub fn from_plate(photo: &Photo, plate: &Photo, options: &BackgroundOptions) -> 
 /// Polarity from the tails of the residuals: the ball makes one tail long.
 fn detect_polarity(resid: &[f32]) -> Polarity {
     let mut v = resid.to_vec();
-    let med = median(&mut v);
+    let med = median_f32(&mut v);
     let sigma = robust_sigma(&mut v).max(1e-6);
     let (mut up, mut down) = (0f64, 0f64);
     for &r in resid {

@@ -5,7 +5,8 @@
 //! `k_sigma` robust sigmas of the block means, or a fixed level. Working on b x b block means
 //! averages the noise down by about b before the decision and keeps a 24-megapixel photo cheap.
 
-use crate::image::background::{Background, robust_sigma};
+use crate::core::stats::robust_sigma;
+use crate::image::background::Background;
 use crate::image::load::Photo;
 use image::{GrayImage, Luma};
 use imageproc::region_labelling::{Connectivity, connected_components};

@@ -23,8 +23,9 @@ pub mod flight;
 pub mod incline;
 pub mod phases;
 
+use crate::core::ball::{Build, inertia_factor};
+use crate::core::units::STANDARD_GRAVITY_MPS2;
 use crate::error::{Error, Result};
-use crate::synth::scene::{Build, STANDARD_GRAVITY_MPS2, inertia_factor};
 use bands::{Band, Verdict};
 use bounce::Bounce;
 use fit::{CovarianceScaling, FitOptions, polynomial_fit};

@@ -3,8 +3,8 @@
 //! Goes in: stage results. Comes out: serde types (the JSON interface for rig pipelines, versioned
 //! by [`SCHEMA_VERSION`]), text for a person and CSV rows.
 
+use crate::core::light::Polarity;
 use crate::detect::{Rejected, Spot, SpotOptions, SpotReport};
-use crate::image::background::Polarity;
 use crate::track::{PathPoint, PathResult, Stray};
 use serde::{Deserialize, Serialize};
 
@@ -57,7 +57,7 @@ pub struct SpotSettings {
     /// Largest common radius at which isolated images get the shaded-sphere fit, pixels.
     pub shaded_max_r_px: f64,
     /// How the photo's values were taken to encode light.
-    pub tone: crate::detect::Tone,
+    pub tone: crate::core::light::Tone,
     /// Smallest radius kept on the decimated photo, pixels (0: full resolution throughout).
     #[serde(default)]
     pub coarse_r_px: f64,

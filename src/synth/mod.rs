@@ -25,10 +25,11 @@ pub mod plan;
 pub mod scene;
 pub mod sim;
 
+use crate::core::light::{Polarity, Tone};
 use crate::error::{Error, Result};
 use camera::Projection;
 use paint::{Clip, Finish, Stamp};
-use scene::{Polarity, Scene, Tone};
+use scene::Scene;
 use serde::{Deserialize, Serialize};
 use sim::{BounceEvent, LaunchEvent, Motion, Phase};
 use std::path::Path;

@@ -5,12 +5,12 @@
 //! Goes in: a TOML text. Comes out: a validated [`Scene`]. Unknown keys and absurd values are
 //! refused with the key named.
 
+use crate::core::ball::{Build, inertia_factor};
+use crate::core::light::{Polarity, Tone};
+use crate::core::units::STANDARD_GRAVITY_MPS2;
 use crate::error::{Error, Result};
 use serde::{Deserialize, Serialize};
 use std::path::Path;
-
-/// Standard acceleration of gravity, m/s^2 (3rd CGPM, 1901; ISO 80000-3).
-pub const STANDARD_GRAVITY_MPS2: f64 = 9.80665;
 
 /// A complete scene.
 #[derive(Debug, Clone, Serialize, Deserialize)]
@@ -104,19 +104,6 @@ fn default_blur() -> f64 {
     0.5
 }
 
-/// Build of the ball, which sets its moment-of-inertia factor k = I / (m r^2).
-#[derive(Debug, Clone, Copy, PartialEq, Serialize, Deserialize, Default)]
-#[serde(rename_all = "lowercase")]
-pub enum Build {
-    /// Solid uniform sphere, k = 2/5.
-    #[default]
-    Solid,
-    /// Thin spherical shell, k = 2/3.
-    Shell,
-    /// Thick shell with an inner diameter, k = 0.4 (1 - q^5) / (1 - q^3), q = inner / outer.
-    Thick,
-}
-
 /// The ball.
 #[derive(Debug, Clone, Serialize, Deserialize)]
 #[serde(deny_unknown_fields)]
@@ -143,26 +130,6 @@ impl Ball {
             self.build,
             self.inner_diameter_m.map(|d| d / self.diameter_m),
         )
-    }
-}
-
-/// Moment-of-inertia factor k = I / (m r^2) of a ball build; `inner_ratio` = inner / outer diameter
-/// for a thick shell (standard rigid-body formulas: solid sphere 2/5, thin shell 2/3, thick shell
-/// 2/5 (1 - q^5) / (1 - q^3)).
-pub fn inertia_factor(build: Build, inner_ratio: Option<f64>) -> f64 {
-    match build {
-        Build::Solid => 0.4,
-        Build::Shell => 2.0 / 3.0,
-        Build::Thick => {
-            let q = inner_ratio.unwrap_or(0.0);
-            if q < 1e-9 {
-                0.4
-            } else if (1.0 - q) < 1e-6 {
-                2.0 / 3.0
-            } else {
-                0.4 * (1.0 - q.powi(5)) / (1.0 - q.powi(3))
-            }
-        }
     }
 }
 
@@ -351,41 +318,6 @@ pub struct Camera {
     /// Radial distortion coefficient k2.
     #[serde(default)]
     pub k2: f64,
-}
-
-/// Bright ball on a dark backdrop, or dark ball on a bright one.
-#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize, Default)]
-#[serde(rename_all = "lowercase")]
-pub enum Polarity {
-    /// Bright ball, dark backdrop.
-    #[default]
-    Bright,
-    /// Dark ball, bright backdrop.
-    Dark,
-}
-
-/// Tone curve from linear sensor values to stored values.
-#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize, Default)]
-#[serde(rename_all = "lowercase")]
-pub enum Tone {
-    /// The sRGB transfer curve, as a camera JPEG.
-    #[default]
-    Srgb,
-    /// Linear, as a raw sensor read-out.
-    Linear,
-}
-
-impl Tone {
-    /// Linear light of a stored value 0..1 (the sRGB curve inverted, IEC 61966-2-1).
-    #[inline]
-    pub fn to_linear(self, v: f32) -> f64 {
-        let v = v as f64;
-        match self {
-            Tone::Linear => v,
-            Tone::Srgb if v <= 0.04045 => v / 12.92,
-            Tone::Srgb => ((v + 0.055) / 1.055).powf(2.4),
-        }
-    }
 }
 
 /// The look of the photograph.

@@ -75,6 +75,7 @@
 //! assert_eq!(result.paths[0].points[0].spot_index, 1);
 //! ```
 
+use crate::core::stats::finite_median;
 use crate::detect::Spot;
 use kiddo::{ImmutableKdTree, SquaredEuclidean};
 use serde::{Deserialize, Serialize};
@@ -326,7 +327,7 @@ pub fn order_path(spots: &[Spot], options: &PathOptions) -> PathResult {
         }
     }
     let tree = SpotTree::new(&items);
-    let sigma_px = median(items.iter().map(|s| s.sigma_px).collect()).unwrap_or(0.0);
+    let sigma_px = finite_median(items.iter().map(|s| s.sigma_px).collect()).unwrap_or(0.0);
     let mut finder = Finder {
         items: &items,
         tree: &tree,
@@ -362,7 +363,7 @@ pub fn order_path(spots: &[Spot], options: &PathOptions) -> PathResult {
     let r_stray_px = chains
         .first()
         .map(|c| c.r_ref_px)
-        .or_else(|| median(items.iter().map(|s| s.r_px).collect()))
+        .or_else(|| finite_median(items.iter().map(|s| s.r_px).collect()))
         .unwrap_or(1.0);
     for (item, s) in items.iter().enumerate() {
         if finder.taken[item] {
@@ -1183,12 +1184,6 @@ fn end_speed<'a>(nodes: impl Iterator<Item = &'a ChainNode>, items: &[Spot]) -> 
     } else {
         speeds.iter().sum::<f64>() / speeds.len() as f64
     }
-}
-
-fn median(mut values: Vec<f64>) -> Option<f64> {
-    values.retain(|v| v.is_finite());
-    values.sort_by(f64::total_cmp);
-    values.get(values.len() / 2).copied()
 }
 
 fn add(a: [f64; 2], b: [f64; 2]) -> [f64; 2] {
