@@ -84,5 +84,17 @@ impl Error {
     }
 }
 
+/// `Ok` when `v` is finite and above 0, else the setting `name` refused.
+pub(crate) fn positive(v: f64, name: &str) -> Result<()> {
+    if v.is_finite() && v > 0.0 {
+        Ok(())
+    } else {
+        Err(Error::setting(
+            name,
+            format!("must be a positive number, got {v}"),
+        ))
+    }
+}
+
 /// Result type of the library.
 pub type Result<T> = std::result::Result<T, Error>;

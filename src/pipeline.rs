@@ -8,7 +8,7 @@
 
 use crate::calibrate::{self, Calibration, PlaneFile};
 use crate::detect::{self, SpotOptions, SpotReport};
-use crate::error::{Error, Result};
+use crate::error::{Error, Result, positive};
 use crate::physics::{self, MeasureOptions, Measurement, Quantity, TimedPoint, Unknown};
 use crate::track::{self, PathOptions, PathResult, Stray};
 use serde::Serialize;
@@ -49,10 +49,82 @@ pub struct MeasureSettings {
     pub ball_diameter_m: Option<f64>,
     /// Flash rate, hertz (None: the flash interval is estimated from the flight arcs).
     pub rate_hz: Option<f64>,
+    /// The quantity to estimate from the flight arcs (None: gravity when the rate and a scale
+    /// are given, otherwise the one missing); see [`MeasureSettings::unknown`].
+    pub estimate: Option<Unknown>,
     /// Physics options (gravity, ball build, level, floor, drag, bands...).
     pub physics: MeasureOptions,
     /// Decoding limits.
     pub load: crate::image::load::LoadOptions,
+}
+
+/// Why the ball-diameter scale cannot be used.
+const NEEDED_FOR_BALL_SCALE: &str = "needed to use the ball as the ruler";
+
+impl MeasureSettings {
+    /// The one place that decides which of scale, flash interval and gravity the flight arcs
+    /// estimate: the one not given (a missing flash rate makes it the interval, a missing scale
+    /// the scale), else the one asked for, else gravity. Two of the three must be known, and a
+    /// quantity asked for must be the one missing when one is.
+    pub fn unknown(&self) -> Result<Unknown> {
+        let refuse = |asked: Unknown, missing: &str, unknown: &str| {
+            Error::setting(
+                "estimate",
+                format!(
+                    "{} cannot be estimated without {missing}: then the {unknown} is the quantity \
+                     the flight arcs estimate",
+                    asked.name()
+                ),
+            )
+        };
+        match (self.rate_hz.is_some(), self.scale.is_some(), self.estimate) {
+            (false, false, _) => Err(Error::setting(
+                "rate_hz",
+                "give the flash rate or a scale: two of scale, flash interval and gravity \
+                 must be known",
+            )),
+            (false, true, None | Some(Unknown::Interval)) => Ok(Unknown::Interval),
+            (false, true, Some(e)) => Err(refuse(e, "the flash rate", "flash interval")),
+            (true, false, None | Some(Unknown::Scale)) => Ok(Unknown::Scale),
+            (true, false, Some(e)) => Err(refuse(e, "a scale", "scale")),
+            (true, true, asked) => Ok(asked.unwrap_or(Unknown::Gravity)),
+        }
+    }
+
+    /// Refuse absurd values and settings that do not go together, naming the setting by its
+    /// snake_case key (never a command-line flag).
+    pub fn validate(&self) -> Result<()> {
+        self.spots.validate()?;
+        if let Some(r) = self.rate_hz
+            && !(r.is_finite() && r > 0.0 && r <= 1e5)
+        {
+            return Err(Error::setting(
+                "rate_hz",
+                format!("must be between 0 and 100000 Hz, got {r}"),
+            ));
+        }
+        if let Some(d) = self.ball_diameter_m {
+            positive(d, "ball_diameter_m")?;
+        }
+        match &self.scale {
+            Some(ScaleSource::PxPerM(s)) => positive(*s, "scale_px_per_m")?,
+            Some(ScaleSource::Ruler { distance_m, .. }) => positive(*distance_m, "ruler")?,
+            Some(ScaleSource::BallDiameter) if self.ball_diameter_m.is_none() => {
+                return Err(Error::setting("ball_diameter_m", NEEDED_FOR_BALL_SCALE));
+            }
+            _ => {}
+        }
+        positive(self.physics.gravity.value, "gravity_mps2")?;
+        if let Some(q) = self.physics.inner_ratio
+            && !(q.is_finite() && (0.0..1.0).contains(&q))
+        {
+            return Err(Error::setting(
+                "ball",
+                "the inner diameter must be 0 <= inner < the ball's diameter",
+            ));
+        }
+        self.unknown().map(|_| ())
+    }
 }
 
 /// One point of the timed path in the output.
@@ -113,6 +185,7 @@ pub struct Measured {
 
 /// Measure one photo.
 pub fn measure_photo(photo_path: &Path, settings: &MeasureSettings) -> Result<Measured> {
+    settings.validate()?;
     let photo = crate::image::load::load(photo_path, &settings.load)?;
     let plate = settings
         .plate
@@ -120,11 +193,21 @@ pub fn measure_photo(photo_path: &Path, settings: &MeasureSettings) -> Result<Me
         .map(|p| crate::image::load::load(p, &settings.load))
         .transpose()?;
     let report = detect::find_spots(&photo, plate.as_ref(), &settings.spots, None)?;
-    measure_spots(photo_path, report, settings)
+    measure_validated(photo_path, report, settings)
 }
 
 /// Measure from spots already found.
 pub fn measure_spots(
+    photo_path: &Path,
+    report: SpotReport,
+    settings: &MeasureSettings,
+) -> Result<Measured> {
+    settings.validate()?;
+    measure_validated(photo_path, report, settings)
+}
+
+/// [`measure_spots`] with settings already validated.
+fn measure_validated(
     photo_path: &Path,
     report: SpotReport,
     settings: &MeasureSettings,
@@ -149,6 +232,7 @@ pub fn measure_spots(
     let (w, h) = (report.width_px as u32, report.height_px as u32);
     let mut physics_options = settings.physics.clone();
     physics_options.source = photo_path.to_path_buf();
+    physics_options.unknown = settings.unknown()?;
     // Scale.
     let nominal = |px_per_m: f64| Calibration::uniform(px_per_m, 0.0, h as f64 - 1.0, 0.0);
     let (calibration, scale) = match &settings.scale {
@@ -165,9 +249,9 @@ pub fn measure_spots(
             )
         }
         Some(ScaleSource::BallDiameter) => {
-            let d = settings.ball_diameter_m.ok_or_else(|| {
-                Error::setting("--ball-diameter", "needed to use the ball as the ruler")
-            })?;
+            let d = settings
+                .ball_diameter_m
+                .ok_or_else(|| Error::setting("ball_diameter_m", NEEDED_FOR_BALL_SCALE))?;
             let spread = radii[radii.len() * 3 / 4] - radii[radii.len() / 4];
             let sigma = (spread / 1.349) / (radii.len() as f64).sqrt();
             let s = calibrate::ball_scale(r_px, sigma, d)?;
@@ -195,9 +279,6 @@ pub fn measure_spots(
             )
         }
         None => {
-            if physics_options.unknown != Unknown::Scale {
-                physics_options.unknown = Unknown::Scale;
-            }
             // A nominal scale the flight arcs correct.
             let s = settings
                 .ball_diameter_m
@@ -208,17 +289,7 @@ pub fn measure_spots(
     // Time.
     let interval = match settings.rate_hz {
         Some(rate) => Quantity::new(1.0 / rate, 0.0, "given flash rate"),
-        None => {
-            if settings.scale.is_none() {
-                return Err(Error::setting(
-                    "--rate",
-                    "give the flash rate or a scale: two of scale, flash interval and gravity \
-                     must be known",
-                ));
-            }
-            physics_options.unknown = Unknown::Interval;
-            Quantity::new(0.04, f64::NAN, "nominal")
-        }
+        None => Quantity::new(0.04, f64::NAN, "nominal"),
     };
     let dt = interval.value;
     physics_options.interval = Some(interval);

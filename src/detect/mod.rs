@@ -14,6 +14,7 @@
 
 pub mod hough;
 pub mod refine;
+mod validate;
 
 use serde::{Deserialize, Serialize};
 

@@ -93,6 +93,17 @@ pub enum Unknown {
     Scale,
 }
 
+impl Unknown {
+    /// The quantity's name, as in the documents.
+    pub fn name(self) -> &'static str {
+        match self {
+            Unknown::Gravity => "gravity",
+            Unknown::Interval => "interval",
+            Unknown::Scale => "scale",
+        }
+    }
+}
+
 /// Options of [`measure`].
 #[derive(Debug, Clone)]
 pub struct MeasureOptions {

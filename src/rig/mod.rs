@@ -32,153 +32,72 @@ pub const JOURNAL_NAME: &str = ".beadline-journal";
 // Profile
 // ---------------------------------------------------------------------------------------------
 
-/// A rig profile (TOML): every measure and detection setting of a station, keys named like the
-/// command-line flags in snake_case with their unit. Unknown keys are refused.
-///
-/// The profile does not validate values itself: [`Profile::to_args`] turns it into the very
-/// command-line arguments a user would type, which then go through the command line's own
-/// validation, so there is one way through for both.
+/// A rig profile (TOML): every measure and detection setting of a station, keyed by the setting's
+/// snake_case name with its unit. Unknown keys are refused. The values are checked where every
+/// setting is, by `SpotOptions::validate` and `MeasureSettings::validate`.
 #[derive(Debug, Clone, Default, PartialEq, Deserialize)]
 #[serde(deny_unknown_fields)]
 pub struct Profile {
-    /// `--plate`: clean plate photo (relative to the profile's folder).
+    /// Clean plate photo: the scene without the ball (relative to the profile's folder).
     pub plate: Option<PathBuf>,
-    /// `--polarity`: auto, bright or dark.
+    /// Ball against background: auto, bright or dark.
     pub polarity: Option<String>,
-    /// `--tone`: srgb or linear.
+    /// How the stored values encode light: srgb or linear.
     pub tone: Option<String>,
-    /// `--radius`: [min, max] radius of the ball images, pixels.
+    /// [min, max] radius of the ball images, pixels (default: estimated).
     pub radius_px: Option<[f64; 2]>,
-    /// `--threshold-sigma`.
+    /// Threshold in robust sigmas of the noise.
     pub threshold_sigma: Option<f64>,
-    /// `--threshold-level`.
+    /// Fixed threshold on the difference from the background, 0..1 (overrides threshold_sigma).
     pub threshold_level: Option<f64>,
-    /// `--background-cell`, pixels.
+    /// Background grid cell, pixels (0 = automatic).
     pub background_cell_px: Option<i64>,
-    /// `--smooth`, pixels.
+    /// Gaussian smoothing before edges, pixels.
     pub smooth_px: Option<f64>,
-    /// `--fine-snr`.
+    /// Rims whose median edge is this many noise sigmas get points from the unsmoothed gradient.
     pub fine_snr: Option<f64>,
-    /// `--shaded-max-r`, pixels.
+    /// Isolated images up to this radius get the shaded-sphere fit, pixels (0: edge fit only).
     pub shaded_max_r_px: Option<f64>,
-    /// `--coarse-r`, pixels.
+    /// Smallest radius of a ball on the decimated photo, pixels (0: full resolution throughout).
     pub coarse_r_px: Option<f64>,
-    /// `--edge-sigma`.
+    /// Edge points need a gradient above this many noise sigmas.
     pub edge_sigma: Option<f64>,
-    /// `--min-score`.
+    /// Smallest fraction of the rim with edge support for a ball image, 0..1.
     pub min_score: Option<f64>,
-    /// `--radius-tolerance`.
+    /// Ball images' radii may differ from the common radius by this fraction.
     pub radius_tolerance: Option<f64>,
-    /// `--sizes-differ`.
+    /// The round objects differ in size (not images of one ball): no common radius.
     pub sizes_differ: Option<bool>,
-    /// `--max-rms`, pixels.
+    /// Largest RMS distance of rim points from the fitted circle, pixels.
     pub max_rms_px: Option<f64>,
-    /// `--faint`.
+    /// Images fainter than this fraction of the median rim contrast are rejected as reflections.
     pub faint: Option<f64>,
-    /// `--max-candidates`.
+    /// Refuse photos with more candidate regions than this.
     pub max_candidates: Option<i64>,
-    /// `--rate`, hertz.
+    /// Flash rate, hertz.
     pub rate_hz: Option<f64>,
-    /// `--scale`, pixels per metre.
+    /// Scale in the plane of motion, pixels per metre.
     pub scale_px_per_m: Option<f64>,
-    /// `--ruler`: [x1, y1, x2, y2, metres].
+    /// Two image points a known distance apart: [x1, y1, x2, y2, metres].
     pub ruler: Option<[f64; 5]>,
-    /// `--ball-diameter`, metres.
+    /// Ball diameter, metres (also the scale when no other is given).
     pub ball_diameter_m: Option<f64>,
-    /// `--plane`: plane file (relative to the profile's folder).
+    /// Plane file (relative to the profile's folder).
     pub plane: Option<PathBuf>,
-    /// `--gravity`, m/s^2.
+    /// Gravity, m/s^2, when it is not the quantity estimated.
     pub gravity_mps2: Option<f64>,
-    /// `--estimate`: gravity, interval or scale.
+    /// The quantity estimated from the flight arcs: gravity, interval or scale.
     pub estimate: Option<String>,
-    /// `--ball`: solid, shell or thick:INNER_DIAMETER_M.
+    /// Ball build: solid, shell or thick:INNER_DIAMETER_M.
     pub ball: Option<String>,
-    /// `--level`.
+    /// The camera is level: do not estimate and correct its roll.
     pub level: Option<bool>,
-    /// `--fit-drag`.
+    /// Fit a quadratic air-drag term to the flight arcs.
     pub fit_drag: Option<bool>,
-    /// `--accept`: acceptance bands, e.g. ["restitution=0.73..0.76"].
+    /// Acceptance bands, e.g. ["restitution=0.73..0.76"].
     pub accept: Option<Vec<String>>,
-    /// `--start`: [x, y] pixels.
+    /// Start of the path near pixel [x, y] (default: found automatically).
     pub start_px: Option<[f64; 2]>,
-}
-
-/// Profile keys and the command-line flags they stand for.
-pub const PROFILE_KEYS: &[(&str, &str)] = &[
-    ("plate", "--plate"),
-    ("polarity", "--polarity"),
-    ("tone", "--tone"),
-    ("radius_px", "--radius"),
-    ("threshold_sigma", "--threshold-sigma"),
-    ("threshold_level", "--threshold-level"),
-    ("background_cell_px", "--background-cell"),
-    ("smooth_px", "--smooth"),
-    ("fine_snr", "--fine-snr"),
-    ("shaded_max_r_px", "--shaded-max-r"),
-    ("coarse_r_px", "--coarse-r"),
-    ("edge_sigma", "--edge-sigma"),
-    ("min_score", "--min-score"),
-    ("radius_tolerance", "--radius-tolerance"),
-    ("sizes_differ", "--sizes-differ"),
-    ("max_rms_px", "--max-rms"),
-    ("faint", "--faint"),
-    ("max_candidates", "--max-candidates"),
-    ("rate_hz", "--rate"),
-    ("scale_px_per_m", "--scale"),
-    ("ruler", "--ruler"),
-    ("ball_diameter_m", "--ball-diameter"),
-    ("plane", "--plane"),
-    ("gravity_mps2", "--gravity"),
-    ("estimate", "--estimate"),
-    ("ball", "--ball"),
-    ("level", "--level"),
-    ("fit_drag", "--fit-drag"),
-    ("accept", "--accept"),
-    ("start_px", "--start"),
-];
-
-/// The profile key for a command-line flag (`--rate` -> `rate_hz`).
-pub fn key_for_flag(flag: &str) -> Option<&'static str> {
-    PROFILE_KEYS
-        .iter()
-        .find(|(_, f)| *f == flag)
-        .map(|(k, _)| *k)
-}
-
-/// Rewrite every command-line flag named in `message` as its profile key, so an error found
-/// while validating a profile names the key the user wrote.
-pub fn flags_to_keys(message: &str) -> String {
-    let mut flags: Vec<&(&str, &str)> = PROFILE_KEYS.iter().collect();
-    // Longest first: `--radius-tolerance` before `--radius`.
-    flags.sort_by_key(|(_, f)| std::cmp::Reverse(f.len()));
-    let mut out = String::with_capacity(message.len());
-    let mut rest = message;
-    'outer: while !rest.is_empty() {
-        for (key, flag) in &flags {
-            if let Some(after) = rest.strip_prefix(flag) {
-                let boundary = after
-                    .chars()
-                    .next()
-                    .is_none_or(|c| !(c.is_ascii_alphanumeric() || c == '-'));
-                if boundary {
-                    out.push_str(key);
-                    rest = after;
-                    continue 'outer;
-                }
-            }
-        }
-        let c = rest.chars().next().unwrap_or(' ');
-        out.push(c);
-        rest = &rest[c.len_utf8()..];
-    }
-    out
-}
-
-/// Format a number so the command line's parser reads back exactly the same value.
-fn num(v: f64) -> String {
-    // Rust's shortest round-trip formatting; NaN and infinities come out as `NaN` / `inf` and
-    // are refused by the command line's validation with the flag (key) named.
-    format!("{v}")
 }
 
 impl Profile {
@@ -204,91 +123,6 @@ impl Profile {
             }
         }
         Ok(p)
-    }
-
-    /// The command-line arguments this profile stands for, each as `--flag=value` (so negative
-    /// numbers are not taken for flags). `skip` names flags typed on the command line for
-    /// repeatable flags (`--accept`): the command line then replaces the profile's list.
-    pub fn to_args(&self, skip: &[&str]) -> Vec<String> {
-        let mut a = Vec::new();
-        let mut set = |flag: &str, v: String| a.push(format!("{flag}={v}"));
-        if let Some(v) = &self.plate {
-            set("--plate", v.display().to_string());
-        }
-        if let Some(v) = &self.polarity {
-            set("--polarity", v.clone());
-        }
-        if let Some(v) = &self.tone {
-            set("--tone", v.clone());
-        }
-        if let Some([lo, hi]) = self.radius_px {
-            set("--radius", format!("{}..{}", num(lo), num(hi)));
-        }
-        let numbers = [
-            ("--threshold-sigma", self.threshold_sigma),
-            ("--threshold-level", self.threshold_level),
-            ("--smooth", self.smooth_px),
-            ("--fine-snr", self.fine_snr),
-            ("--shaded-max-r", self.shaded_max_r_px),
-            ("--coarse-r", self.coarse_r_px),
-            ("--edge-sigma", self.edge_sigma),
-            ("--min-score", self.min_score),
-            ("--radius-tolerance", self.radius_tolerance),
-            ("--max-rms", self.max_rms_px),
-            ("--faint", self.faint),
-            ("--rate", self.rate_hz),
-            ("--scale", self.scale_px_per_m),
-            ("--ball-diameter", self.ball_diameter_m),
-            ("--gravity", self.gravity_mps2),
-        ];
-        for (flag, v) in numbers {
-            if let Some(v) = v {
-                set(flag, num(v));
-            }
-        }
-        for (flag, v) in [
-            ("--background-cell", self.background_cell_px),
-            ("--max-candidates", self.max_candidates),
-        ] {
-            if let Some(v) = v {
-                set(flag, v.to_string());
-            }
-        }
-        if let Some(v) = self.ruler {
-            set(
-                "--ruler",
-                v.iter().map(|x| num(*x)).collect::<Vec<_>>().join(","),
-            );
-        }
-        if let Some(v) = &self.plane {
-            set("--plane", v.display().to_string());
-        }
-        if let Some(v) = &self.estimate {
-            set("--estimate", v.clone());
-        }
-        if let Some(v) = &self.ball {
-            set("--ball", v.clone());
-        }
-        if let Some([x, y]) = self.start_px {
-            set("--start", format!("{},{}", num(x), num(y)));
-        }
-        if let Some(bands) = &self.accept
-            && !skip.contains(&"--accept")
-        {
-            for b in bands {
-                set("--accept", b.clone());
-            }
-        }
-        for (flag, v) in [
-            ("--sizes-differ", self.sizes_differ),
-            ("--level", self.level),
-            ("--fit-drag", self.fit_drag),
-        ] {
-            if v == Some(true) {
-                a.push(flag.to_string());
-            }
-        }
-        a
     }
 }
 
@@ -819,7 +653,7 @@ pub struct SummaryRow {
     pub restitution_each: String,
     /// Launch speed off the incline, m/s.
     pub launch_speed_mps: Option<f64>,
-    /// Gravity, m/s^2.
+    /// Gravity, m/s^2, when it is not the quantity estimated.
     pub gravity_mps2: Option<f64>,
     /// Flash interval, seconds.
     pub flash_interval_s: Option<f64>,
@@ -909,19 +743,6 @@ mod tests {
     use super::*;
 
     #[test]
-    fn flags_become_keys() {
-        assert_eq!(
-            flags_to_keys("--rate: must be between 0 and 100000 Hz, got -25"),
-            "rate_hz: must be between 0 and 100000 Hz, got -25"
-        );
-        assert_eq!(
-            flags_to_keys("--radius-tolerance and --radius: x"),
-            "radius_tolerance and radius_px: x"
-        );
-        assert_eq!(flags_to_keys("--scale, --ruler"), "scale_px_per_m, ruler");
-    }
-
-    #[test]
     fn journal_ignores_a_torn_last_line() {
         let done = Journal::parse(b"\"a.png\"\n\"b.png\"\n\"c.p");
         assert_eq!(done.len(), 2);
@@ -929,14 +750,9 @@ mod tests {
     }
 
     #[test]
-    fn profile_refuses_unknown_keys_and_makes_flags() {
+    fn profile_refuses_unknown_keys() {
         let p = Path::new("rig.toml");
         let err = Profile::parse("rate = 25", p).unwrap_err().to_string();
         assert!(err.contains("rig.toml") && err.contains("rate"), "{err}");
-        let prof = Profile::parse("rate_hz = -25\nradius_px = [3, 9.5]\nlevel = true", p).unwrap();
-        assert_eq!(
-            prof.to_args(&[]),
-            vec!["--radius=3..9.5", "--rate=-25", "--level"]
-        );
     }
 }

@@ -1,0 +1,336 @@
+//! What the user typed: the clap definitions of every command and option, nothing else.
+
+use beadline::core::units::STANDARD_GRAVITY_MPS2;
+use beadline::detect;
+use clap::{Args as ClapArgs, Parser, Subcommand, ValueEnum};
+use std::path::PathBuf;
+
+/// Beadline: measure a ball from one multi-flash strobe photograph.
+#[derive(Debug, Parser)]
+#[command(name = "beadline", version, about, long_about = None)]
+pub struct Args {
+    #[command(subcommand)]
+    pub(crate) command: Command,
+}
+
+#[derive(Debug, Subcommand)]
+pub(crate) enum Command {
+    /// Render a synthetic strobe photo and its ground truth from a scene file.
+    Render {
+        /// Scene file (TOML).
+        scene: PathBuf,
+        /// Photo to write (.png, .jpg or .tif).
+        #[arg(long)]
+        out: PathBuf,
+        /// Ground-truth JSON to write.
+        #[arg(long)]
+        truth: Option<PathBuf>,
+        /// Also write the clean plate: the same scene without the ball (same format as --out).
+        #[arg(long)]
+        plate: Option<PathBuf>,
+    },
+    /// Find every image of the ball in a strobe photo.
+    Spots {
+        /// The photo (JPEG, PNG or TIFF).
+        photo: PathBuf,
+        #[command(flatten)]
+        detect: Box<DetectArgs>,
+        #[command(flatten)]
+        out: OutArgs,
+    },
+    /// Order the ball images of a strobe photo into the ball's timed path.
+    Path {
+        /// The photo (JPEG, PNG or TIFF).
+        photo: PathBuf,
+        #[command(flatten)]
+        detect: Box<DetectArgs>,
+        /// Start of the path near pixel X,Y (default: found automatically).
+        #[arg(long, value_name = "X,Y")]
+        start: Option<String>,
+        #[command(flatten)]
+        out: OutArgs,
+    },
+    /// Measure the ball from a strobe photo: path, calibration, phases, fits, restitution.
+    Measure {
+        /// The photo (JPEG, PNG or TIFF).
+        photo: PathBuf,
+        #[command(flatten)]
+        detect: Box<DetectArgs>,
+        #[command(flatten)]
+        measure: Box<MeasureArgs>,
+        #[command(flatten)]
+        out: OutArgs,
+        /// Write plots (height against time, restitution against impact speed) as SVG.
+        #[arg(long, value_name = "SVG", value_parser = svg_path)]
+        plot: Option<PathBuf>,
+    },
+    /// Plan a shot: flash rate, number of flashes, exposure and delay, before taking the photo.
+    Plan {
+        /// Scene file (TOML) with [flash_unit] and [wishes].
+        scene: PathBuf,
+        /// Render the planned photo as PNG.
+        #[arg(long, value_name = "PNG", value_parser = png_path)]
+        preview: Option<PathBuf>,
+        /// Output format (text or json).
+        #[arg(long, value_enum, default_value = "text")]
+        format: Format,
+        /// Write the plan to FILE (atomically) instead of standard output.
+        #[arg(short = 'o', long = "output", value_name = "FILE")]
+        output: Option<PathBuf>,
+    },
+    /// Measure many photos unattended on a test rig: one JSON line per photo.
+    #[command(args_override_self = true, after_help = RIG_HELP)]
+    Rig(Box<RigArgs>),
+    /// Render the built-in demo scene into a folder and measure it.
+    Demo {
+        /// Folder for the demo's files.
+        #[arg(long, default_value = "beadline-demo")]
+        dir: PathBuf,
+    },
+}
+
+/// Help shown after the rig's options.
+pub(crate) const RIG_HELP: &str = "\
+Precedence: a flag typed on the command line > the --profile file > the default.
+A profile (TOML) holds the detection and measure settings, keys named like the flags in
+snake_case with their unit: rate_hz, ball_diameter_m, scale_px_per_m, polarity, radius_px =
+[MIN, MAX], threshold_sigma, accept = [\"restitution=0.73..0.76\"], ... Unknown keys are refused.
+--accept on the command line replaces the profile's list.
+
+Each result line is the measure JSON plus \"file\" and \"status\": ok | out_of_band | error (with
+\"error\"). --out appends to the file. --watch DIR measures each new photo once its size and time
+are unchanged over two polls, exactly once also across restarts (journal).
+
+Exit status:
+  0  every photo measured and within its acceptance bands
+  1  error in the run itself (bad profile or flag, unwritable output...)
+  2  some photos could not be read or measured
+  3  some results outside acceptance bands (2 wins over 3)";
+
+/// `beadline rig` as typed.
+#[derive(Debug, Clone, ClapArgs)]
+pub(crate) struct RigArgs {
+    /// Photos: files, folders (their photos) or glob patterns such as 'shots/*.jpg'.
+    pub(crate) paths: Vec<String>,
+    /// Rig profile (TOML) with the station's detection and measure settings.
+    #[arg(long, value_name = "RIG.toml")]
+    pub(crate) profile: Option<PathBuf>,
+    #[command(flatten)]
+    pub(crate) detect: Box<DetectArgs>,
+    #[command(flatten)]
+    pub(crate) measure: Box<MeasureArgs>,
+    /// Append the result lines (JSON, one per photo) to FILE instead of standard output.
+    #[arg(long, value_name = "FILE")]
+    pub(crate) out: Option<PathBuf>,
+    /// Write a summary CSV, one row per photo, at the end of the run.
+    #[arg(long, value_name = "FILE")]
+    pub(crate) summary: Option<PathBuf>,
+    /// Write an overlay per photo into DIR (NAME.overlay.png).
+    #[arg(long, value_name = "DIR")]
+    pub(crate) overlay_dir: Option<PathBuf>,
+    /// Watch DIR and measure each new photo once it is completely written.
+    #[arg(long, value_name = "DIR")]
+    pub(crate) watch: Option<PathBuf>,
+    /// Journal of the photos done in watch mode (default: DIR/.beadline-journal).
+    #[arg(long, value_name = "FILE")]
+    pub(crate) journal: Option<PathBuf>,
+    /// Seconds between two looks at the watched folder.
+    #[arg(long, value_name = "SECONDS", default_value_t = 0.5)]
+    pub(crate) poll_interval: f64,
+    /// Stop watching after N photos.
+    #[arg(long, value_name = "N")]
+    pub(crate) max_photos: Option<usize>,
+    /// Stop watching after SECONDS without a new photo.
+    #[arg(long, value_name = "SECONDS")]
+    pub(crate) idle_exit: Option<f64>,
+    /// Worker threads (default: one per core).
+    #[arg(long, value_name = "N")]
+    pub(crate) jobs: Option<usize>,
+    /// Most photos decoded at once (default: the number of threads).
+    #[arg(long, value_name = "N")]
+    pub(crate) max_decoding: Option<usize>,
+    /// No progress bar and no per-photo error lines on standard error.
+    #[arg(long)]
+    pub(crate) quiet: bool,
+}
+
+/// Output format.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, ValueEnum)]
+pub(crate) enum Format {
+    Text,
+    Json,
+    Csv,
+}
+
+/// Ball polarity as typed.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, ValueEnum)]
+pub(crate) enum PolarityArg {
+    Auto,
+    Bright,
+    Dark,
+}
+
+/// Tone curve as typed.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, ValueEnum)]
+pub(crate) enum ToneArg {
+    Srgb,
+    Linear,
+}
+
+/// A path for an image we write as `kind`: its name must say so, so that no viewer or script
+/// takes it for another format.
+pub(crate) fn typed_path(s: &str, kind: &str) -> std::result::Result<PathBuf, String> {
+    let p = PathBuf::from(s);
+    match p.extension().and_then(|e| e.to_str()) {
+        Some(e) if e.eq_ignore_ascii_case(kind) => Ok(p),
+        _ => Err(format!(
+            "'{s}': the image is written as {}, so its name must end in .{kind}",
+            kind.to_uppercase()
+        )),
+    }
+}
+
+/// See [`typed_path`].
+pub(crate) fn png_path(s: &str) -> std::result::Result<PathBuf, String> {
+    typed_path(s, "png")
+}
+
+/// See [`typed_path`].
+pub(crate) fn svg_path(s: &str) -> std::result::Result<PathBuf, String> {
+    typed_path(s, "svg")
+}
+
+/// Where and how results go.
+#[derive(Debug, Clone, ClapArgs)]
+pub(crate) struct OutArgs {
+    /// Output format.
+    #[arg(long, value_enum, default_value = "text")]
+    pub(crate) format: Format,
+    /// Write the result to FILE (atomically) instead of standard output.
+    #[arg(short = 'o', long = "output", value_name = "FILE")]
+    pub(crate) output: Option<PathBuf>,
+    /// Draw what was found on the photo and write it as PNG.
+    #[arg(long, value_name = "PNG", value_parser = png_path)]
+    pub(crate) overlay: Option<PathBuf>,
+}
+
+/// Detection settings as typed; see `SpotOptions` for what each does.
+#[derive(Debug, Clone, ClapArgs)]
+pub(crate) struct DetectArgs {
+    /// Clean plate: the same scene photographed without the ball.
+    #[arg(long, value_name = "PHOTO")]
+    pub(crate) plate: Option<PathBuf>,
+    /// Ball against background.
+    #[arg(long, value_enum, default_value = "auto")]
+    pub(crate) polarity: PolarityArg,
+    /// How the stored values encode light: srgb (camera JPEGs and PNGs, IEC 61966-2-1) or linear
+    /// (a raw or scientific camera's 16-bit TIFF).
+    #[arg(long, value_enum, default_value = "srgb")]
+    pub(crate) tone: ToneArg,
+    /// Radius range of the ball images, pixels, as MIN..MAX (default: estimated).
+    #[arg(long, value_name = "MIN..MAX")]
+    pub(crate) radius: Option<String>,
+    /// Threshold in robust sigmas of the noise.
+    #[arg(long, default_value_t = 4.5)]
+    pub(crate) threshold_sigma: f32,
+    /// Fixed threshold on the difference from the background, 0..1 (overrides --threshold-sigma).
+    #[arg(long)]
+    pub(crate) threshold_level: Option<f32>,
+    /// Background grid cell, pixels (0 = automatic).
+    #[arg(long, default_value_t = 0)]
+    pub(crate) background_cell: usize,
+    /// Gaussian smoothing before edges, pixels.
+    #[arg(long, default_value_t = 0.7)]
+    pub(crate) smooth: f32,
+    /// Rims whose median edge is this many noise sigmas have their points placed on the
+    /// unsmoothed gradient (0: all rims; a huge value: none).
+    #[arg(long, default_value_t = 20.0)]
+    pub(crate) fine_snr: f64,
+    /// Edge points need a gradient above this many noise sigmas.
+    #[arg(long, default_value_t = 4.0)]
+    pub(crate) edge_sigma: f32,
+    /// Smallest fraction of the rim with edge support for a ball image, 0..1.
+    #[arg(long, default_value_t = 0.35)]
+    pub(crate) min_score: f64,
+    /// Ball images' radii may differ from the common radius by this fraction.
+    #[arg(long, default_value_t = 0.12)]
+    pub(crate) radius_tolerance: f64,
+    /// The round objects differ in size (not images of one ball): no common radius.
+    #[arg(long)]
+    pub(crate) sizes_differ: bool,
+    /// Isolated images of a ball up to this radius are refined by fitting a lit sphere's image to
+    /// their pixels, pixels (0: edge fit only).
+    #[arg(long, default_value_t = 40.0)]
+    pub(crate) shaded_max_r: f64,
+    /// Smallest radius of a ball on the decimated photo, pixels: with the smallest searched radius
+    /// r_min, the photo is averaged over floor(r_min / this) pixels squared for the blobs and the
+    /// vote, and the rims are fitted at full resolution (0: full resolution throughout).
+    #[arg(long, default_value_t = detect::COARSE_R_PX)]
+    pub(crate) coarse_r: f64,
+    /// Systematic centre uncertainty of a lit sphere's edge, pixels x radius (common to all images).
+    #[arg(long, default_value_t = 0.5)]
+    pub(crate) edge_systematic: f64,
+    /// Largest RMS distance of rim points from the fitted circle, pixels (or 2.5 x the median of
+    /// the photo's well-covered images, when that is larger).
+    #[arg(long, default_value_t = 0.5)]
+    pub(crate) max_rms: f64,
+    /// Images fainter than this fraction of the median rim contrast are rejected as reflections.
+    #[arg(long, default_value_t = 0.5)]
+    pub(crate) faint: f64,
+    /// Refuse photos with more candidate regions than this.
+    #[arg(long, default_value_t = 5000)]
+    pub(crate) max_candidates: usize,
+    /// Write each stage's intermediate image into DIR.
+    #[arg(long, value_name = "DIR")]
+    pub(crate) debug_dir: Option<PathBuf>,
+}
+
+/// What to estimate from the flight arcs.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, ValueEnum)]
+pub(crate) enum EstimateArg {
+    Gravity,
+    Interval,
+    Scale,
+}
+
+/// Calibration, time and physics settings as typed.
+#[derive(Debug, Clone, ClapArgs)]
+pub(crate) struct MeasureArgs {
+    /// Flash rate, hertz.
+    #[arg(long, value_name = "HZ")]
+    pub(crate) rate: Option<f64>,
+    /// Scale in the plane of motion, pixels per metre.
+    #[arg(long, value_name = "PX_PER_M")]
+    pub(crate) scale: Option<f64>,
+    /// Two image points a known distance apart in the plane of motion: X1,Y1,X2,Y2,METRES.
+    #[arg(long, value_name = "X1,Y1,X2,Y2,METRES")]
+    pub(crate) ruler: Option<String>,
+    /// Ball diameter, metres (also the scale when no other is given).
+    #[arg(long, value_name = "METRES")]
+    pub(crate) ball_diameter: Option<f64>,
+    /// Plane file (TOML: [[points]] x_px, y_px, x_m, y_m; optional k1, k2, focal_px).
+    #[arg(long, value_name = "FILE")]
+    pub(crate) plane: Option<PathBuf>,
+    /// Gravity, m/s^2, when it is not the quantity estimated.
+    #[arg(long, default_value_t = STANDARD_GRAVITY_MPS2)]
+    pub(crate) gravity: f64,
+    /// The quantity estimated from the flight arcs (default: gravity when rate and scale are
+    /// given; otherwise the missing one).
+    #[arg(long, value_enum)]
+    pub(crate) estimate: Option<EstimateArg>,
+    /// Ball build: solid, shell, or thick:INNER_DIAMETER_M.
+    #[arg(long, default_value = "solid")]
+    pub(crate) ball: String,
+    /// The camera is level: do not estimate and correct its roll.
+    #[arg(long)]
+    pub(crate) level: bool,
+    /// Fit a quadratic air-drag term to the flight arcs.
+    #[arg(long)]
+    pub(crate) fit_drag: bool,
+    /// Acceptance band QUANTITY=MIN..MAX (repeatable), e.g. restitution=0.73..0.76.
+    #[arg(long = "accept", value_name = "Q=MIN..MAX")]
+    pub(crate) accept: Vec<String>,
+    /// Start of the path near pixel X,Y (default: found automatically).
+    #[arg(long, value_name = "X,Y")]
+    pub(crate) start: Option<String>,
+}
