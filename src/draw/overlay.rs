@@ -4,6 +4,7 @@
 //! RGB image written atomically as PNG. Text uses a built-in 3 x 5 pixel font scaled up.
 
 use crate::error::{Error, Result};
+use crate::image::load::{LoadOptions, load_colour};
 use image::{Rgb, RgbImage};
 use imageproc::drawing::{draw_hollow_circle_mut, draw_line_segment_mut};
 use std::path::Path;
@@ -52,13 +53,10 @@ fn glyph(c: char) -> Option<u16> {
 }
 
 impl Canvas {
-    /// Open the photo at `path` as a canvas (dimmed so the drawing stands out).
+    /// Open the photo at `path` as a canvas (dimmed so the drawing stands out), decoded by
+    /// [`load_colour`]: the orientation and limits of the numbers it is drawn from.
     pub fn open(path: &Path) -> Result<Canvas> {
-        let img = image::open(path).map_err(|e| Error::Decode {
-            path: path.to_path_buf(),
-            message: e.to_string(),
-        })?;
-        let mut image = img.to_rgb8();
+        let mut image = load_colour(path, &LoadOptions::default())?;
         for p in image.pixels_mut() {
             for c in p.0.iter_mut() {
                 *c = (*c as f32 * 0.75) as u8;

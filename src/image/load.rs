@@ -162,6 +162,12 @@ fn decode_error(path: &Path, message: impl std::fmt::Display) -> Error {
 
 /// Load a photo file.
 pub fn load(path: &Path, options: &LoadOptions) -> Result<Photo> {
+    let bytes = read_checked(path, options)?;
+    load_bytes(path, &bytes, options)
+}
+
+/// The bytes of a photo file, refused early when it is a folder, empty or over the size limit.
+fn read_checked(path: &Path, options: &LoadOptions) -> Result<Vec<u8>> {
     let meta = std::fs::metadata(path).map_err(|e| Error::io(path, e))?;
     if meta.is_dir() {
         return Err(decode_error(path, "is a folder, not a photo"));
@@ -175,13 +181,30 @@ pub fn load(path: &Path, options: &LoadOptions) -> Result<Photo> {
             format!("{} bytes is over the file size limit", meta.len()),
         ));
     }
-    let bytes = std::fs::read(path).map_err(|e| Error::io(path, e))?;
-    load_bytes(path, &bytes, options)
+    std::fs::read(path).map_err(|e| Error::io(path, e))
 }
 
 /// Decode a photo held in memory; `path` names it in errors. [`load`] reads the file and comes
 /// here, so files and bytes go one way through.
 pub fn load_bytes(path: &Path, bytes: &[u8], options: &LoadOptions) -> Result<Photo> {
+    decode(path, bytes, options, true).map(|img| to_photo(path, img))
+}
+
+/// Load a photo file in colour, for drawing on: the same checks, limits and EXIF orientation as
+/// [`load`], so a picture drawn from the numbers [`load`] gave lines up with them.
+pub fn load_colour(path: &Path, options: &LoadOptions) -> Result<image::RgbImage> {
+    let bytes = read_checked(path, options)?;
+    decode(path, &bytes, options, false).map(|img| img.to_rgb8())
+}
+
+/// The one decoder: refuses empty, truncated, unknown or oversized images, applies the EXIF
+/// orientation; with `luma_only` a YCbCr JPEG's luma plane is decoded alone.
+fn decode(
+    path: &Path,
+    bytes: &[u8],
+    options: &LoadOptions,
+    luma_only: bool,
+) -> Result<DynamicImage> {
     if bytes.is_empty() {
         return Err(decode_error(path, "empty file"));
     }
@@ -230,7 +253,7 @@ pub fn load_bytes(path: &Path, bytes: &[u8], options: &LoadOptions) -> Result<Ph
     }
     let orientation = image::ImageDecoder::orientation(&mut decoder)
         .unwrap_or(image::metadata::Orientation::NoTransforms);
-    let grey = if reader_is_jpeg {
+    let grey = if reader_is_jpeg && luma_only {
         jpeg_luma(bytes, options).map_err(|e| decode_error(path, e))?
     } else {
         None
@@ -250,7 +273,7 @@ pub fn load_bytes(path: &Path, bytes: &[u8], options: &LoadOptions) -> Result<Ph
             ),
         ));
     }
-    Ok(to_photo(path, img))
+    Ok(img)
 }
 
 /// Decode only the luma plane of a YCbCr or grey JPEG (zune-jpeg skips the chroma's inverse
