@@ -1,6 +1,6 @@
 //! The `beadline` command end to end: outputs a rig pipeline can read back, and one-line errors.
 
-use beadline::report::SpotsDoc;
+use beadline::report::spots::SpotsDoc;
 use std::path::Path;
 use std::process::Command;
 

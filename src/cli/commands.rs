@@ -139,7 +139,7 @@ pub(crate) fn write_measure(
 }
 
 /// Exit status 3 when a result lies outside an acceptance band, else 0.
-pub(crate) fn verdict_status(doc: &beadline::pipeline::MeasureDoc) -> ExitCode {
+pub(crate) fn verdict_status(doc: &beadline::report::measure::MeasureDoc) -> ExitCode {
     use beadline::physics::bands::Outcome;
     if doc
         .measurement

@@ -9,7 +9,7 @@ mod settings;
 
 use anyhow::Result;
 use args::{Args, Command, Format, OutArgs};
-use beadline::report::SpotsDoc;
+use beadline::report::spots::SpotsDoc;
 use beadline::synth::{self, scene::Scene};
 use clap::Parser;
 use commands::{
@@ -99,7 +99,7 @@ fn dispatch(args: Args) -> Result<ExitCode> {
                 ..Default::default()
             };
             let result = beadline::track::order_path(&report.spots, &options);
-            let doc = beadline::report::PathDoc::new(&photo.display().to_string(), &result);
+            let doc = beadline::report::path::PathDoc::new(&photo.display().to_string(), &result);
             let text = formatted(out.format, &doc, || doc.text(), || doc.csv())?;
             if let Some(o) = &out.overlay {
                 spots_overlay(&photo, &report, o)?;

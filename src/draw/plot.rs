@@ -5,7 +5,7 @@
 
 use crate::physics::PhaseKind;
 use crate::physics::fit::{FitOptions, polynomial_fit};
-use crate::pipeline::MeasureDoc;
+use crate::report::measure::MeasureDoc;
 use std::fmt::Write;
 
 const W: f64 = 900.0;

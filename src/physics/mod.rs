@@ -23,6 +23,7 @@ pub mod flight;
 pub mod incline;
 pub mod phases;
 
+use crate::core::SCHEMA_VERSION;
 use crate::core::ball::{Build, inertia_factor};
 use crate::core::units::STANDARD_GRAVITY_MPS2;
 use crate::error::{Error, Result};
@@ -34,9 +35,6 @@ use incline::{InclineResult, Launch};
 use serde::{Deserialize, Serialize};
 use std::ops::Range;
 use std::path::{Path, PathBuf};
-
-/// Version of the measurement JSON layout.
-pub const SCHEMA_VERSION: u32 = 1;
 
 /// One centre of the ball on the timed path.
 #[derive(Debug, Clone, Copy, PartialEq, Serialize, Deserialize)]

@@ -13,7 +13,8 @@
 
 use crate::error::{Error, Result};
 use crate::physics::bands::Outcome;
-use crate::pipeline::{MeasureDoc, MeasureSettings};
+use crate::pipeline::MeasureSettings;
+use crate::report::measure::MeasureDoc;
 use rayon::prelude::*;
 use serde::{Deserialize, Serialize};
 use std::collections::{HashMap, HashSet};

@@ -39,7 +39,7 @@ pub struct Scene {
     pub camera: Camera,
     /// The look of the photograph.
     #[serde(default)]
-    pub photo: Photo,
+    pub photo: PhotoLook,
     /// Round objects that are not the ball.
     #[serde(default)]
     pub distractors: Vec<Distractor>,
@@ -323,7 +323,7 @@ pub struct Camera {
 /// The look of the photograph.
 #[derive(Debug, Clone, Serialize, Deserialize)]
 #[serde(deny_unknown_fields)]
-pub struct Photo {
+pub struct PhotoLook {
     /// Bright ball on dark, or dark on bright.
     #[serde(default)]
     pub polarity: Polarity,
@@ -442,7 +442,7 @@ fn default_quality() -> u8 {
     92
 }
 
-impl Default for Photo {
+impl Default for PhotoLook {
     fn default() -> Self {
         toml::from_str("").expect("every photo field has a default")
     }

@@ -1,0 +1,154 @@
+//! The document of `beadline measure`: the timed path in pixels and metres, and the physics.
+
+use super::csv_rows;
+use crate::physics::{Measurement, Quantity};
+use crate::track::Stray;
+use serde::Serialize;
+
+/// One point of the timed path in the output.
+#[derive(Debug, Clone, Copy, PartialEq, Serialize)]
+pub struct PathEntry {
+    /// Flash index, 0 = first image found.
+    pub n: usize,
+    /// Time from the first image, seconds.
+    pub t_s: f64,
+    /// Centre x, pixels.
+    pub x_px: f64,
+    /// Centre y, pixels.
+    pub y_px: f64,
+    /// Radius, pixels.
+    pub r_px: f64,
+    /// 1-sigma of the centre, pixels.
+    pub sigma_px: f64,
+    /// Centre x, metres (world, x right; before the level correction).
+    pub x_m: f64,
+    /// Centre y, metres (world, y up; before the level correction).
+    pub y_m: f64,
+}
+
+/// `beadline measure --format json`.
+#[derive(Debug, Clone, Serialize)]
+pub struct MeasureDoc {
+    /// The photo.
+    pub file: String,
+    /// Width, pixels.
+    pub width_px: usize,
+    /// Height, pixels.
+    pub height_px: usize,
+    /// Ball images found.
+    pub spots_found: usize,
+    /// The timed path.
+    pub path: Vec<PathEntry>,
+    /// Flash indexes with no image.
+    pub missing: Vec<usize>,
+    /// Spots not on the path, with the reason.
+    pub strays: Vec<Stray>,
+    /// The physics (flattened: `schema_version`, `phases`, `bounces`, `launch`, ...).
+    #[serde(flatten)]
+    pub measurement: Measurement,
+}
+
+fn quantity(q: &Quantity, unit: &str) -> String {
+    if q.value.is_finite() {
+        if q.sigma.is_finite() && q.sigma > 0.0 {
+            format!("{:.5} +- {:.5} {unit} ({})", q.value, q.sigma, q.source)
+        } else {
+            format!("{:.5} {unit} ({})", q.value, q.source)
+        }
+    } else {
+        format!("unknown ({})", q.source)
+    }
+}
+
+impl MeasureDoc {
+    /// Summary for a person.
+    pub fn text(&self) -> String {
+        let m = &self.measurement;
+        let mut s = format!(
+            "{}: {} ball images, {} on the path ({} flashes missing), {} strays\n",
+            self.file,
+            self.spots_found,
+            self.path.len(),
+            self.missing.len(),
+            self.strays.len()
+        );
+        s += &format!("  scale          {}\n", quantity(&m.scale_px_per_m, "px/m"));
+        s += &format!("  flash interval {}\n", quantity(&m.flash_interval_s, "s"));
+        s += &format!("  gravity        {}\n", quantity(&m.gravity_mps2, "m/s^2"));
+        if let Some(r) = m.level.roll_deg {
+            s += &format!(
+                "  camera roll    {:.3} +- {:.3} deg{}\n",
+                r,
+                m.level.roll_sigma_deg.unwrap_or(f64::NAN),
+                if m.level.corrected {
+                    " (corrected)"
+                } else {
+                    ""
+                }
+            );
+        }
+        if let Some(i) = &m.incline {
+            s += &format!(
+                "  incline        {:.2} deg, accel {:.4} +- {:.4} m/s^2 (ideal rolling {:.4}), \
+                 end speed {:.4} +- {:.4} m/s (ideal {:.4}), rolling loss {:.4}\n",
+                i.angle_deg,
+                i.accel_mps2,
+                i.accel_sigma_mps2,
+                i.ideal_accel_mps2,
+                i.end_speed_mps,
+                i.end_speed_sigma_mps,
+                i.ideal_end_speed_mps,
+                i.rolling_loss
+            );
+        }
+        if let Some(l) = &m.launch {
+            s += &format!(
+                "  launch         {:.4} +- {:.4} m/s at {:.2} +- {:.2} deg, t = {:.4} s\n",
+                l.speed_mps, l.speed_sigma_mps, l.angle_deg, l.angle_sigma_deg, l.t_s
+            );
+        }
+        s += &format!(
+            "  floor          y = {:.4} +- {:.4} m ({})\n",
+            m.floor.y_m, m.floor.sigma_m, m.floor.source
+        );
+        for (i, b) in m.bounces.iter().enumerate() {
+            s += &format!(
+                "  bounce {}       t = {:.4} s, e = {:.4} +- {:.4}, impact {:.3} m/s, rebound {:.3} m/s",
+                i + 1,
+                b.t_s,
+                b.restitution,
+                b.restitution_sigma,
+                b.impact_speed_mps,
+                b.rebound_speed_mps
+            );
+            if let Some(a) = b.restitution_from_apex {
+                s += &format!(", apex check {a:.4}");
+            }
+            s += "\n";
+        }
+        if let Some(t) = &m.restitution_trend {
+            s += &format!(
+                "  e vs impact    slope {:.4} +- {:.4} s/m over {} bounces\n",
+                t.slope_s_per_m, t.slope_sigma_s_per_m, t.bounces
+            );
+        }
+        if let Some(d) = &m.drag {
+            s += &format!(
+                "  drag           {:.4} +- {:.4} 1/m\n",
+                d.drag_per_m, d.drag_sigma_per_m
+            );
+        }
+        for v in &m.verdicts {
+            s += &format!(
+                "  band {} {}..{}: {:?} {}\n",
+                v.band.quantity, v.band.min, v.band.max, v.outcome, v.note
+            );
+        }
+        s
+    }
+
+    /// CSV of the path.
+    pub fn csv(&self) -> std::io::Result<String> {
+        csv_rows(&self.path)
+    }
+}

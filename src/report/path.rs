@@ -1,0 +1,66 @@
+//! The document of `beadline path`: the ball's path in time order and the strays.
+
+use super::{SCHEMA_VERSION, csv_rows};
+use crate::track::{PathPoint, PathResult, Stray};
+use serde::{Deserialize, Serialize};
+
+/// `beadline path --format json`: the best path first, then any other (a second ball).
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct PathDoc {
+    /// Schema version.
+    pub schema_version: u32,
+    /// The photo.
+    pub file: String,
+    /// The ball's path in time order; n = 0 is the first image found.
+    pub path: Vec<PathPoint>,
+    /// Flash indexes with no image.
+    pub missing: Vec<usize>,
+    /// Further paths (another ball), each with its points and missing flashes.
+    pub other_paths: Vec<crate::track::Path>,
+    /// Spots on no path, with the reason.
+    pub strays: Vec<Stray>,
+}
+
+impl PathDoc {
+    /// Build the document from the ordering result.
+    pub fn new(file: &str, result: &PathResult) -> PathDoc {
+        let mut paths = result.paths.iter();
+        let first = paths.next();
+        PathDoc {
+            schema_version: SCHEMA_VERSION,
+            file: file.to_string(),
+            path: first.map(|p| p.points.clone()).unwrap_or_default(),
+            missing: first.map(|p| p.missing.clone()).unwrap_or_default(),
+            other_paths: paths.cloned().collect(),
+            strays: result.strays.clone(),
+        }
+    }
+
+    /// Text for a person.
+    pub fn text(&self) -> String {
+        let mut s = format!(
+            "{}: path of {} images, missing flashes {:?}, {} other paths, {} strays\n",
+            self.file,
+            self.path.len(),
+            self.missing,
+            self.other_paths.len(),
+            self.strays.len()
+        );
+        s += "    n      x_px      y_px    r_px  sigma_px\n";
+        for p in &self.path {
+            s += &format!(
+                "{:5} {:9.3} {:9.3} {:7.3} {:9.4}\n",
+                p.n, p.x_px, p.y_px, p.r_px, p.sigma_px
+            );
+        }
+        for st in &self.strays {
+            s += &format!("stray {:9.3} {:9.3}  {:?}\n", st.x_px, st.y_px, st.reason);
+        }
+        s
+    }
+
+    /// CSV of the path.
+    pub fn csv(&self) -> std::io::Result<String> {
+        csv_rows(&self.path)
+    }
+}
