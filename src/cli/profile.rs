@@ -6,7 +6,7 @@
 use super::args::{Args, Command, RigArgs};
 use super::one_line;
 use anyhow::Result;
-use beadline::rig::Profile;
+use beadline::rig::profile::Profile;
 use clap::Parser;
 
 /// Profile keys and the command-line flags they stand for.

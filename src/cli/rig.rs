@@ -26,8 +26,8 @@ pub(crate) fn rig(args: RigArgs) -> Result<ExitCode> {
         max_decoding: args.max_decoding.unwrap_or(0),
     };
     let sink = match &args.out {
-        Some(p) => r::ResultSink::append(p)?,
-        None => r::ResultSink::stdout(),
+        Some(p) => r::sink::ResultSink::append(p)?,
+        None => r::sink::ResultSink::stdout(),
     };
     let bar = if !args.quiet && std::io::stderr().is_terminal() {
         let b = ProgressBar::new(0);
@@ -64,11 +64,11 @@ pub(crate) fn rig(args: RigArgs) -> Result<ExitCode> {
                 .journal
                 .clone()
                 .unwrap_or_else(|| dir.join(r::JOURNAL_NAME));
-            let journal = r::Journal::open(&journal_path)?;
+            let journal = r::journal::Journal::open(&journal_path)?;
             if let Some(out) = &args.out {
                 journal.reconcile(out)?;
             }
-            let watch = r::WatchOptions {
+            let watch = r::watch::WatchOptions {
                 poll_interval_s: args.poll_interval,
                 max_photos: args.max_photos,
                 idle_exit_s: args.idle_exit,
@@ -78,9 +78,11 @@ pub(crate) fn rig(args: RigArgs) -> Result<ExitCode> {
             {
                 bail!("--idle-exit: must be a number of seconds >= 0, got {s}");
             }
-            Ok(r::watch(dir, &options, &watch, &journal, &sink, &done)?)
+            Ok(r::watch::watch(
+                dir, &options, &watch, &journal, &sink, &done,
+            )?)
         } else {
-            let paths = r::expand_inputs(&args.paths)?;
+            let paths = r::inputs::expand_inputs(&args.paths)?;
             if let Some(b) = &bar {
                 b.set_length(paths.len() as u64);
             }
@@ -100,7 +102,7 @@ pub(crate) fn rig(args: RigArgs) -> Result<ExitCode> {
         b.finish_and_clear();
     }
     if let Some(p) = &args.summary {
-        beadline::core::output::write_text(p, &r::summary_csv(&results)?)?;
+        beadline::core::output::write_text(p, &r::summary::summary_csv(&results)?)?;
     }
     Ok(ExitCode::from(r::exit_status(&results)))
 }
