@@ -7,3 +7,4 @@ pub mod light;
 pub mod output;
 pub mod stats;
 pub mod units;
+pub mod vec2;
