@@ -204,6 +204,36 @@ pub struct PathResult {
 /// Order `spots` into the ball's path (or paths) in time order; see the module documentation.
 pub fn order_path(spots: &[Spot], options: &PathOptions) -> PathResult {
     let limits = Limits::new(options);
+    let (items, spot_index, mut strays) = valid_spots(spots);
+    let tree = SpotTree::new(&items);
+    let sigma_px = finite_median(items.iter().map(|s| s.sigma_px).collect()).unwrap_or(0.0);
+    let mut finder = Finder {
+        items: &items,
+        tree: &tree,
+        taken: vec![false; items.len()],
+        limits,
+        r_ref_px: 1.0,
+        sigma_px,
+    };
+    let start_item = options.start.and_then(|p| {
+        tree.nearest(p.x_px, p.y_px, 1)
+            .first()
+            .map(|neighbour| neighbour.index)
+    });
+    let (chains, short_chain) = build_chains(&mut finder);
+    strays.extend(left_over(&finder, &chains, &short_chain, &spot_index));
+    strays.sort_by_key(|s| s.spot_index);
+    let paths = chains
+        .iter()
+        .map(|chain| finish(chain, &items, &spot_index, start_item))
+        .collect();
+    PathResult { paths, strays }
+}
+
+/// Split `spots` into the valid ones (finite centre, radius and sigma, positive radius,
+/// non-negative sigma) with their indices in `spots`, and the others as
+/// [`StrayReason::Invalid`] strays.
+fn valid_spots(spots: &[Spot]) -> (Vec<Spot>, Vec<usize>, Vec<Stray>) {
     let mut strays = Vec::new();
     let mut items = Vec::new();
     let mut spot_index = Vec::new();
@@ -223,22 +253,12 @@ pub fn order_path(spots: &[Spot], options: &PathOptions) -> PathResult {
             });
         }
     }
-    let tree = SpotTree::new(&items);
-    let sigma_px = finite_median(items.iter().map(|s| s.sigma_px).collect()).unwrap_or(0.0);
-    let mut finder = Finder {
-        items: &items,
-        tree: &tree,
-        taken: vec![false; items.len()],
-        limits,
-        r_ref_px: 1.0,
-        sigma_px,
-    };
-    let start_item = options.start.and_then(|p| {
-        tree.nearest(p.x_px, p.y_px, 1)
-            .first()
-            .map(|neighbour| neighbour.index)
-    });
+    (items, spot_index, strays)
+}
 
+/// The paths' chains, longest first, their spots taken; and the spots of the chain that was
+/// too short to be a path (empty when none was).
+fn build_chains(finder: &mut Finder<'_>) -> (Vec<Chain>, Vec<usize>) {
     let mut chains = Vec::new();
     let mut short_chain = Vec::new();
     while chains.len() < finder.limits.max_paths {
@@ -256,12 +276,24 @@ pub fn order_path(spots: &[Spot], options: &PathOptions) -> PathResult {
         }
     }
     chains.sort_by_key(|c| std::cmp::Reverse(c.nodes.len()));
+    (chains, short_chain)
+}
 
+/// The valid spots on no chain as strays, each with its reason (step 8 of the module
+/// documentation), in the order of the valid spots.
+fn left_over(
+    finder: &Finder<'_>,
+    chains: &[Chain],
+    short_chain: &[usize],
+    spot_index: &[usize],
+) -> Vec<Stray> {
+    let items = finder.items;
     let r_stray_px = chains
         .first()
         .map(|c| c.r_ref_px)
         .or_else(|| finite_median(items.iter().map(|s| s.r_px).collect()))
         .unwrap_or(1.0);
+    let mut strays = Vec::new();
     for (item, s) in items.iter().enumerate() {
         if finder.taken[item] {
             continue;
@@ -280,13 +312,7 @@ pub fn order_path(spots: &[Spot], options: &PathOptions) -> PathResult {
             reason,
         });
     }
-    strays.sort_by_key(|s| s.spot_index);
-
-    let paths = chains
-        .iter()
-        .map(|chain| finish(chain, &items, &spot_index, start_item))
-        .collect();
-    PathResult { paths, strays }
+    strays
 }
 
 /// Options checked and clamped so that any value is safe.
