@@ -7,6 +7,7 @@ pub mod light;
 pub mod output;
 pub mod stats;
 pub mod units;
+pub mod vec2;
 
 /// Version of every JSON document Beadline writes (spots, path, measure, rig lines); raised when
 /// a key changes meaning or goes.

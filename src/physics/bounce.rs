@@ -79,13 +79,13 @@ fn parameters(pre: &ArcFit, post: &ArcFit) -> (Vec<f64>, nalgebra::DMatrix<f64>)
     for f in [&pre.x, &pre.y, &post.x, &post.y] {
         p.extend_from_slice(&f.coefficients);
     }
-    let cov = block_diagonal(&[
+    let covariance = block_diagonal(&[
         &pre.x.covariance,
         &pre.y.covariance,
         &post.x.covariance,
         &post.y.covariance,
     ]);
-    (p, cov)
+    (p, covariance)
 }
 
 /// Where the two arcs cross near the gap between them: (time, centre height, its 1-sigma).
@@ -94,7 +94,7 @@ pub(crate) fn contact_height(
     post: &ArcFit,
     t_gap: (f64, f64),
 ) -> Option<(f64, f64, f64)> {
-    let (p, cov) = parameters(pre, post);
+    let (p, covariance) = parameters(pre, post);
     let mid = 0.5 * (t_gap.0 + t_gap.1);
     let cross = move |p: &[f64]| {
         let d = [p[2] - p[7], p[3] - p[8], p[4] - p[9]];
@@ -107,7 +107,7 @@ pub(crate) fn contact_height(
         (t, poly_value(&p[2..5], t))
     };
     let (t, y) = cross(&p);
-    let sigma = propagate_sigma(|p| cross(p).1, &p, &cov);
+    let sigma = propagate_sigma(|p| cross(p).1, &p, &covariance);
     let window = (t_gap.1 - t_gap.0).abs() + 1e-9;
     (t.is_finite() && y.is_finite() && (t - mid).abs() <= window).then_some((t, y, sigma))
 }
@@ -120,11 +120,11 @@ pub(crate) fn measure_bounce(
     level_m: f64,
     level_sigma_m: f64,
 ) -> Bounce {
-    let (mut p, cov10) = parameters(pre, post);
+    let (mut p, arcs_covariance) = parameters(pre, post);
     p.push(level_m);
     let mut extra = nalgebra::DMatrix::zeros(1, 1);
     extra[(0, 0)] = level_sigma_m * level_sigma_m;
-    let cov = block_diagonal(&[&cov10, &extra]);
+    let covariance = block_diagonal(&[&arcs_covariance, &extra]);
     let state = |p: &[f64]| {
         let t_in = crossings(&p[2..5], p[10]).1;
         let t_out = crossings(&p[7..10], p[10]).0;
@@ -153,15 +153,15 @@ pub(crate) fn measure_bounce(
         t_s: 0.5 * (t_in + t_out),
         x_m: poly_value(&p[0..2], t_in),
         restitution: e(&p),
-        restitution_sigma: propagate_sigma(e, &p, &cov),
+        restitution_sigma: propagate_sigma(e, &p, &covariance),
         impact_speed_mps: v_in[0].hypot(v_in[1]),
         rebound_speed_mps: v_out[0].hypot(v_out[1]),
         impact_normal_speed_mps: v_in[1].abs(),
-        impact_normal_speed_sigma_mps: propagate_sigma(|p| state(p).2[1].abs(), &p, &cov),
+        impact_normal_speed_sigma_mps: propagate_sigma(|p| state(p).2[1].abs(), &p, &covariance),
         impact_velocity_mps: v_in,
         rebound_velocity_mps: v_out,
         tangential_ratio: sideways.then(|| ratio(&p)),
-        tangential_ratio_sigma: sideways.then(|| propagate_sigma(ratio, &p, &cov)),
+        tangential_ratio_sigma: sideways.then(|| propagate_sigma(ratio, &p, &covariance)),
         apex_before_m: h_before,
         apex_after_m: h_after,
         restitution_from_apex: (h_before > 0.0 && h_after > 0.0)

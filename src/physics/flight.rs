@@ -1,9 +1,14 @@
 //! Flight arcs: per arc a weighted straight line x(t) and parabola y(t); a joint fit of several
 //! arcs with one common quadratic coefficient (common acceleration; linear, solved by QR); and an
 //! optional quadratic-drag fit of the arcs by Levenberg-Marquardt on the equations of motion
-//! a = (0, -g) - D |v| v integrated by RK4.
+//! a = (0, -g) - D |v| v integrated by RK4 ([`super::dynamics`]).
+//!
+//! Goes in: the timed path (metres, seconds) and the index ranges of its arcs. Comes out: per
+//! arc its fits (`ArcFit`, crate-internal), the common quadratic coefficient with its sigma,
+//! and a [`DragFit`].
 
 use super::TimedPoint;
+use super::dynamics::{QuadraticDrag, SpeedNorm};
 use super::fit::{
     CovarianceScaling, FitOptions, LmOptions, PolyFit, levenberg_marquardt, linear_least_squares,
     polynomial_fit,
@@ -110,39 +115,6 @@ pub struct DragFit {
 /// Largest RK4 step of the drag model, seconds.
 const DRAG_STEP_S: f64 = 5e-4;
 
-fn accel(v: [f64; 2], g: f64, d: f64) -> [f64; 2] {
-    let s = v[0].hypot(v[1]);
-    [-d * s * v[0], -g - d * s * v[1]]
-}
-
-/// Integrate state (x, y, vx, vy) by `dt` (either sign) with RK4 sub-steps.
-fn advance(mut s: [f64; 4], dt: f64, g: f64, d: f64) -> [f64; 4] {
-    let n = (dt.abs() / DRAG_STEP_S).ceil().max(1.0) as usize;
-    let h = dt / n as f64;
-    let f = |s: [f64; 4]| {
-        let a = accel([s[2], s[3]], g, d);
-        [s[2], s[3], a[0], a[1]]
-    };
-    let add = |s: [f64; 4], k: [f64; 4], c: f64| {
-        [
-            s[0] + c * k[0],
-            s[1] + c * k[1],
-            s[2] + c * k[2],
-            s[3] + c * k[3],
-        ]
-    };
-    for _ in 0..n {
-        let k1 = f(s);
-        let k2 = f(add(s, k1, h / 2.0));
-        let k3 = f(add(s, k2, h / 2.0));
-        let k4 = f(add(s, k3, h));
-        for i in 0..4 {
-            s[i] += h / 6.0 * (k1[i] + 2.0 * k2[i] + 2.0 * k3[i] + k4[i]);
-        }
-    }
-    s
-}
-
 /// Joint drag fit of the flight arcs: per arc the state at its mean time (4 parameters), a common
 /// drag coefficient and, when `gravity` is None, a common gravity. Starts from the vacuum fits.
 pub(crate) fn fit_drag(
@@ -168,6 +140,11 @@ pub(crate) fn fit_drag(
     let residuals = |p: &[f64]| {
         let d = p[4 * na];
         let g = gravity.unwrap_or_else(|| p.get(4 * na + 1).copied().unwrap_or(vacuum_gravity));
+        let dynamics = QuadraticDrag {
+            gravity_mps2: g,
+            drag_per_m: d,
+            speed: SpeedNorm::Hypot,
+        };
         let mut out = Vec::new();
         for (k, a) in arcs.iter().enumerate() {
             let s0 = [p[4 * k], p[4 * k + 1], p[4 * k + 2], p[4 * k + 3]];
@@ -177,13 +154,13 @@ pub(crate) fn fit_drag(
             let split = pts.partition_point(|q| q.t_s < refs[k]);
             let (mut s, mut t) = (s0, refs[k]);
             for i in split..pts.len() {
-                s = advance(s, pts[i].t_s - t, g, d);
+                s = dynamics.advance(s, pts[i].t_s - t, DRAG_STEP_S);
                 t = pts[i].t_s;
                 model[i] = [s[0], s[1]];
             }
             let (mut s, mut t) = (s0, refs[k]);
             for i in (0..split).rev() {
-                s = advance(s, pts[i].t_s - t, g, d);
+                s = dynamics.advance(s, pts[i].t_s - t, DRAG_STEP_S);
                 t = pts[i].t_s;
                 model[i] = [s[0], s[1]];
             }

@@ -159,7 +159,7 @@ pub(crate) fn launch(points: &[TimedPoint], inc: &InclineFit, arc: &ArcFit) -> L
     for f in [&inc.x, &inc.y, &arc.x, &arc.y] {
         p.extend_from_slice(&f.coefficients);
     }
-    let cov = block_diagonal(&[
+    let covariance = block_diagonal(&[
         &inc.x.covariance,
         &inc.y.covariance,
         &arc.x.covariance,
@@ -180,14 +180,14 @@ pub(crate) fn launch(points: &[TimedPoint], inc: &InclineFit, arc: &ArcFit) -> L
     };
     Launch {
         t_s: t,
-        t_sigma_s: propagate_sigma(|p| velocity(p).0, &p, &cov),
+        t_sigma_s: propagate_sigma(|p| velocity(p).0, &p, &covariance),
         x_m: poly_value(&arc.x.coefficients, t),
         y_m: poly_value(&arc.y.coefficients, t),
         velocity_mps: v,
         speed_mps: v[0].hypot(v[1]),
-        speed_sigma_mps: propagate_sigma(speed, &p, &cov),
+        speed_sigma_mps: propagate_sigma(speed, &p, &covariance),
         angle_deg: v[1].atan2(v[0]).to_degrees(),
-        angle_sigma_deg: propagate_sigma(angle, &p, &cov),
+        angle_sigma_deg: propagate_sigma(angle, &p, &covariance),
     }
 }
 
@@ -250,7 +250,7 @@ pub(crate) fn incline_result(
         inc.angle_sigma_rad.powi(2),
         g_sigma * g_sigma,
     ]));
-    let cov = block_diagonal(&[&inc.along.covariance, &extra]);
+    let covariance = block_diagonal(&[&inc.along.covariance, &extra]);
     let loss = |p: &[f64]| (p[3].sin() - 2.0 * p[2] * (1.0 + k) / p[4]) / p[3].cos();
     InclineResult {
         first_n: points[inc.range.start].n,
@@ -261,13 +261,13 @@ pub(crate) fn incline_result(
         accel_mps2: accel,
         accel_sigma_mps2: 2.0 * inc.along.sigma(2),
         end_speed_mps: end_speed,
-        end_speed_sigma_mps: propagate_sigma(|p| poly_slope(&p[..3], t_launch_s), &p, &cov),
+        end_speed_sigma_mps: propagate_sigma(|p| poly_slope(&p[..3], t_launch_s), &p, &covariance),
         rest_t_s: rest_t,
         drop_height_m: drop,
         inertia_factor: k,
         ideal_accel_mps2: g * st / (1.0 + k),
         ideal_end_speed_mps: (2.0 * g * drop.max(0.0) / (1.0 + k)).sqrt(),
         rolling_loss: loss(&p),
-        rolling_loss_sigma: propagate_sigma(loss, &p, &cov),
+        rolling_loss_sigma: propagate_sigma(loss, &p, &covariance),
     }
 }

@@ -7,17 +7,20 @@
 //! missing flashes leave gaps), the ball radius and [`MeasureOptions`]. Comes out: a
 //! [`Measurement`] (serialisable).
 //!
-//! Steps: split the path into phases ([`phases`]); unless the camera is declared level, estimate
-//! the direction of "down" from the common acceleration vector of the flight arcs (joint fit of x
-//! and y parabolas with shared quadratic coefficients) and rotate the frame to correct the roll;
-//! fit the flight arcs jointly with one common quadratic coefficient c, whose value
-//! -2c = g_apparent ties gravity, flash interval and scale (a length scale s and time scale dt
-//! enter as g dt^2 s / 2 in pixels per flash^2), so given any two the third is estimated and the
-//! path rescaled; then fit each arc ([`flight`]), the bounces ([`bounce`]), the incline and the
-//! launch ([`incline`]), the optional drag model, and check acceptance [`bands`].
+//! Steps (see [`measure`]): split the path into phases ([`phases`]); unless the camera is
+//! declared level, estimate the direction of "down" from the common acceleration vector of the
+//! flight arcs (joint fit of x and y parabolas with shared quadratic coefficients) and rotate the
+//! frame to correct the roll; fit the flight arcs jointly with one common quadratic coefficient
+//! c, whose value -2c = g_apparent ties gravity, flash interval and scale (a length scale s and
+//! time scale dt enter as g dt^2 s / 2 in pixels per flash^2), so given any two the third is
+//! estimated and the path rescaled (module `calibration`); then fit each arc ([`flight`]), the
+//! bounces ([`bounce`]), the incline and the launch ([`incline`]), the optional drag model
+//! ([`flight`], [`dynamics`]), and check acceptance [`bands`].
 
 pub mod bands;
 pub mod bounce;
+mod calibration;
+pub mod dynamics;
 pub mod fit;
 pub mod flight;
 pub mod incline;
@@ -29,9 +32,11 @@ use crate::core::units::STANDARD_GRAVITY_MPS2;
 use crate::error::{Error, Result};
 use bands::{Band, Verdict};
 use bounce::Bounce;
+use calibration::Calibration;
 use fit::{CovarianceScaling, FitOptions, polynomial_fit};
 use flight::{ArcFit, DragFit};
 use incline::{InclineResult, Launch};
+use phases::Segmentation;
 use serde::{Deserialize, Serialize};
 use std::ops::Range;
 use std::path::{Path, PathBuf};
@@ -280,6 +285,8 @@ fn fail(options: &MeasureOptions, what: &str, e: Error) -> Error {
     Error::measure(&options.source, format!("{what}: {message}"))
 }
 
+/// Check the input: at least 6 points, finite, positive sigmas, increasing times, a positive
+/// radius and gravity, and a nominal scale when the scale is estimated.
 fn validate(points: &[TimedPoint], radius_m: f64, options: &MeasureOptions) -> Result<()> {
     let src: &Path = &options.source;
     if points.len() < 6 {
@@ -333,363 +340,69 @@ fn validate(points: &[TimedPoint], radius_m: f64, options: &MeasureOptions) -> R
     Ok(())
 }
 
-/// Arcs of a segmentation with their fits (None when too short) and whether each is a flight arc.
-fn fit_arcs(
-    points: &[TimedPoint],
-    arcs: &[Range<usize>],
-    g: f64,
-    cov: CovarianceScaling,
-) -> Vec<(Option<ArcFit>, bool)> {
-    arcs.iter()
-        .map(|r| {
-            let fit = if r.len() >= 3 {
-                flight::fit_arc(points, r.clone(), cov).ok()
-            } else {
-                None
-            };
-            let flying = fit
-                .as_ref()
-                .is_some_and(|f| 2.0 * f.y.coefficients[2] < -0.5 * g);
-            (fit, flying)
-        })
-        .collect()
-}
-
-fn flight_ranges(fits: &[(Option<ArcFit>, bool)]) -> Vec<Range<usize>> {
-    fits.iter()
-        .filter(|(f, flying)| *flying && f.as_ref().is_some_and(|f| f.range.len() >= 4))
-        .filter_map(|(f, _)| f.as_ref().map(|f| f.range.clone()))
-        .collect()
-}
-
-/// Split the path, fit every arc and keep the flight arcs.
-fn segment_flights(pts: &[TimedPoint], g_hint: f64, cov: CovarianceScaling) -> Vec<Range<usize>> {
-    let seg = phases::segment(pts, g_hint);
-    flight_ranges(&fit_arcs(pts, &seg.arcs, g_hint, cov))
-}
-
 /// Measure the physics of a timed path for a ball of radius `radius_m`.
+///
+/// The steps, in order: check the input; segment the path as given and estimate the roll from
+/// its flight arcs; level the path (unless the camera is declared level or drag is fitted) and
+/// segment it again; estimate the calibration unknown from the levelled flight arcs and rescale
+/// the path; segment the calibrated path with the calibrated gravity for the final phases and
+/// arcs; then the floor and the bounces, the restitution trend, the incline and the launch, the
+/// optional drag fit and the acceptance verdicts.
 pub fn measure(
     points: &[TimedPoint],
     radius_m: f64,
     options: &MeasureOptions,
 ) -> Result<Measurement> {
     validate(points, radius_m, options)?;
-    let cov = options.covariance;
-    let g_hint = options.gravity.value;
     let mut pts = points.to_vec();
+    let (level, flights) = level_path(&mut pts, options)?;
+    let calibration = calibration::calibrate(&mut pts, points, &flights, options)?;
+    let g = calibration.gravity.value;
+    let units = UnitSigmas::of(&calibration);
 
-    // Level: direction of the common acceleration of the flight arcs.
-    let flights = segment_flights(&pts, g_hint, cov);
-    if flights.is_empty() {
-        return Err(Error::measure(
-            &options.source,
-            "no flight arc with 4 or more points: nothing to measure",
-        ));
-    }
-    let roll = {
-        let ax = flight::joint_quadratic(&pts, &flights, |p| p.x_m, cov);
-        let ay = flight::joint_quadratic(&pts, &flights, |p| p.y_m, cov);
-        match (ax, ay) {
-            (Ok((cx, sx)), Ok((cy, sy))) => {
-                let rho = (-cx).atan2(-cy);
-                let r2 = cx * cx + cy * cy;
-                let sigma = ((cy * sx).powi(2) + (cx * sy).powi(2)).sqrt() / r2;
-                Some((rho, sigma))
-            }
-            _ => None,
-        }
-    };
-    // With a drag fit the acceleration also has a horizontal part (drag), so its direction is
-    // not "down": the roll is reported but not corrected from it.
-    let correct_roll = !options.camera_level && !options.fit_drag;
-    if let (true, Some((rho, _))) = (correct_roll, roll) {
-        let (s, c) = rho.sin_cos();
-        for p in &mut pts {
-            let (x, y) = (p.x_m, p.y_m);
-            p.x_m = c * x - s * y;
-            p.y_m = s * x + c * y;
-        }
-    }
-
-    // Calibration unknown from the common curvature of the flight arcs (again, in the levelled
-    // frame).
-    let flights = segment_flights(&pts, g_hint, cov);
-    if flights.is_empty() {
-        return Err(Error::measure(
-            &options.source,
-            "no flight arc after the level correction",
-        ));
-    }
-    let (c2, c2_sigma) = flight::joint_quadratic(&pts, &flights, |p| p.y_m, cov)
-        .map_err(|e| fail(options, "joint fit of the flight arcs", e))?;
-    let g_app = -2.0 * c2;
-    let g_app_sigma = 2.0 * c2_sigma;
-    if g_app.is_nan() || g_app <= 0.0 {
-        return Err(Error::measure(
-            &options.source,
-            "the flight arcs do not fall",
-        ));
-    }
-    let interval_nominal = options.interval.clone().unwrap_or_else(|| {
-        let mut r: Vec<f64> = points
-            .iter()
-            .filter(|p| p.n > 0)
-            .map(|p| p.t_s / p.n as f64)
-            .collect();
-        r.sort_by(f64::total_cmp);
-        Quantity::new(
-            r.get(r.len() / 2).copied().unwrap_or(f64::NAN),
-            0.0,
-            "given",
-        )
-    });
-    let scale_nominal = options
-        .scale
-        .clone()
-        .unwrap_or_else(|| Quantity::new(f64::NAN, f64::NAN, "not given"));
-    let arcs_word = format!("estimated from {} flight arcs", flights.len());
-    let rel_g = g_app_sigma / g_app;
-    // The arcs' curvature is in metres per flash interval squared: the given scale's and
-    // interval's own uncertainties pass into what is estimated from it.
-    let rel_scale = scale_nominal.relative_sigma();
-    let rel_interval = interval_nominal.relative_sigma();
-    let (gravity, interval, scale) = match options.unknown {
-        Unknown::Gravity => {
-            let rel = (rel_g.powi(2) + rel_scale.powi(2) + (2.0 * rel_interval).powi(2)).sqrt();
-            (
-                Quantity::new(g_app, g_app * rel, arcs_word),
-                interval_nominal,
-                scale_nominal,
-            )
-        }
-        Unknown::Interval => {
-            let tau = (g_app / g_hint).sqrt();
-            for p in &mut pts {
-                p.t_s *= tau;
-            }
-            let v = interval_nominal.value * tau;
-            let rel =
-                (rel_g.powi(2) + options.gravity.relative_sigma().powi(2) + rel_scale.powi(2))
-                    .sqrt()
-                    / 2.0;
-            (
-                options.gravity.clone(),
-                Quantity::new(v, v * rel, arcs_word),
-                scale_nominal,
-            )
-        }
-        Unknown::Scale => {
-            let lambda = g_hint / g_app;
-            for p in &mut pts {
-                p.x_m *= lambda;
-                p.y_m *= lambda;
-                p.sigma_m *= lambda;
-            }
-            let v = scale_nominal.value / lambda;
-            let rel = (rel_g.powi(2)
-                + options.gravity.relative_sigma().powi(2)
-                + (2.0 * rel_interval).powi(2))
-            .sqrt();
-            (
-                options.gravity.clone(),
-                interval_nominal,
-                Quantity::new(v, v * rel, arcs_word),
-            )
-        }
-    };
-    let g = gravity.value;
-    // Relative sigmas of length and time units, added in quadrature to speeds and accelerations.
-    let (rel_len, rel_time) = (scale.relative_sigma(), interval.relative_sigma());
-    let widen = |v: f64, s: f64, time_power: f64| {
-        (s * s + (v * rel_len).powi(2) + (v * time_power * rel_time).powi(2)).sqrt()
-    };
-
-    // Final phases and fits.
-    let seg = phases::segment(&pts, g);
-    let fits = fit_arcs(&pts, &seg.arcs, g, cov);
-    let mut phases_out = Vec::new();
-    let span = |kind, r: &Range<usize>| PhaseSpan {
-        kind,
-        first_n: pts[r.start].n,
-        last_n: pts[r.end - 1].n,
-        t_start_s: pts[r.start].t_s,
-        t_end_s: pts[r.end - 1].t_s,
-    };
-    let incline_fit = match &seg.incline {
-        Some(r) => {
-            phases_out.push(span(PhaseKind::Incline, r));
-            Some(
-                incline::fit_incline(&pts, r.clone(), cov)
-                    .map_err(|e| fail(options, "incline", e))?,
-            )
-        }
+    let seg = Segmentation::new(&pts, g, options.covariance);
+    let incline_fit = match &seg.segments.incline {
+        Some(r) => Some(
+            incline::fit_incline(&pts, r.clone(), options.covariance)
+                .map_err(|e| fail(options, "incline", e))?,
+        ),
         None => None,
     };
-    let mut arcs_out = Vec::new();
-    for (r, (fit, flying)) in seg.arcs.iter().zip(&fits) {
-        let kind = if *flying {
-            PhaseKind::Flight
-        } else {
-            PhaseKind::Floor
-        };
-        phases_out.push(span(kind, r));
-        if let Some(f) = fit {
-            arcs_out.push(ArcResult {
-                kind,
-                first_n: pts[r.start].n,
-                last_n: pts[r.end - 1].n,
-                vx_mps: f.x.coefficients[1],
-                accel_y_mps2: 2.0 * f.y.coefficients[2],
-                accel_y_sigma_mps2: 2.0 * f.y.sigma(2),
-                rms_residual_m: (0.5 * (f.x.rms_residual.powi(2) + f.y.rms_residual.powi(2)))
-                    .sqrt(),
-                reduced_chi_square: f.chi_square() / (f.x.dof + f.y.dof).max(1) as f64,
-            });
-        }
-    }
-
-    // Bounces: consecutive fitted flight arcs.
-    let pairs: Vec<(usize, &ArcFit, &ArcFit)> = fits
-        .windows(2)
-        .enumerate()
-        .filter_map(|(k, w)| match (&w[0], &w[1]) {
-            ((Some(a), true), (Some(b), true)) => Some((k, a, b)),
-            _ => None,
-        })
-        .collect();
-    let contacts: Vec<(f64, f64, f64)> = pairs
-        .iter()
-        .filter_map(|(_, a, b)| {
-            let gap = (pts[a.range.end - 1].t_s, pts[b.range.start].t_s);
-            bounce::contact_height(a, b, gap)
-        })
-        .collect();
-    let floor = match options.floor_y_m {
-        Some(y) => FloorLine {
-            y_m: y,
-            sigma_m: 0.0,
-            source: "given".into(),
-        },
-        None => {
-            let w: Vec<f64> = contacts
-                .iter()
-                .map(|c| 1.0 / c.2.max(1e-12).powi(2))
-                .collect();
-            let sw: f64 = w.iter().sum();
-            if contacts.is_empty() || sw.is_nan() || sw <= 0.0 {
-                FloorLine {
-                    y_m: f64::NAN,
-                    sigma_m: f64::NAN,
-                    source: "no bounce: not estimated".into(),
-                }
-            } else {
-                let mean = contacts.iter().zip(&w).map(|(c, w)| c.1 * w).sum::<f64>() / sw;
-                let chi2: f64 = contacts
-                    .iter()
-                    .zip(&w)
-                    .map(|(c, w)| (c.1 - mean).powi(2) * w)
-                    .sum();
-                let inflate = if contacts.len() > 1 {
-                    (chi2 / (contacts.len() - 1) as f64).max(1.0)
-                } else {
-                    1.0
-                };
-                FloorLine {
-                    y_m: mean - radius_m,
-                    sigma_m: (inflate / sw).sqrt(),
-                    source: format!("contact heights of {} bounces", contacts.len()),
-                }
-            }
-        }
-    };
-    let mut bounces = Vec::new();
-    if floor.y_m.is_finite() {
-        for (k, a, b) in &pairs {
-            let mut bo = bounce::measure_bounce(a, b, floor.y_m + radius_m, floor.sigma_m);
-            bo.impact_normal_speed_sigma_mps = widen(
-                bo.impact_normal_speed_mps,
-                bo.impact_normal_speed_sigma_mps,
-                1.0,
-            );
-            let before = &seg.arcs[*k];
-            let after = &seg.arcs[k + 1];
-            phases_out.push(PhaseSpan {
-                kind: PhaseKind::Bounce,
-                first_n: pts[before.end - 1].n,
-                last_n: pts[after.start].n,
-                t_start_s: bo.t_s,
-                t_end_s: bo.t_s,
-            });
-            bounces.push(bo);
-        }
-    }
+    let (mut phases_out, arcs_out) = arc_phases(&pts, &seg);
+    let pairs = bounce_pairs(&seg);
+    let floor = floor_line(&pts, &pairs, radius_m, options.floor_y_m);
+    let (bounces, bounce_phases) = measure_bounces(&pts, &seg, &pairs, &floor, radius_m, &units);
+    phases_out.extend(bounce_phases);
     phases_out.sort_by(|a, b| a.t_start_s.total_cmp(&b.t_start_s));
-
-    let restitution_trend = if bounces.len() >= 2 {
-        let v: Vec<f64> = bounces.iter().map(|b| b.impact_normal_speed_mps).collect();
-        let e: Vec<f64> = bounces.iter().map(|b| b.restitution).collect();
-        let s: Vec<f64> = bounces
-            .iter()
-            .map(|b| b.restitution_sigma.max(1e-12))
-            .collect();
-        polynomial_fit(
-            &v,
-            &e,
-            Some(&s),
-            1,
-            &FitOptions {
-                covariance: CovarianceScaling::Sigmas,
-            },
-        )
-        .ok()
-        .map(|f| RestitutionTrend {
-            slope_s_per_m: f.coefficients[1],
-            slope_sigma_s_per_m: f.sigma(1),
-            intercept: f.coefficients[0],
-            intercept_sigma: f.sigma(0),
-            bounces: bounces.len(),
-        })
-    } else {
-        None
-    };
-
-    let k = inertia_factor(options.build, options.inner_ratio);
-    let (launch, incline_out) = match (&incline_fit, fits.first()) {
-        (Some(inc), Some((Some(arc), true))) => {
-            let mut l = incline::launch(&pts, inc, arc);
-            l.speed_sigma_mps = widen(l.speed_mps, l.speed_sigma_mps, 1.0);
-            let mut r = incline::incline_result(&pts, inc, l.t_s, g, gravity.sigma, k);
-            r.accel_sigma_mps2 = widen(r.accel_mps2, r.accel_sigma_mps2, 2.0);
-            r.end_speed_sigma_mps = widen(r.end_speed_mps, r.end_speed_sigma_mps, 1.0);
-            (Some(l), Some(r))
-        }
-        _ => (None, None),
-    };
-
+    let restitution_trend = restitution_trend(&bounces);
+    let (launch, incline_out) = launch_and_incline(
+        &pts,
+        &seg,
+        incline_fit.as_ref(),
+        &calibration,
+        &units,
+        options,
+    );
     let drag = if options.fit_drag {
-        let flying: Vec<ArcFit> = fits
-            .iter()
-            .filter(|(f, fl)| *fl && f.as_ref().is_some_and(|f| f.range.len() >= 4))
-            .filter_map(|(f, _)| f.clone())
-            .collect();
+        let flying: Vec<ArcFit> = seg.flight_fits().cloned().collect();
         let held = (options.unknown != Unknown::Gravity).then_some(g);
         Some(
-            flight::fit_drag(&pts, &flying, held, g, cov)
+            flight::fit_drag(&pts, &flying, held, g, options.covariance)
                 .map_err(|e| fail(options, "drag fit", e))?,
         )
     } else {
         None
     };
 
+    let Calibration {
+        gravity,
+        interval,
+        scale,
+    } = calibration;
     let mut m = Measurement {
         schema_version: SCHEMA_VERSION,
         phases: phases_out,
-        level: Level {
-            roll_deg: roll.map(|r| r.0.to_degrees()),
-            roll_sigma_deg: roll.map(|r| r.1.to_degrees()),
-            corrected: correct_roll && roll.is_some(),
-        },
+        level,
         gravity_mps2: gravity,
         flash_interval_s: interval,
         scale_px_per_m: scale,
@@ -704,4 +417,271 @@ pub fn measure(
     };
     m.verdicts = options.bands.iter().map(|b| b.judge(&m)).collect();
     Ok(m)
+}
+
+/// Level the path: segment `pts` as given with the nominal gravity, estimate the camera roll
+/// from its flight arcs and, unless the camera is declared level or drag is fitted, rotate `pts`
+/// into the level frame and segment it again there.
+///
+/// Comes out: the [`Level`] report and the flight arcs of the (levelled) path. When the path
+/// was not rotated its first segmentation is the one of the levelled path and is reused. An
+/// error when there is no flight arc of 4 or more points before or after the correction.
+fn level_path(
+    pts: &mut [TimedPoint],
+    options: &MeasureOptions,
+) -> Result<(Level, Vec<Range<usize>>)> {
+    let g_hint = options.gravity.value;
+    let flights = Segmentation::new(pts, g_hint, options.covariance).flight_ranges();
+    if flights.is_empty() {
+        return Err(Error::measure(
+            &options.source,
+            "no flight arc with 4 or more points: nothing to measure",
+        ));
+    }
+    let roll = calibration::estimate_roll(pts, &flights, options.covariance);
+    // With a drag fit the acceleration also has a horizontal part (drag), so its direction is
+    // not "down": the roll is reported but not corrected from it.
+    let correct_roll = !options.camera_level && !options.fit_drag;
+    let flights = match (correct_roll, roll) {
+        (true, Some((rho, _))) => {
+            calibration::level(pts, rho);
+            let levelled = Segmentation::new(pts, g_hint, options.covariance).flight_ranges();
+            if levelled.is_empty() {
+                return Err(Error::measure(
+                    &options.source,
+                    "no flight arc after the level correction",
+                ));
+            }
+            levelled
+        }
+        _ => flights,
+    };
+    let level = Level {
+        roll_deg: roll.map(|r| r.0.to_degrees()),
+        roll_sigma_deg: roll.map(|r| r.1.to_degrees()),
+        corrected: correct_roll && roll.is_some(),
+    };
+    Ok((level, flights))
+}
+
+/// Relative 1-sigma of the length unit (scale) and the time unit (interval), added in
+/// quadrature to the sigmas of speeds and accelerations.
+struct UnitSigmas {
+    rel_len: f64,
+    rel_time: f64,
+}
+
+impl UnitSigmas {
+    fn of(calibration: &Calibration) -> UnitSigmas {
+        let (rel_len, rel_time) = calibration.unit_sigmas();
+        UnitSigmas { rel_len, rel_time }
+    }
+
+    /// The 1-sigma `s` of a value `v` whose unit is length / time^`time_power`, widened by the
+    /// units' own uncertainties.
+    fn widen(&self, v: f64, s: f64, time_power: f64) -> f64 {
+        (s * s + (v * self.rel_len).powi(2) + (v * time_power * self.rel_time).powi(2)).sqrt()
+    }
+}
+
+/// The phase span of `pts[r]`.
+fn span(pts: &[TimedPoint], kind: PhaseKind, r: &Range<usize>) -> PhaseSpan {
+    PhaseSpan {
+        kind,
+        first_n: pts[r.start].n,
+        last_n: pts[r.end - 1].n,
+        t_start_s: pts[r.start].t_s,
+        t_end_s: pts[r.end - 1].t_s,
+    }
+}
+
+/// The phases of the final segmentation `seg` of `pts` (the incline when found, then every arc
+/// as flight or floor) and the result of every fitted arc, both in time order.
+fn arc_phases(pts: &[TimedPoint], seg: &Segmentation) -> (Vec<PhaseSpan>, Vec<ArcResult>) {
+    let mut phases_out = Vec::new();
+    if let Some(r) = &seg.segments.incline {
+        phases_out.push(span(pts, PhaseKind::Incline, r));
+    }
+    let mut arcs_out = Vec::new();
+    for (r, (fit, flying)) in seg.segments.arcs.iter().zip(&seg.fits) {
+        let kind = if *flying {
+            PhaseKind::Flight
+        } else {
+            PhaseKind::Floor
+        };
+        phases_out.push(span(pts, kind, r));
+        if let Some(f) = fit {
+            arcs_out.push(ArcResult {
+                kind,
+                first_n: pts[r.start].n,
+                last_n: pts[r.end - 1].n,
+                vx_mps: f.x.coefficients[1],
+                accel_y_mps2: 2.0 * f.y.coefficients[2],
+                accel_y_sigma_mps2: 2.0 * f.y.sigma(2),
+                rms_residual_m: (0.5 * (f.x.rms_residual.powi(2) + f.y.rms_residual.powi(2)))
+                    .sqrt(),
+                reduced_chi_square: f.chi_square() / (f.x.dof + f.y.dof).max(1) as f64,
+            });
+        }
+    }
+    (phases_out, arcs_out)
+}
+
+/// Consecutive fitted flight arcs of `seg`: (index of the first arc, its fit, the next arc's
+/// fit). A bounce lies between each pair.
+fn bounce_pairs(seg: &Segmentation) -> Vec<(usize, &ArcFit, &ArcFit)> {
+    seg.fits
+        .windows(2)
+        .enumerate()
+        .filter_map(|(k, w)| match (&w[0], &w[1]) {
+            ((Some(a), true), (Some(b), true)) => Some((k, a, b)),
+            _ => None,
+        })
+        .collect()
+}
+
+/// The floor line: the given height, or the weighted mean contact height of the bounce `pairs`
+/// less the radius, its sigma inflated by the scatter of the contacts (reduced chi-square, at
+/// least 1). NaN without a usable contact.
+fn floor_line(
+    pts: &[TimedPoint],
+    pairs: &[(usize, &ArcFit, &ArcFit)],
+    radius_m: f64,
+    given_y_m: Option<f64>,
+) -> FloorLine {
+    if let Some(y) = given_y_m {
+        return FloorLine {
+            y_m: y,
+            sigma_m: 0.0,
+            source: "given".into(),
+        };
+    }
+    let contacts: Vec<(f64, f64, f64)> = pairs
+        .iter()
+        .filter_map(|(_, a, b)| {
+            let gap = (pts[a.range.end - 1].t_s, pts[b.range.start].t_s);
+            bounce::contact_height(a, b, gap)
+        })
+        .collect();
+    let w: Vec<f64> = contacts
+        .iter()
+        .map(|c| 1.0 / c.2.max(1e-12).powi(2))
+        .collect();
+    let sw: f64 = w.iter().sum();
+    if contacts.is_empty() || sw.is_nan() || sw <= 0.0 {
+        return FloorLine {
+            y_m: f64::NAN,
+            sigma_m: f64::NAN,
+            source: "no bounce: not estimated".into(),
+        };
+    }
+    let mean = contacts.iter().zip(&w).map(|(c, w)| c.1 * w).sum::<f64>() / sw;
+    let chi2: f64 = contacts
+        .iter()
+        .zip(&w)
+        .map(|(c, w)| (c.1 - mean).powi(2) * w)
+        .sum();
+    let inflate = if contacts.len() > 1 {
+        (chi2 / (contacts.len() - 1) as f64).max(1.0)
+    } else {
+        1.0
+    };
+    FloorLine {
+        y_m: mean - radius_m,
+        sigma_m: (inflate / sw).sqrt(),
+        source: format!("contact heights of {} bounces", contacts.len()),
+    }
+}
+
+/// Every bounce between the arc `pairs` of `seg` against the `floor` (none when the floor is
+/// unknown), the impact speed's sigma widened by the units', with a bounce phase for each.
+fn measure_bounces(
+    pts: &[TimedPoint],
+    seg: &Segmentation,
+    pairs: &[(usize, &ArcFit, &ArcFit)],
+    floor: &FloorLine,
+    radius_m: f64,
+    units: &UnitSigmas,
+) -> (Vec<Bounce>, Vec<PhaseSpan>) {
+    let mut bounces = Vec::new();
+    let mut phases_out = Vec::new();
+    if !floor.y_m.is_finite() {
+        return (bounces, phases_out);
+    }
+    for (k, a, b) in pairs {
+        let mut bo = bounce::measure_bounce(a, b, floor.y_m + radius_m, floor.sigma_m);
+        bo.impact_normal_speed_sigma_mps = units.widen(
+            bo.impact_normal_speed_mps,
+            bo.impact_normal_speed_sigma_mps,
+            1.0,
+        );
+        let before = &seg.segments.arcs[*k];
+        let after = &seg.segments.arcs[k + 1];
+        phases_out.push(PhaseSpan {
+            kind: PhaseKind::Bounce,
+            first_n: pts[before.end - 1].n,
+            last_n: pts[after.start].n,
+            t_start_s: bo.t_s,
+            t_end_s: bo.t_s,
+        });
+        bounces.push(bo);
+    }
+    (bounces, phases_out)
+}
+
+/// Restitution against normal impact speed: a weighted straight line through the bounces
+/// (their restitution sigmas as weights); None under two bounces or when the fit fails.
+fn restitution_trend(bounces: &[Bounce]) -> Option<RestitutionTrend> {
+    if bounces.len() < 2 {
+        return None;
+    }
+    let v: Vec<f64> = bounces.iter().map(|b| b.impact_normal_speed_mps).collect();
+    let e: Vec<f64> = bounces.iter().map(|b| b.restitution).collect();
+    let s: Vec<f64> = bounces
+        .iter()
+        .map(|b| b.restitution_sigma.max(1e-12))
+        .collect();
+    polynomial_fit(
+        &v,
+        &e,
+        Some(&s),
+        1,
+        &FitOptions {
+            covariance: CovarianceScaling::Sigmas,
+        },
+    )
+    .ok()
+    .map(|f| RestitutionTrend {
+        slope_s_per_m: f.coefficients[1],
+        slope_sigma_s_per_m: f.sigma(1),
+        intercept: f.coefficients[0],
+        intercept_sigma: f.sigma(0),
+        bounces: bounces.len(),
+    })
+}
+
+/// The launch off the incline and the incline against ideal rolling, when the path has an
+/// incline followed by a fitted flight arc; speeds' and the acceleration's sigmas widened by the
+/// units'.
+fn launch_and_incline(
+    pts: &[TimedPoint],
+    seg: &Segmentation,
+    incline_fit: Option<&incline::InclineFit>,
+    calibration: &Calibration,
+    units: &UnitSigmas,
+    options: &MeasureOptions,
+) -> (Option<Launch>, Option<InclineResult>) {
+    let k = inertia_factor(options.build, options.inner_ratio);
+    let gravity = &calibration.gravity;
+    match (incline_fit, seg.fits.first()) {
+        (Some(inc), Some((Some(arc), true))) => {
+            let mut l = incline::launch(pts, inc, arc);
+            l.speed_sigma_mps = units.widen(l.speed_mps, l.speed_sigma_mps, 1.0);
+            let mut r = incline::incline_result(pts, inc, l.t_s, gravity.value, gravity.sigma, k);
+            r.accel_sigma_mps2 = units.widen(r.accel_mps2, r.accel_sigma_mps2, 2.0);
+            r.end_speed_sigma_mps = units.widen(r.end_speed_mps, r.end_speed_sigma_mps, 1.0);
+            (Some(l), Some(r))
+        }
+        _ => (None, None),
+    }
 }

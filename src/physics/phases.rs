@@ -1,5 +1,8 @@
 //! Phases: split the timed path into the incline (if any) and the flight arcs between bounces.
 //!
+//! Goes in: the timed path and the nominal gravity (for the thresholds). Comes out: the incline
+//! range and the arc ranges (`Segments`), and with every arc's vacuum fit a `Segmentation`.
+//!
 //! Method (ours): a bounce reverses the vertical velocity between two flashes, so the second
 //! divided difference of y (an acceleration estimate from three neighbouring points) jumps to a
 //! large positive value there, where free flight gives -g and rolling gives about zero or a small
@@ -12,7 +15,8 @@
 //! than 25 against one flight arc for the whole segment and its acceleration is below 0.8 g.
 
 use super::TimedPoint;
-use super::flight::flight_chi_square;
+use super::fit::CovarianceScaling;
+use super::flight::{ArcFit, fit_arc, flight_chi_square};
 use super::incline::incline_model;
 use std::ops::Range;
 
@@ -25,6 +29,62 @@ const INCLINE_DELTA_CHI2: f64 = 25.0;
 pub(crate) struct Segments {
     pub incline: Option<Range<usize>>,
     pub arcs: Vec<Range<usize>>,
+}
+
+/// A segmentation with the vacuum fit of every arc: what [`segment`] finds, fitted.
+///
+/// `measure` segments three times, each time on different inputs: the path as given (to
+/// estimate the roll), the levelled path (only when the roll was corrected; otherwise the first
+/// segmentation is reused) and the calibrated path with the calibrated gravity (the final
+/// phases). Every one is made by [`Segmentation::new`].
+#[derive(Debug, Clone)]
+pub(crate) struct Segmentation {
+    /// The split.
+    pub segments: Segments,
+    /// Per arc of `segments.arcs`: its fit (None under 3 points or when the fit fails) and
+    /// whether it is a flight arc (its vertical acceleration is below -g / 2).
+    pub fits: Vec<(Option<ArcFit>, bool)>,
+}
+
+impl Segmentation {
+    /// Split `points` with the nominal gravity `gravity_mps2` (for the thresholds and the flight
+    /// test) and fit every arc with the given covariance scaling.
+    pub fn new(
+        points: &[TimedPoint],
+        gravity_mps2: f64,
+        covariance: CovarianceScaling,
+    ) -> Segmentation {
+        let segments = segment(points, gravity_mps2);
+        let fits = segments
+            .arcs
+            .iter()
+            .map(|r| {
+                let fit = if r.len() >= 3 {
+                    fit_arc(points, r.clone(), covariance).ok()
+                } else {
+                    None
+                };
+                let flying = fit
+                    .as_ref()
+                    .is_some_and(|f| 2.0 * f.y.coefficients[2] < -0.5 * gravity_mps2);
+                (fit, flying)
+            })
+            .collect();
+        Segmentation { segments, fits }
+    }
+
+    /// The fitted flight arcs of 4 or more points, in time order.
+    pub fn flight_fits(&self) -> impl Iterator<Item = &ArcFit> {
+        self.fits
+            .iter()
+            .filter(|(f, flying)| *flying && f.as_ref().is_some_and(|f| f.range.len() >= 4))
+            .filter_map(|(f, _)| f.as_ref())
+    }
+
+    /// The ranges of [`Segmentation::flight_fits`].
+    pub fn flight_ranges(&self) -> Vec<Range<usize>> {
+        self.flight_fits().map(|f| f.range.clone()).collect()
+    }
 }
 
 /// Acceleration estimate at interior point i from points i - 1, i, i + 1, and its 1-sigma.

@@ -16,7 +16,7 @@ pub struct PathDoc {
     /// Flash indexes with no image.
     pub missing: Vec<usize>,
     /// Further paths (another ball), each with its points and missing flashes.
-    pub other_paths: Vec<crate::track::Path>,
+    pub other_paths: Vec<crate::track::BallPath>,
     /// Spots on no path, with the reason.
     pub strays: Vec<Stray>,
 }

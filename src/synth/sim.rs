@@ -1,13 +1,15 @@
 //! Motion of the ball from release to the last flash: rolling without slipping down the incline,
-//! free flight (exact parabola in vacuum, RK4 with quadratic drag), bounces on the floor with a
-//! normal restitution that may depend on impact speed and a tangential ratio, then rolling along
-//! the floor once the rebounds die out.
+//! free flight (exact parabola in vacuum, RK4 with quadratic drag from the shared model in
+//! [`crate::physics::dynamics`]), bounces on the floor with a normal restitution that may depend
+//! on impact speed and a tangential ratio, then rolling along the floor once the rebounds die
+//! out.
 //!
 //! Goes in: a [`Scene`]. Comes out: a [`Motion`] that gives the ball's centre at any time, with the
 //! bounce and launch events. Rolling without slipping on an incline of angle theta with a rolling
 //! resistance c: a = g (sin theta - c cos theta) / (1 + k) (standard rigid-body mechanics).
 
 use super::scene::Scene;
+use crate::physics::dynamics::{QuadraticDrag, SpeedNorm};
 use serde::{Deserialize, Serialize};
 
 /// What the ball is doing at a moment.
@@ -116,36 +118,6 @@ const DRAG_STEP_S: f64 = 1e-4;
 /// Rebounds slower than this (m/s, vertical) end the bouncing: the ball rolls along the floor.
 const REST_SPEED_MPS: f64 = 0.03;
 
-fn flight_accel(v: [f64; 2], g: f64, drag: f64) -> [f64; 2] {
-    let speed = (v[0] * v[0] + v[1] * v[1]).sqrt();
-    [-drag * speed * v[0], -g - drag * speed * v[1]]
-}
-
-/// RK4 step of the state (x, y, vx, vy).
-fn rk4(s: [f64; 4], dt: f64, g: f64, drag: f64) -> [f64; 4] {
-    let f = |s: [f64; 4]| {
-        let a = flight_accel([s[2], s[3]], g, drag);
-        [s[2], s[3], a[0], a[1]]
-    };
-    let add = |s: [f64; 4], k: [f64; 4], h: f64| {
-        [
-            s[0] + h * k[0],
-            s[1] + h * k[1],
-            s[2] + h * k[2],
-            s[3] + h * k[3],
-        ]
-    };
-    let k1 = f(s);
-    let k2 = f(add(s, k1, dt / 2.0));
-    let k3 = f(add(s, k2, dt / 2.0));
-    let k4 = f(add(s, k3, dt));
-    let mut out = s;
-    for i in 0..4 {
-        out[i] += dt / 6.0 * (k1[i] + 2.0 * k2[i] + 2.0 * k3[i] + k4[i]);
-    }
-    out
-}
-
 /// Cubic Hermite interpolation of position and velocity between two samples (t, x, y, vx, vy).
 fn hermite(a: &[f64; 5], b: &[f64; 5], t: f64) -> [f64; 4] {
     let h = b[0] - a[0];
@@ -168,6 +140,113 @@ fn hermite(a: &[f64; 5], b: &[f64; 5], t: f64) -> [f64; 4] {
     out
 }
 
+/// Flight with drag from (`t`, `p`, `v`) until the ball's bottom touches the floor (centre at
+/// y = `r`, moving down) or the time passes `limit`: fixed RK4 steps of [`DRAG_STEP_S`], the
+/// contact time by bisection on the cubic Hermite interpolant of the last step. Comes out: the
+/// contact time, position and velocity, and every sample (t, x, y, vx, vy).
+fn fly_with_drag(
+    model: &QuadraticDrag,
+    t: f64,
+    p: [f64; 2],
+    v: [f64; 2],
+    r: f64,
+    limit: f64,
+) -> (f64, [f64; 2], [f64; 2], Vec<[f64; 5]>) {
+    let mut samples = vec![[t, p[0], p[1], v[0], v[1]]];
+    let mut s = [p[0], p[1], v[0], v[1]];
+    let mut ts = t;
+    loop {
+        let next = model.step(s, DRAG_STEP_S);
+        let tn = ts + DRAG_STEP_S;
+        samples.push([tn, next[0], next[1], next[2], next[3]]);
+        if next[1] <= r && next[3] < 0.0 {
+            break;
+        }
+        s = next;
+        ts = tn;
+        if ts > limit {
+            break;
+        }
+    }
+    let n = samples.len();
+    let (a, b) = (samples[n - 2], samples[n - 1]);
+    // Bisection for the contact time on the interpolant.
+    let (mut lo, mut hi) = (a[0], b[0]);
+    for _ in 0..60 {
+        let mid = 0.5 * (lo + hi);
+        if hermite(&a, &b, mid)[1] > r {
+            lo = mid;
+        } else {
+            hi = mid;
+        }
+    }
+    let st = hermite(&a, &b, hi);
+    (hi, [st[0], r], [st[2], st[3]], samples)
+}
+
+/// The launch: the end of the incline for a ball rolling from rest without slipping (its
+/// incline segment pushed onto `segments`), or the free start. Comes out: the launch and the
+/// rolling acceleration on the incline (None without one).
+fn launch_event(
+    scene: &Scene,
+    g: f64,
+    r: f64,
+    k: f64,
+    segments: &mut Vec<Segment>,
+) -> (LaunchEvent, Option<f64>) {
+    match (&scene.incline, &scene.start) {
+        (Some(inc), _) => {
+            let th = inc.angle_deg.to_radians();
+            let accel = g * (th.sin() - inc.rolling_resistance * th.cos()) / (1.0 + k);
+            let dir = [th.cos(), -th.sin()];
+            let normal = [th.sin(), th.cos()];
+            let bottom = [inc.bottom_x_m, inc.bottom_height_m];
+            // The contact point starts at the top (length_m up the slope) and the ball leaves
+            // when the contact point reaches the lower end.
+            let end = [bottom[0] + r * normal[0], bottom[1] + r * normal[1]];
+            let c0 = [
+                end[0] - inc.length_m * dir[0],
+                end[1] - inc.length_m * dir[1],
+            ];
+            let t1 = (2.0 * inc.length_m / accel).sqrt();
+            let speed = accel * t1;
+            segments.push(Segment::Incline { t1, c0, dir, accel });
+            let v = [speed * dir[0], speed * dir[1]];
+            (
+                LaunchEvent {
+                    t_s: t1,
+                    x_m: end[0],
+                    y_m: end[1],
+                    velocity_mps: v,
+                    speed_mps: speed,
+                    angle_deg: v[1].atan2(v[0]).to_degrees(),
+                },
+                Some(accel),
+            )
+        }
+        (None, Some(s)) => {
+            let v = [s.vx_mps, s.vy_mps];
+            let speed = (v[0] * v[0] + v[1] * v[1]).sqrt();
+            (
+                LaunchEvent {
+                    t_s: 0.0,
+                    x_m: s.x_m,
+                    y_m: s.y_m,
+                    velocity_mps: v,
+                    speed_mps: speed,
+                    angle_deg: if speed > 0.0 {
+                        v[1].atan2(v[0]).to_degrees()
+                    } else {
+                        0.0
+                    },
+                },
+                None,
+            )
+        }
+        (None, None) => unreachable!("validated scenes have an incline or a start"),
+    }
+}
+
 impl Motion {
     /// Simulate the scene's motion up to `t_end_s`.
     pub fn simulate(scene: &Scene, t_end_s: f64) -> Motion {
@@ -178,57 +257,7 @@ impl Motion {
         let mut segments = Vec::new();
         let mut bounces = Vec::new();
 
-        let (launch, incline_accel) = match (&scene.incline, &scene.start) {
-            (Some(inc), _) => {
-                let th = inc.angle_deg.to_radians();
-                let accel = g * (th.sin() - inc.rolling_resistance * th.cos()) / (1.0 + k);
-                let dir = [th.cos(), -th.sin()];
-                let normal = [th.sin(), th.cos()];
-                let bottom = [inc.bottom_x_m, inc.bottom_height_m];
-                // The contact point starts at the top (length_m up the slope) and the ball leaves
-                // when the contact point reaches the lower end.
-                let end = [bottom[0] + r * normal[0], bottom[1] + r * normal[1]];
-                let c0 = [
-                    end[0] - inc.length_m * dir[0],
-                    end[1] - inc.length_m * dir[1],
-                ];
-                let t1 = (2.0 * inc.length_m / accel).sqrt();
-                let speed = accel * t1;
-                segments.push(Segment::Incline { t1, c0, dir, accel });
-                let v = [speed * dir[0], speed * dir[1]];
-                (
-                    LaunchEvent {
-                        t_s: t1,
-                        x_m: end[0],
-                        y_m: end[1],
-                        velocity_mps: v,
-                        speed_mps: speed,
-                        angle_deg: v[1].atan2(v[0]).to_degrees(),
-                    },
-                    Some(accel),
-                )
-            }
-            (None, Some(s)) => {
-                let v = [s.vx_mps, s.vy_mps];
-                let speed = (v[0] * v[0] + v[1] * v[1]).sqrt();
-                (
-                    LaunchEvent {
-                        t_s: 0.0,
-                        x_m: s.x_m,
-                        y_m: s.y_m,
-                        velocity_mps: v,
-                        speed_mps: speed,
-                        angle_deg: if speed > 0.0 {
-                            v[1].atan2(v[0]).to_degrees()
-                        } else {
-                            0.0
-                        },
-                    },
-                    None,
-                )
-            }
-            (None, None) => unreachable!("validated scenes have an incline or a start"),
-        };
+        let (launch, incline_accel) = launch_event(scene, g, r, k, &mut segments);
 
         let mut t = launch.t_s;
         let mut p = [launch.x_m, launch.y_m];
@@ -254,37 +283,12 @@ impl Motion {
                 let vh = [v[0], v[1] - g * dt];
                 (t + dt, ph, vh, Vec::new())
             } else {
-                let mut samples = vec![[t, p[0], p[1], v[0], v[1]]];
-                let mut s = [p[0], p[1], v[0], v[1]];
-                let mut ts = t;
-                let limit = t_end_s + 10.0;
-                loop {
-                    let next = rk4(s, DRAG_STEP_S, g, drag);
-                    let tn = ts + DRAG_STEP_S;
-                    samples.push([tn, next[0], next[1], next[2], next[3]]);
-                    if next[1] <= r && next[3] < 0.0 {
-                        break;
-                    }
-                    s = next;
-                    ts = tn;
-                    if ts > limit {
-                        break;
-                    }
-                }
-                let n = samples.len();
-                let (a, b) = (samples[n - 2], samples[n - 1]);
-                // Bisection for the contact time on the interpolant.
-                let (mut lo, mut hi) = (a[0], b[0]);
-                for _ in 0..60 {
-                    let mid = 0.5 * (lo + hi);
-                    if hermite(&a, &b, mid)[1] > r {
-                        lo = mid;
-                    } else {
-                        hi = mid;
-                    }
-                }
-                let st = hermite(&a, &b, hi);
-                (hi, [st[0], r], [st[2], st[3]], samples)
+                let model = QuadraticDrag {
+                    gravity_mps2: g,
+                    drag_per_m: drag,
+                    speed: SpeedNorm::SquareRoot,
+                };
+                fly_with_drag(&model, t, p, v, r, t_end_s + 10.0)
             };
             segments.push(Segment::Flight {
                 t0: t,

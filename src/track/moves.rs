@@ -1,0 +1,234 @@
+//! Candidate steps of the walk: constant-acceleration steps and steps across a bounce.
+//!
+//! Goes in: a [`Walk`]. Comes out: at most [`BRANCH`] [`Move`]s, cheapest first. Method (ours,
+//! steps 4 and 5 of the module documentation of [`crate::track`]): spots inside the gate around
+//! each prediction `k = 1..=1 + max_misses` flashes ahead; when none fits, spots inside a window
+//! past a reflection on the floor (restitution between `min_restitution` and its inverse), and
+//! after a bounce the spots whose arc meets the arc before the bounce.
+
+use super::walk::{Finder, Move, Walk};
+use crate::core::vec2::{add, dot, norm, scale, sub};
+
+/// Candidates compared per step.
+pub(super) const BRANCH: usize = 3;
+/// Spots looked at per bounce window.
+const WINDOW_QUERY: usize = 64;
+/// Cost of one missed flash when candidates are compared (in squared gates).
+const MISS_COST: f64 = 0.3;
+/// Cosine of the largest angle between the measured acceleration and image down for a bounce.
+const MIN_DOWN_COS: f64 = 0.85;
+
+impl Finder<'_> {
+    /// Candidate next steps, cheapest first: constant-acceleration steps, or bounce steps
+    /// when none fits.
+    pub(super) fn moves(&self, walk: &Walk) -> Vec<Move> {
+        let mut moves = Vec::new();
+        let arc_len = walk.nodes.len() - walk.arc_start;
+        for k in 1..=1 + self.limits.max_misses as i64 {
+            let Some((p, gate_px)) = self.predict(walk, k) else {
+                break;
+            };
+            let miss_cost = MISS_COST * (k - 1) as f64;
+            for nb in self.tree.within(p[0], p[1], gate_px, BRANCH + 8) {
+                if !self.usable(nb.index) {
+                    continue;
+                }
+                let r = nb.distance_px / gate_px;
+                moves.push(Move {
+                    item: nb.index,
+                    k,
+                    bounce: false,
+                    cost: r * r + miss_cost,
+                });
+                if moves.iter().filter(|m| m.k == k).count() == BRANCH {
+                    break;
+                }
+            }
+        }
+        if moves.is_empty() {
+            if arc_len == 1 {
+                self.after_bounce_moves(walk, &mut moves);
+            } else {
+                self.bounce_moves(walk, &mut moves);
+            }
+        }
+        moves.sort_by(|a, b| a.cost.total_cmp(&b.cost));
+        moves.truncate(BRANCH);
+        moves
+    }
+
+    /// Steps across a bounce from the last point (the reflected prediction).
+    fn bounce_moves(&self, walk: &Walk, moves: &mut Vec<Move>) {
+        let (Some(last), Some(v)) = (walk.nodes.last(), self.velocity(walk)) else {
+            return;
+        };
+        let down = gravity_direction(self.accel(walk));
+        let arc_len = walk.nodes.len() - walk.arc_start;
+        if arc_len < 3 || down[1] < MIN_DOWN_COS || dot(v, down) <= 0.0 {
+            return;
+        }
+        let origin = self.pos(last.item);
+        let e = self.limits.min_restitution;
+        for k in 1..=1 + self.limits.max_misses as i64 {
+            let Some((q, gate_px)) = self.predict(walk, k) else {
+                break;
+            };
+            let d = sub(q, origin);
+            let (q_u, q_w) = (dot(d, across(down)), dot(d, down));
+            if q_w <= 0.0 {
+                continue;
+            }
+            let window = Window {
+                origin,
+                down,
+                u: span(e * q_u, q_u / e, gate_px),
+                w: [-q_w / e - gate_px, q_w + gate_px],
+            };
+            for (item, du) in self.in_window(&window) {
+                let off = (du - q_u) / ((window.u[1] - window.u[0]) / 2.0).max(1e-9);
+                moves.push(Move {
+                    item,
+                    k,
+                    bounce: true,
+                    cost: 1.0 + off * off + MISS_COST * (k - 1) as f64,
+                });
+            }
+        }
+    }
+
+    /// Steps from the first point after a bounce, set by the velocity before it.
+    fn after_bounce_moves(&self, walk: &Walk, moves: &mut Vec<Move>) {
+        let Some(last) = walk.nodes.last() else {
+            return;
+        };
+        let a = walk.carried_accel.unwrap_or([0.0, 0.0]);
+        let down = gravity_direction(walk.carried_accel);
+        let v = walk.bounce_velocity;
+        let (v_u, v_w) = (dot(v, across(down)), dot(v, down).abs());
+        let origin = self.pos(last.item);
+        let e = self.limits.min_restitution;
+        let a_px = norm(a);
+        for k in 1..=1 + self.limits.max_misses as i64 {
+            let kf = k as f64;
+            let gate_px = self.limits.gate_radii * self.r_ref_px * kf * 2.0 + 3.0 * self.sigma_px;
+            let window = Window {
+                origin,
+                down,
+                u: span(e * v_u * kf, v_u * kf / e, gate_px),
+                w: [-(v_w + a_px) * kf / e - gate_px, a_px * kf * kf + gate_px],
+            };
+            let scale_px = self.limits.gate_radii * self.r_ref_px + 3.0 * self.sigma_px;
+            for (item, _) in self.in_window(&window) {
+                let miss = self.meeting_miss_px(walk, item, k) / scale_px;
+                if miss > 1.0 {
+                    continue;
+                }
+                moves.push(Move {
+                    item,
+                    k,
+                    bounce: false,
+                    cost: 1.0 + miss * miss + MISS_COST * (k - 1) as f64,
+                });
+            }
+        }
+    }
+
+    /// Usable spots inside a bounce window and their advance along the floor, pixels.
+    fn in_window(&self, window: &Window) -> Vec<(usize, f64)> {
+        let side = across(window.down);
+        let (u, w) = (window.u, window.w);
+        let (u_mid, w_mid) = ((u[0] + u[1]) / 2.0, (w[0] + w[1]) / 2.0);
+        let centre = add(
+            window.origin,
+            add(scale(side, u_mid), scale(window.down, w_mid)),
+        );
+        let reach_px = ((u[1] - u[0]) / 2.0).hypot((w[1] - w[0]) / 2.0);
+        let mut found = Vec::new();
+        for nb in self
+            .tree
+            .within(centre[0], centre[1], reach_px, WINDOW_QUERY)
+        {
+            let d = sub(self.pos(nb.index), window.origin);
+            let (du, dw) = (dot(d, side), dot(d, window.down));
+            if self.usable(nb.index) && du >= u[0] && du <= u[1] && dw >= w[0] && dw <= w[1] {
+                found.push((nb.index, du));
+            }
+        }
+        found
+    }
+
+    /// How far apart, pixels, the arc before the last bounce and the arc through the last point
+    /// and `item` (`k` flashes later) come where they meet best between the flashes around
+    /// the bounce. Both arcs share the acceleration, so their difference is linear in time; at
+    /// a true bounce it vanishes at the bounce instant. Infinite when the speed along gravity
+    /// (reversed) or along the floor changes at the meeting by a ratio outside
+    /// `min_restitution..1 / min_restitution`.
+    fn meeting_miss_px(&self, walk: &Walk, item: usize, k: i64) -> f64 {
+        let (Some(pre), Some(first)) = (
+            walk.arc_start.checked_sub(1).map(|i| walk.nodes[i]),
+            walk.nodes.last(),
+        ) else {
+            return 0.0;
+        };
+        let a = walk.carried_accel.unwrap_or([0.0, 0.0]);
+        let (t0, p0, v0) = (pre.n as f64, self.pos(pre.item), walk.bounce_velocity);
+        let (t1, p1) = (first.n as f64, self.pos(first.item));
+        let d = k as f64;
+        let v1 = sub(scale(sub(self.pos(item), p1), 1.0 / d), scale(a, d / 2.0));
+        let arc =
+            |p: [f64; 2], v: [f64; 2], dt: f64| add(add(p, scale(v, dt)), scale(a, dt * dt / 2.0));
+        let gap_at_t0 = sub(p0, arc(p1, v1, t0 - t1));
+        let gap_at_t1 = sub(arc(p0, v0, t1 - t0), p1);
+        let slope = sub(gap_at_t1, gap_at_t0);
+        let s = if dot(slope, slope) > 0.0 {
+            (-dot(gap_at_t0, slope) / dot(slope, slope)).clamp(0.0, 1.0)
+        } else {
+            0.0
+        };
+        // Speeds along gravity at the meeting: the rebound must be e to 1/e times the impact.
+        let t_meet = t0 + s * (t1 - t0);
+        let down = gravity_direction(walk.carried_accel);
+        let before = add(v0, scale(a, t_meet - t0));
+        let after = add(v1, scale(a, t_meet - t1));
+        let e = self.limits.min_restitution;
+        let ratio_ok = |from: f64, to: f64| from > 0.0 && to >= e * from && to <= from / e;
+        let side = across(down);
+        let (along_before, along_after) = (dot(before, side), dot(after, side));
+        let sideways_ok = if along_before.abs() > self.sigma_px + 1e-9 {
+            ratio_ok(along_before.abs(), along_after * along_before.signum())
+        } else {
+            along_after.abs() <= self.limits.gate_radii * self.r_ref_px
+        };
+        if !ratio_ok(dot(before, down), -dot(after, down)) || !sideways_ok {
+            return f64::INFINITY;
+        }
+        norm(add(gap_at_t0, scale(slope, s)))
+    }
+}
+
+/// A box after a bounce, pixels from `origin`: `u` along the floor, `w` along gravity.
+#[derive(Debug, Clone, Copy)]
+struct Window {
+    origin: [f64; 2],
+    down: [f64; 2],
+    u: [f64; 2],
+    w: [f64; 2],
+}
+
+/// Unit vector along the measured acceleration; image down when it is unknown or zero.
+fn gravity_direction(accel: Option<[f64; 2]>) -> [f64; 2] {
+    match accel {
+        Some(a) if norm(a) > 1e-9 => scale(a, 1.0 / norm(a)),
+        _ => [0.0, 1.0],
+    }
+}
+
+/// Unit vector along the floor for a gravity direction.
+fn across(down: [f64; 2]) -> [f64; 2] {
+    [down[1], -down[0]]
+}
+
+/// The interval between `a` and `b`, widened by `margin` on both sides.
+fn span(a: f64, b: f64, margin: f64) -> [f64; 2] {
+    [a.min(b) - margin, a.max(b) + margin]
+}
