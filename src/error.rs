@@ -1,4 +1,6 @@
-//! One typed error for the library: which file, what went wrong, in words a user can act on.
+//! The library's errors: which file, which stage, what went wrong, in words a user can act on.
+//! Each stage has its own kind ([`DetectError`], [`TrackError`], [`PhysicsError`]) as the
+//! `source`, so a caller can tell a photo with no path from a fit that failed.
 //!
 //! Library code returns [`Error`]; the binary adds context with `anyhow` at its edge and prints a
 //! single line.
@@ -40,13 +42,114 @@ pub enum Error {
         /// Why it is refused.
         message: String,
     },
-    /// The photo was read but the measurement cannot be made from it.
-    #[error("{path}: {message}")]
-    Measure {
+    /// Spot finding refused the photo.
+    #[error("{path}: {source}")]
+    Detect {
+        /// The photo (or plate) concerned.
+        path: PathBuf,
+        /// Why.
+        #[source]
+        source: DetectError,
+    },
+    /// The ball images could not be ordered into a timed path.
+    #[error("{path}: {source}")]
+    Track {
         /// The photo concerned.
         path: PathBuf,
-        /// Why the measurement failed.
-        message: String,
+        /// Why.
+        #[source]
+        source: TrackError,
+    },
+    /// A fit failed, or the physics cannot be measured from the path.
+    #[error("{path}: {source}")]
+    Physics {
+        /// The photo concerned (`<fit>` inside a fit, before the caller names the data).
+        path: PathBuf,
+        /// Why.
+        #[source]
+        source: PhysicsError,
+    },
+}
+
+/// Why spot finding refused a photo.
+#[derive(Debug, thiserror::Error)]
+pub enum DetectError {
+    /// More candidate regions than the limit: noise or texture.
+    #[error(
+        "{count} candidate regions, over the limit of {limit}: this looks like noise or texture, \
+         not a strobe photo (raise the limit, the threshold, or give the radius range)"
+    )]
+    TooManyCandidates {
+        /// Regions found.
+        count: usize,
+        /// The limit.
+        limit: usize,
+    },
+    /// The clean plate's size differs from the photo's.
+    #[error("clean plate is {plate_w_px} x {plate_h_px} px but the photo is {w_px} x {h_px} px")]
+    PlateSize {
+        /// Plate width, pixels.
+        plate_w_px: usize,
+        /// Plate height, pixels.
+        plate_h_px: usize,
+        /// Photo width, pixels.
+        w_px: usize,
+        /// Photo height, pixels.
+        h_px: usize,
+    },
+}
+
+/// Why no timed path could be made.
+#[derive(Debug, thiserror::Error)]
+pub enum TrackError {
+    /// Fewer than two ball images.
+    #[error("{found} ball image(s) found: a measurement needs a path of images")]
+    TooFewImages {
+        /// Ball images found.
+        found: usize,
+    },
+    /// No chain of images could be ordered.
+    #[error("no path could be ordered from the {found} ball images")]
+    NoPath {
+        /// Ball images found.
+        found: usize,
+    },
+}
+
+/// Why the physics could not be measured.
+#[derive(Debug, thiserror::Error)]
+pub enum PhysicsError {
+    /// Too few points on the path.
+    #[error("a measurement needs at least 6 points, got {0}")]
+    TooFewPoints(usize),
+    /// A point of the path is unusable.
+    #[error("point {index}: {problem}")]
+    BadPoint {
+        /// Its index.
+        index: usize,
+        /// What is wrong with it.
+        problem: &'static str,
+    },
+    /// No flight arc long enough to fit.
+    #[error("no flight arc with 4 or more points: nothing to measure")]
+    NoFlightArc,
+    /// The level correction left no flight arc.
+    #[error("no flight arc after the level correction")]
+    NoFlightArcLevelled,
+    /// The fitted flight arcs curve upwards.
+    #[error("the flight arcs do not fall")]
+    ArcsDoNotFall,
+    /// A least-squares fit could not be made (too few points, a singular system...).
+    #[error("{0}")]
+    Fit(String),
+    /// A stage of the measurement failed.
+    #[error("{stage}: {source}")]
+    Stage {
+        /// The stage (`incline`, `drag fit`...).
+        stage: &'static str,
+        /// Why.
+        #[source]
+        source: Box<PhysicsError>,
     },
 }
 
@@ -75,11 +178,27 @@ impl Error {
         }
     }
 
-    /// A measurement that cannot be made from `path`.
-    pub fn measure(path: &Path, message: impl Into<String>) -> Self {
-        Error::Measure {
+    /// A photo spot finding refuses.
+    pub fn detect(path: &Path, source: DetectError) -> Self {
+        Error::Detect {
             path: path.to_path_buf(),
-            message: message.into(),
+            source,
+        }
+    }
+
+    /// Ball images of `path` that make no timed path.
+    pub fn track(path: &Path, source: TrackError) -> Self {
+        Error::Track {
+            path: path.to_path_buf(),
+            source,
+        }
+    }
+
+    /// Physics that cannot be measured from the path of `path`.
+    pub fn physics(path: &Path, source: PhysicsError) -> Self {
+        Error::Physics {
+            path: path.to_path_buf(),
+            source,
         }
     }
 }

@@ -8,7 +8,7 @@
 
 use crate::calibrate::{self, Calibration, PlaneFile};
 use crate::detect::{self, SpotOptions, SpotReport};
-use crate::error::{Error, Result, positive};
+use crate::error::{Error, Result, TrackError, positive};
 use crate::physics::{self, MeasureOptions, Quantity, TimedPoint, Unknown};
 use crate::report::measure::{MeasureDoc, PathEntry};
 use crate::track::{self, PathOptions, PathResult};
@@ -169,19 +169,13 @@ fn measure_validated(
     report: SpotReport,
     settings: &MeasureSettings,
 ) -> Result<Measured> {
-    let fail = |m: String| Error::measure(photo_path, m);
-    if report.spots.len() < 2 {
-        return Err(fail(format!(
-            "{} ball image(s) found: a measurement needs a path of images",
-            report.spots.len()
-        )));
+    let found = report.spots.len();
+    if found < 2 {
+        return Err(Error::track(photo_path, TrackError::TooFewImages { found }));
     }
     let paths = track::order_path(&report.spots, &settings.path);
     let Some(best) = paths.paths.first() else {
-        return Err(fail(format!(
-            "no path could be ordered from the {} ball images",
-            report.spots.len()
-        )));
+        return Err(Error::track(photo_path, TrackError::NoPath { found }));
     };
     let mut radii: Vec<f64> = best.points.iter().map(|p| p.r_px).collect();
     radii.sort_by(f64::total_cmp);

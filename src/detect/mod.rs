@@ -35,7 +35,7 @@ pub struct Spot {
 
 use crate::core::light::{Polarity, Tone};
 use crate::core::stats::{MAD_TO_SIGMA, upper_median};
-use crate::error::{Error, Result};
+use crate::error::{DetectError, Error, Result};
 use crate::image::background::{self, Background, BackgroundOptions};
 use crate::image::load::Photo;
 use crate::image::threshold::{self, Blobs, ThresholdOptions};
@@ -320,14 +320,12 @@ impl Work {
         let p = small.as_ref().unwrap_or(photo);
         let blobs = threshold::find_blobs(p, small_bg.as_ref().unwrap_or(bg), &options.threshold);
         if blobs.blobs.len() > options.max_candidates {
-            return Err(Error::measure(
+            return Err(Error::detect(
                 &photo.path,
-                format!(
-                    "{} candidate regions, over the limit of {}: this looks like noise or texture, \
-                     not a strobe photo (raise the limit, the threshold, or give the radius range)",
-                    blobs.blobs.len(),
-                    options.max_candidates
-                ),
+                DetectError::TooManyCandidates {
+                    count: blobs.blobs.len(),
+                    limit: options.max_candidates,
+                },
             ));
         }
         Ok(Work {
@@ -411,12 +409,14 @@ pub fn find_spots(
     if let Some(p) = plate
         && (p.width != photo.width || p.height != photo.height)
     {
-        return Err(Error::measure(
+        return Err(Error::detect(
             &p.path,
-            format!(
-                "clean plate is {} x {} px but the photo is {} x {} px",
-                p.width, p.height, photo.width, photo.height
-            ),
+            DetectError::PlateSize {
+                plate_w_px: p.width,
+                plate_h_px: p.height,
+                w_px: photo.width,
+                h_px: photo.height,
+            },
         ));
     }
     // Large balls are found on the photo averaged over d x d blocks and refined at full

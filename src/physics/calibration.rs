@@ -14,7 +14,7 @@
 //! given ones' relative sigmas are added in quadrature.
 
 use super::{MeasureOptions, Quantity, TimedPoint, Unknown, fail, flight};
-use crate::error::{Error, Result};
+use crate::error::{Error, PhysicsError, Result};
 use std::ops::Range;
 
 /// Camera roll from the common acceleration of the flight arcs `flights` of `points`: (roll,
@@ -77,10 +77,7 @@ fn apparent_gravity(
     let g_app = -2.0 * c2;
     let g_app_sigma = 2.0 * c2_sigma;
     if g_app.is_nan() || g_app <= 0.0 {
-        return Err(Error::measure(
-            &options.source,
-            "the flight arcs do not fall",
-        ));
+        return Err(Error::physics(&options.source, PhysicsError::ArcsDoNotFall));
     }
     Ok((g_app, g_app_sigma))
 }

@@ -15,7 +15,7 @@
 //! by [`CovarianceScaling`]. Nonlinear fits use Levenberg-Marquardt (Marquardt 1963) with a
 //! central-difference Jacobian and the same covariance rule at the solution.
 
-use crate::error::{Error, Result};
+use crate::error::{Error, PhysicsError, Result};
 use nalgebra::{DMatrix, DVector};
 use std::path::Path;
 
@@ -86,7 +86,7 @@ fn rms(v: &[f64]) -> f64 {
 
 /// A fitting error (the caller names the data).
 pub(crate) fn fit_error(message: impl Into<String>) -> Error {
-    Error::measure(Path::new("<fit>"), message)
+    Error::physics(Path::new("<fit>"), PhysicsError::Fit(message.into()))
 }
 
 fn scale_factor(scaling: CovarianceScaling, chi_square: f64, dof: usize) -> f64 {

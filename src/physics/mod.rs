@@ -29,7 +29,7 @@ pub mod phases;
 use crate::core::SCHEMA_VERSION;
 use crate::core::ball::{Build, inertia_factor};
 use crate::core::units::STANDARD_GRAVITY_MPS2;
-use crate::error::{Error, Result};
+use crate::error::{Error, PhysicsError, Result};
 use bands::{Band, Verdict};
 use bounce::Bounce;
 use calibration::Calibration;
@@ -277,12 +277,19 @@ pub struct Measurement {
     pub verdicts: Vec<Verdict>,
 }
 
-fn fail(options: &MeasureOptions, what: &str, e: Error) -> Error {
-    let message = match e {
-        Error::Measure { message, .. } => message,
-        other => other.to_string(),
+/// `e`, from the stage `what` of the measurement, as a physics error of the photo.
+fn fail(options: &MeasureOptions, what: &'static str, e: Error) -> Error {
+    let source = match e {
+        Error::Physics { source, .. } => source,
+        other => PhysicsError::Fit(other.to_string()),
     };
-    Error::measure(&options.source, format!("{what}: {message}"))
+    Error::physics(
+        &options.source,
+        PhysicsError::Stage {
+            stage: what,
+            source: Box::new(source),
+        },
+    )
 }
 
 /// Check the input: at least 6 points, finite, positive sigmas, increasing times, a positive
@@ -290,31 +297,37 @@ fn fail(options: &MeasureOptions, what: &str, e: Error) -> Error {
 fn validate(points: &[TimedPoint], radius_m: f64, options: &MeasureOptions) -> Result<()> {
     let src: &Path = &options.source;
     if points.len() < 6 {
-        return Err(Error::measure(
+        return Err(Error::physics(
             src,
-            format!(
-                "a measurement needs at least 6 points, got {}",
-                points.len()
-            ),
+            PhysicsError::TooFewPoints(points.len()),
         ));
     }
     for (i, p) in points.iter().enumerate() {
         if !(p.t_s.is_finite() && p.x_m.is_finite() && p.y_m.is_finite()) {
-            return Err(Error::measure(
+            return Err(Error::physics(
                 src,
-                format!("point {i}: not a finite number"),
+                PhysicsError::BadPoint {
+                    index: i,
+                    problem: "not a finite number",
+                },
             ));
         }
         if !(p.sigma_m.is_finite() && p.sigma_m > 0.0) {
-            return Err(Error::measure(
+            return Err(Error::physics(
                 src,
-                format!("point {i}: sigma must be positive"),
+                PhysicsError::BadPoint {
+                    index: i,
+                    problem: "sigma must be positive",
+                },
             ));
         }
         if i > 0 && p.t_s <= points[i - 1].t_s {
-            return Err(Error::measure(
+            return Err(Error::physics(
                 src,
-                format!("point {i}: times must increase"),
+                PhysicsError::BadPoint {
+                    index: i,
+                    problem: "times must increase",
+                },
             ));
         }
     }
@@ -433,10 +446,7 @@ fn level_path(
     let g_hint = options.gravity.value;
     let flights = Segmentation::new(pts, g_hint, options.covariance).flight_ranges();
     if flights.is_empty() {
-        return Err(Error::measure(
-            &options.source,
-            "no flight arc with 4 or more points: nothing to measure",
-        ));
+        return Err(Error::physics(&options.source, PhysicsError::NoFlightArc));
     }
     let roll = calibration::estimate_roll(pts, &flights, options.covariance);
     // With a drag fit the acceleration also has a horizontal part (drag), so its direction is
@@ -447,9 +457,9 @@ fn level_path(
             calibration::level(pts, rho);
             let levelled = Segmentation::new(pts, g_hint, options.covariance).flight_ranges();
             if levelled.is_empty() {
-                return Err(Error::measure(
+                return Err(Error::physics(
                     &options.source,
-                    "no flight arc after the level correction",
+                    PhysicsError::NoFlightArcLevelled,
                 ));
             }
             levelled
