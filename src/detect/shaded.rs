@@ -1,666 +1,18 @@
-//! Sub-pixel refinement: circles fitted to the edge points each ball image owns, then a lit
-//! sphere's image fitted to the pixels of each isolated one.
+//! Shaded-sphere fit: a lit sphere's image fitted to the pixels around one ball image.
 //!
-//! Goes in: a [`Region`]'s sub-pixel edge points and the Hough [`Candidate`]s in it; for the
-//! shaded fit, the [`WindowPixel`]s around one image in linear light. Comes out: [`CircleFit`]s
-//! with centre, radius, a 1-sigma centre uncertainty and a rim-coverage score; [`ShadedFit`]s.
+//! Goes in: the [`WindowPixel`]s around one image in linear light and a start [`Circle`]. Comes
+//! out: a [`ShadedFit`] with the silhouette, a 1-sigma centre uncertainty and the light direction.
 //!
-//! Method: an algebraic start (Kasa's fit, "A circle fitting procedure and its error analysis",
-//! IEEE Trans. Instrum. Meas. 25, 1976) and a geometric fit minimising the orthogonal distances by
-//! Levenberg-Marquardt (Gander, Golub & Strebel, "Least-squares fitting of circles and ellipses",
-//! BIT 34, 1994). The images of a cluster are fitted jointly by alternation: every edge point is
-//! given to the one circle whose rim it lies on and whose centre its gradient points at; points
-//! that two rims claim are left out, so each circle is fitted to the arcs it owns; circles that own
-//! too little of their rim keep the photo's common radius. The covariance is the Gauss-Newton one
-//! scaled by the residual variance and inflated for the correlation of neighbouring edge points
-//! (lag-1 autocorrelation of the residuals along the rim, AR(1) variance factor (1 + rho)/(1 - rho)).
-//!
-//! The shaded fit ([`shaded_fit`]) models the pixels as a Lambertian sphere under one distant
-//! light plus fill: exact disc coverage times (a + b max(0, n . l)), plus the hidden backdrop and a
-//! constant; (cx, cy, r, light) by Levenberg-Marquardt, the brightness terms linearly (variable
-//! projection, Golub & Pereyra, SIAM J. Numer. Anal. 10, 1973), outliers left out. Where the
-//! Lambert term is not significant (Schwarz's criterion), a uniform disc's silhouette is kept.
+//! Method: the pixels are modelled as a Lambertian sphere under one distant light plus fill:
+//! exact disc coverage times (a + b max(0, n . l)), plus the hidden backdrop and a constant;
+//! (cx, cy, r, light) by Levenberg-Marquardt, the brightness terms linearly (variable projection,
+//! Golub & Pereyra, SIAM J. Numer. Anal. 10, 1973), outliers left out. Where the Lambert term is
+//! not significant (Schwarz's criterion), a uniform disc's silhouette is kept.
 
 use crate::core::geometry::{disc_coverage, sphere_normal};
 use crate::core::stats::MAD_TO_SIGMA;
-use crate::detect::hough::{Candidate, EdgePoint, Region};
-use nalgebra::{Matrix3, Vector3};
+use crate::detect::circle::Circle;
 use std::f64::consts::FRAC_1_SQRT_2;
-
-/// Euclidean length of (dx, dy); pixel distances cannot overflow, so no `hypot` (slow in libm).
-#[inline]
-fn dist(dx: f64, dy: f64) -> f64 {
-    (dx * dx + dy * dy).sqrt()
-}
-
-/// A circle.
-#[derive(Debug, Clone, Copy, PartialEq)]
-pub struct Circle {
-    /// Centre x, pixels.
-    pub x_px: f64,
-    /// Centre y, pixels.
-    pub y_px: f64,
-    /// Radius, pixels.
-    pub r_px: f64,
-}
-
-/// Result of a geometric fit.
-#[derive(Debug, Clone, Copy, PartialEq)]
-pub struct GeometricFit {
-    /// The fitted circle.
-    pub circle: Circle,
-    /// Covariance of (x, y, r) (r row and column zero when the radius was held), pixels^2.
-    pub covariance: Matrix3<f64>,
-    /// RMS orthogonal residual, pixels.
-    pub rms_px: f64,
-}
-
-/// Kasa's algebraic fit: least squares of x^2 + y^2 + D x + E y + F = 0. Needs 3 points not on
-/// one line.
-pub fn kasa_fit(points: &[[f64; 2]]) -> Option<Circle> {
-    if points.len() < 3 {
-        return None;
-    }
-    let n = points.len() as f64;
-    let (mx, my) = points
-        .iter()
-        .fold((0.0, 0.0), |(a, b), p| (a + p[0] / n, b + p[1] / n));
-    let mut ata = Matrix3::<f64>::zeros();
-    let mut atb = Vector3::<f64>::zeros();
-    for p in points {
-        let (x, y) = (p[0] - mx, p[1] - my);
-        let row = Vector3::new(x, y, 1.0);
-        let z = -(x * x + y * y);
-        ata += row * row.transpose();
-        atb += row * z;
-    }
-    let sol = ata.lu().solve(&atb)?;
-    let (cx, cy) = (-sol[0] / 2.0, -sol[1] / 2.0);
-    let r2 = cx * cx + cy * cy - sol[2];
-    if r2.is_nan() || r2 <= 0.0 || !r2.is_finite() {
-        return None;
-    }
-    Some(Circle {
-        x_px: cx + mx,
-        y_px: cy + my,
-        r_px: r2.sqrt(),
-    })
-}
-
-/// Geometric circle fit by Levenberg-Marquardt from `start`; `fixed_r` holds the radius.
-pub fn geometric_fit(
-    points: &[[f64; 2]],
-    start: Circle,
-    fixed_r: Option<f64>,
-) -> Option<GeometricFit> {
-    let p = if fixed_r.is_some() { 2 } else { 3 };
-    if points.len() <= p {
-        return None;
-    }
-    let mut c = start;
-    if let Some(r) = fixed_r {
-        c.r_px = r;
-    }
-    let cost = |c: &Circle| -> f64 {
-        points
-            .iter()
-            .map(|q| {
-                let d = dist(q[0] - c.x_px, q[1] - c.y_px) - c.r_px;
-                d * d
-            })
-            .sum()
-    };
-    let normal = |c: &Circle| -> (Matrix3<f64>, Vector3<f64>) {
-        let mut jtj = Matrix3::zeros();
-        let mut jtr = Vector3::zeros();
-        for q in points {
-            let (dx, dy) = (q[0] - c.x_px, q[1] - c.y_px);
-            let rho = dist(dx, dy).max(1e-12);
-            let res = rho - c.r_px;
-            let j = Vector3::new(
-                -dx / rho,
-                -dy / rho,
-                if fixed_r.is_some() { 0.0 } else { -1.0 },
-            );
-            jtj += j * j.transpose();
-            jtr += j * res;
-        }
-        if fixed_r.is_some() {
-            jtj[(2, 2)] = 1.0;
-        }
-        (jtj, jtr)
-    };
-    let mut lambda = 1e-3;
-    let mut f = cost(&c);
-    for _ in 0..100 {
-        let (jtj, jtr) = normal(&c);
-        let mut a = jtj;
-        for i in 0..3 {
-            a[(i, i)] *= 1.0 + lambda;
-        }
-        let Some(step) = a.lu().solve(&(-jtr)) else {
-            break;
-        };
-        let trial = Circle {
-            x_px: c.x_px + step[0],
-            y_px: c.y_px + step[1],
-            r_px: if fixed_r.is_some() {
-                c.r_px
-            } else {
-                c.r_px + step[2]
-            },
-        };
-        let ft = cost(&trial);
-        if ft <= f {
-            let small = step.norm() < 1e-10 * (1.0 + c.r_px);
-            c = trial;
-            let done = (f - ft) <= 1e-14 * f.max(1e-300) || small;
-            f = ft;
-            lambda = (lambda * 0.3).max(1e-12);
-            if done {
-                break;
-            }
-        } else {
-            lambda *= 10.0;
-            if lambda > 1e12 {
-                break;
-            }
-        }
-    }
-    if c.r_px.is_nan() || c.r_px <= 0.0 || !c.x_px.is_finite() || !c.y_px.is_finite() {
-        return None;
-    }
-    let (jtj, _) = normal(&c);
-    let dof = (points.len() - p) as f64;
-    let s2 = f / dof;
-    let mut cov = jtj.try_inverse()? * s2;
-    if fixed_r.is_some() {
-        for i in 0..3 {
-            cov[(2, i)] = 0.0;
-            cov[(i, 2)] = 0.0;
-        }
-    }
-    Some(GeometricFit {
-        circle: c,
-        covariance: cov,
-        rms_px: (f / points.len() as f64).sqrt(),
-    })
-}
-
-/// Settings of the refinement stage.
-#[derive(Debug, Clone, Copy, PartialEq)]
-pub struct RefineOptions {
-    /// Largest distance of an edge point from a rim to belong to it, pixels.
-    pub rim_tolerance_px: f64,
-    /// Smallest cosine between an edge point's gradient and the direction to the centre.
-    pub min_cosine: f64,
-    /// Rounds of assignment and fitting in a cluster.
-    pub rounds: usize,
-    /// Below this rim coverage the radius is held at the photo's common radius.
-    pub free_radius_coverage: f64,
-    /// Fewest owned edge points for a fit.
-    pub min_points: usize,
-    /// After each round, candidates with less rim coverage than this are dropped.
-    pub prune_coverage: f64,
-}
-
-impl Default for RefineOptions {
-    fn default() -> Self {
-        RefineOptions {
-            rim_tolerance_px: 1.5,
-            min_cosine: 0.75,
-            rounds: 4,
-            free_radius_coverage: 0.6,
-            min_points: 8,
-            prune_coverage: 0.15,
-        }
-    }
-}
-
-/// A refined ball image candidate.
-#[derive(Debug, Clone, Copy, PartialEq)]
-pub struct CircleFit {
-    /// The circle.
-    pub circle: Circle,
-    /// 1-sigma centre uncertainty per axis, pixels.
-    pub sigma_px: f64,
-    /// Fraction of the rim (64 angular bins) with owned edge points within 1 px.
-    pub coverage: f64,
-    /// RMS residual, pixels.
-    pub rms_px: f64,
-    /// Owned edge points.
-    pub points: usize,
-    /// Median gradient magnitude of the owned points (contrast of the rim).
-    pub edge_strength: f64,
-    /// The radius was held at the common radius.
-    pub radius_held: bool,
-}
-
-const BINS: usize = 64;
-
-fn coverage_of(c: &Circle, pts: &[[f64; 2]]) -> f64 {
-    let mut bins = [false; BINS];
-    for q in pts {
-        let (dx, dy) = (q[0] - c.x_px, q[1] - c.y_px);
-        if (dist(dx, dy) - c.r_px).abs() <= 1.0 {
-            let a = dy.atan2(dx) + std::f64::consts::PI;
-            let b = ((a / (2.0 * std::f64::consts::PI)) * BINS as f64) as usize % BINS;
-            bins[b] = true;
-        }
-    }
-    bins.iter().filter(|b| **b).count() as f64 / BINS as f64
-}
-
-/// Variance inflation for residuals correlated along the rim (AR(1) model).
-fn correlation_factor(c: &Circle, pts: &[[f64; 2]]) -> f64 {
-    let mut r: Vec<(f64, f64)> = pts
-        .iter()
-        .map(|q| {
-            let (dx, dy) = (q[0] - c.x_px, q[1] - c.y_px);
-            (dy.atan2(dx), dist(dx, dy) - c.r_px)
-        })
-        .collect();
-    if r.len() < 6 {
-        return 1.0;
-    }
-    r.sort_by(|a, b| a.0.total_cmp(&b.0));
-    let mean = r.iter().map(|v| v.1).sum::<f64>() / r.len() as f64;
-    let var: f64 = r.iter().map(|v| (v.1 - mean).powi(2)).sum();
-    if var <= 0.0 {
-        return 1.0;
-    }
-    let lag: f64 = r
-        .windows(2)
-        .map(|w| (w[0].1 - mean) * (w[1].1 - mean))
-        .sum();
-    let rho = (lag / var).clamp(0.0, 0.9);
-    (1.0 + rho) / (1.0 - rho)
-}
-
-/// The radius of the ball's images across the photo: r = a + bx x + by y (pixels). Under a
-/// perspective tilt the scale, and so the radius, changes linearly across the plane to first order.
-#[derive(Debug, Clone, Copy, PartialEq)]
-pub struct RadiusModel {
-    /// Radius at the pixel origin, pixels.
-    pub a_px: f64,
-    /// Change per pixel in x.
-    pub bx: f64,
-    /// Change per pixel in y.
-    pub by: f64,
-}
-
-impl RadiusModel {
-    /// The same radius everywhere.
-    pub fn constant(r_px: f64) -> RadiusModel {
-        RadiusModel {
-            a_px: r_px,
-            bx: 0.0,
-            by: 0.0,
-        }
-    }
-
-    /// Radius expected at a pixel.
-    pub fn at(&self, x_px: f64, y_px: f64) -> f64 {
-        self.a_px + self.bx * x_px + self.by * y_px
-    }
-
-    /// Fit to well-measured circles: least squares of a plane with two rounds of rejection of
-    /// circles more than 3 robust sigmas off; the median radius when fewer than 8 circles, or when
-    /// they span less than 5 radii.
-    pub fn fit(circles: &[Circle]) -> Option<RadiusModel> {
-        if circles.is_empty() {
-            return None;
-        }
-        let mut radii: Vec<f64> = circles.iter().map(|c| c.r_px).collect();
-        radii.sort_by(f64::total_cmp);
-        let median = RadiusModel::constant(radii[radii.len() / 2]);
-        let (xmin, xmax) = circles
-            .iter()
-            .fold((f64::INFINITY, f64::NEG_INFINITY), |(a, b), c| {
-                (a.min(c.x_px), b.max(c.x_px))
-            });
-        let (ymin, ymax) = circles
-            .iter()
-            .fold((f64::INFINITY, f64::NEG_INFINITY), |(a, b), c| {
-                (a.min(c.y_px), b.max(c.y_px))
-            });
-        if circles.len() < 8 || (xmax - xmin).max(ymax - ymin) < 5.0 * median.a_px {
-            return Some(median);
-        }
-        let mut model = median;
-        let mut use_all: Vec<&Circle> = circles.iter().collect();
-        for _ in 0..3 {
-            let mut ata = Matrix3::zeros();
-            let mut atb = Vector3::zeros();
-            for c in &use_all {
-                let row = Vector3::new(1.0, c.x_px, c.y_px);
-                ata += row * row.transpose();
-                atb += row * c.r_px;
-            }
-            let Some(sol) = ata.lu().solve(&atb) else {
-                return Some(median);
-            };
-            model = RadiusModel {
-                a_px: sol[0],
-                bx: sol[1],
-                by: sol[2],
-            };
-            let mut dev: Vec<f64> = circles
-                .iter()
-                .map(|c| (c.r_px - model.at(c.x_px, c.y_px)).abs())
-                .collect();
-            dev.sort_by(f64::total_cmp);
-            let cut = (3.0 * MAD_TO_SIGMA * dev[dev.len() / 2]).max(0.02 * median.a_px);
-            use_all = circles
-                .iter()
-                .filter(|c| (c.r_px - model.at(c.x_px, c.y_px)).abs() <= cut)
-                .collect();
-            if use_all.len() < 8 {
-                return Some(median);
-            }
-        }
-        Some(model)
-    }
-}
-
-/// Starts of a cluster's fit closer than this fraction of a radius to a stronger start are
-/// dropped as second guesses at one image: half the closest spacing of two images the spots
-/// issue asks to separate (0.8 radius), so a start displaced by up to 0.2 radius towards a true
-/// neighbour still stands. On the bench, the start of a rolling r = 8 px ball's chain lost 2 of
-/// its 41 images in scope to such pairs (each point claimed by both went to neither); with the
-/// rule, none, and of the suite's 757 images in scope 1 is missed instead of 4.
-pub const DUPLICATE_FRACTION: f64 = 0.4;
-
-/// Fit all candidates of a region jointly. `radius` is the photo's radius model when known.
-pub fn refine_region(
-    region: &Region,
-    candidates: &[Candidate],
-    radius: Option<&RadiusModel>,
-    options: &RefineOptions,
-) -> Vec<CircleFit> {
-    let mut circles: Vec<Circle> = candidates
-        .iter()
-        .map(|c| Circle {
-            x_px: c.x_px,
-            y_px: c.y_px,
-            r_px: radius.map_or(c.r_px, |m| m.at(c.x_px, c.y_px)),
-        })
-        .collect();
-    // A start within DUPLICATE_FRACTION of a radius of a stronger one is a second guess at the
-    // same image: kept, the two would share its rim points, neither owning enough of them.
-    let mut alive = vec![true; circles.len()];
-    let mut order: Vec<usize> = (0..circles.len()).collect();
-    order.sort_by(|&a, &b| candidates[b].strength.total_cmp(&candidates[a].strength));
-    for (k, &i) in order.iter().enumerate() {
-        let (c, kept) = (circles[i], &order[..k]);
-        alive[i] = !kept.iter().any(|&j| {
-            alive[j]
-                && (c.x_px - circles[j].x_px).hypot(c.y_px - circles[j].y_px)
-                    < DUPLICATE_FRACTION * c.r_px.min(circles[j].r_px)
-        });
-    }
-    let mut result: Vec<Option<CircleFit>> = vec![None; circles.len()];
-    for round in 0..options.rounds {
-        let tol = if round == 0 {
-            2.0 * options.rim_tolerance_px
-        } else {
-            options.rim_tolerance_px
-        };
-        let owned = assign(&region.edges, &circles, &alive, tol, options.min_cosine);
-        for (i, pts_idx) in owned.iter().enumerate() {
-            if !alive[i] {
-                continue;
-            }
-            if pts_idx.len() < options.min_points {
-                alive[i] = false;
-                result[i] = None;
-                continue;
-            }
-            match fit_owned(region, pts_idx, circles[i], radius, options) {
-                Some(f) => {
-                    circles[i] = f.circle;
-                    result[i] = Some(f);
-                }
-                None => {
-                    alive[i] = false;
-                    result[i] = None;
-                }
-            }
-        }
-        // Candidates with almost no rim stop claiming points.
-        for i in 0..circles.len() {
-            if alive[i] && result[i].is_some_and(|f| f.coverage < options.prune_coverage) {
-                alive[i] = false;
-                result[i] = None;
-            }
-        }
-        // Merge circles that converged onto one image: keep the better supported.
-        for i in 0..circles.len() {
-            for j in i + 1..circles.len() {
-                if !(alive[i] && alive[j]) {
-                    continue;
-                }
-                let d =
-                    (circles[i].x_px - circles[j].x_px).hypot(circles[i].y_px - circles[j].y_px);
-                if d < 0.3 * circles[i].r_px.min(circles[j].r_px) {
-                    // The better rim coverage wins, then the more points.
-                    let key = |k: usize| result[k].map_or((0.0, 0), |f| (f.coverage, f.points));
-                    let (ki, kj) = (key(i), key(j));
-                    let drop = if ki.0 > kj.0 || (ki.0 == kj.0 && ki.1 >= kj.1) {
-                        j
-                    } else {
-                        i
-                    };
-                    alive[drop] = false;
-                    result[drop] = None;
-                }
-            }
-        }
-    }
-    second_chance(
-        region,
-        candidates,
-        radius,
-        options,
-        &mut circles,
-        &mut alive,
-        &mut result,
-    );
-    result.into_iter().flatten().collect()
-}
-
-/// Starts that the joint rounds dropped get one more try each, strongest first, against the
-/// circles that stood: on the edge points near the start, with those circles claiming theirs.
-/// In a tight chain the rounds can drop every start of an image (its points claimed about
-/// equally by junk starts between the images, so owned by none); with the junk gone, the image
-/// may hold its own. On the bench: the 160 flash photo 130 -> 132 of its 140 images in scope,
-/// overlap_r30 32 -> 35 of 49 (the gained ones nearer than 0.8 radius), nothing lost.
-fn second_chance(
-    region: &Region,
-    candidates: &[Candidate],
-    radius: Option<&RadiusModel>,
-    options: &RefineOptions,
-    circles: &mut [Circle],
-    alive: &mut [bool],
-    result: &mut [Option<CircleFit>],
-) {
-    let mut order: Vec<usize> = (0..circles.len()).filter(|&i| !alive[i]).collect();
-    order.sort_by(|&a, &b| candidates[b].strength.total_cmp(&candidates[a].strength));
-    for i in order {
-        let start = Circle {
-            x_px: candidates[i].x_px,
-            y_px: candidates[i].y_px,
-            r_px: radius.map_or(candidates[i].r_px, |m| {
-                m.at(candidates[i].x_px, candidates[i].y_px)
-            }),
-        };
-        let near =
-            |c: &Circle, reach: f64| (c.x_px - start.x_px).hypot(c.y_px - start.y_px) < reach;
-        if (0..circles.len())
-            .any(|j| alive[j] && near(&circles[j], DUPLICATE_FRACTION * start.r_px))
-        {
-            continue;
-        }
-        let reach = start.r_px + 2.0 * options.rim_tolerance_px;
-        let local: Vec<usize> = (0..circles.len())
-            .filter(|&j| alive[j] && near(&circles[j], 2.0 * reach))
-            .collect();
-        let edges: Vec<EdgePoint> = region
-            .edges
-            .iter()
-            .filter(|e| (e.x_px - start.x_px).hypot(e.y_px - start.y_px) < reach)
-            .copied()
-            .collect();
-        let sub = Region {
-            x0: region.x0,
-            y0: region.y0,
-            width: region.width,
-            height: region.height,
-            edges,
-        };
-        let mut c = start;
-        let mut fit = None;
-        for _ in 0..options.rounds {
-            let mut cs: Vec<Circle> = local.iter().map(|&j| circles[j]).collect();
-            cs.push(c);
-            let live = vec![true; cs.len()];
-            let owned = assign(
-                &sub.edges,
-                &cs,
-                &live,
-                options.rim_tolerance_px,
-                options.min_cosine,
-            );
-            let mine = &owned[cs.len() - 1];
-            if mine.len() < options.min_points {
-                fit = None;
-                break;
-            }
-            fit = fit_owned(&sub, mine, c, radius, options);
-            match fit {
-                Some(f) => c = f.circle,
-                None => break,
-            }
-        }
-        if let Some(f) = fit.filter(|f| f.coverage >= options.prune_coverage)
-            && !(0..circles.len()).any(|j| {
-                alive[j]
-                    && (circles[j].x_px - f.circle.x_px).hypot(circles[j].y_px - f.circle.y_px)
-                        < DUPLICATE_FRACTION * f.circle.r_px
-            })
-        {
-            circles[i] = f.circle;
-            alive[i] = true;
-            result[i] = Some(f);
-        }
-    }
-}
-
-/// Geometric fit of one circle to the edge points it owns (`pts_idx` into `region.edges`), from
-/// `start`: the radius held at the photo's model where the rim is short, gross outliers (beyond
-/// 3 robust sigmas) dropped and the fit made again, the centre's sigma inflated for points that
-/// are neighbours along the rim. None when too few points remain or the fit fails.
-fn fit_owned(
-    region: &Region,
-    pts_idx: &[usize],
-    start: Circle,
-    radius: Option<&RadiusModel>,
-    options: &RefineOptions,
-) -> Option<CircleFit> {
-    let pts: Vec<[f64; 2]> = pts_idx
-        .iter()
-        .map(|&k| [region.edges[k].x_px, region.edges[k].y_px])
-        .collect();
-    let cov = coverage_of(&start, &pts);
-    let hold = match radius {
-        Some(m) if cov < options.free_radius_coverage => Some(m.at(start.x_px, start.y_px)),
-        _ => None,
-    };
-    let fit = geometric_fit(&pts, start, hold)?;
-    let res: Vec<f64> = pts
-        .iter()
-        .map(|q| (dist(q[0] - fit.circle.x_px, q[1] - fit.circle.y_px) - fit.circle.r_px).abs())
-        .collect();
-    let mut sorted = res.clone();
-    sorted.sort_by(f64::total_cmp);
-    let cut = (3.0 * MAD_TO_SIGMA * sorted[sorted.len() / 2]).max(0.05);
-    let kept: Vec<[f64; 2]> = pts
-        .iter()
-        .zip(&res)
-        .filter(|(_, r)| **r <= cut)
-        .map(|(q, _)| *q)
-        .collect();
-    let fit = if kept.len() >= options.min_points && kept.len() < pts.len() {
-        geometric_fit(&kept, fit.circle, hold).unwrap_or(fit)
-    } else {
-        fit
-    };
-    let used = if kept.len() >= options.min_points {
-        &kept
-    } else {
-        &pts
-    };
-    let mut mags: Vec<f32> = pts_idx.iter().map(|&k| region.edges[k].magnitude).collect();
-    let mid = mags.len() / 2;
-    let strength = *mags.select_nth_unstable_by(mid, f32::total_cmp).1 as f64;
-    let inflation = correlation_factor(&fit.circle, used);
-    let var = 0.5 * (fit.covariance[(0, 0)] + fit.covariance[(1, 1)]) * inflation;
-    Some(CircleFit {
-        circle: fit.circle,
-        sigma_px: var.max(0.0).sqrt(),
-        coverage: coverage_of(&fit.circle, used),
-        rms_px: fit.rms_px,
-        points: used.len(),
-        edge_strength: strength,
-        radius_held: hold.is_some(),
-    })
-}
-
-/// Give each edge point to the circle whose rim it lies on and whose centre its gradient points
-/// at; when two rims claim it about equally (within `tol` / 2 of each other), nobody gets it.
-fn assign(
-    edges: &[EdgePoint],
-    circles: &[Circle],
-    alive: &[bool],
-    tol: f64,
-    min_cos: f64,
-) -> Vec<Vec<usize>> {
-    let mut owned = vec![Vec::new(); circles.len()];
-    for (k, e) in edges.iter().enumerate() {
-        let mut best: Option<(usize, f64)> = None;
-        let mut second = f64::INFINITY;
-        for (i, c) in circles.iter().enumerate() {
-            if !alive[i] {
-                continue;
-            }
-            let (dx, dy) = (c.x_px - e.x_px, c.y_px - e.y_px);
-            let rho = dist(dx, dy);
-            let res = (rho - c.r_px).abs();
-            if res > tol || rho < 1e-9 {
-                continue;
-            }
-            let cos = (dx * e.ux + dy * e.uy) / rho;
-            if cos < min_cos {
-                continue;
-            }
-            match best {
-                Some((_, b)) if res >= b => second = second.min(res),
-                _ => {
-                    if let Some((_, b)) = best {
-                        second = second.min(b);
-                    }
-                    best = Some((i, res));
-                }
-            }
-        }
-        if let Some((i, b)) = best
-            && second - b > 0.5 * tol
-        {
-            owned[i].push(k);
-        }
-    }
-    owned
-}
 
 /// One pixel of a shaded-sphere fit window.
 #[derive(Debug, Clone, Copy, PartialEq)]
@@ -715,23 +67,23 @@ fn shaded_basis(q: &WindowPixel, p: &[f64; 5], shading: Shading) -> [f64; SHADED
     // A pixel lies wholly inside or outside the disc when its centre is more than half its
     // diagonal from the rim.
     let (inner, outer) = (p[2] - FRAC_1_SQRT_2, p[2] + FRAC_1_SQRT_2);
-    let cov = if inner > 0.0 && d2 <= inner * inner {
+    let coverage = if inner > 0.0 && d2 <= inner * inner {
         1.0
     } else if d2 >= outer * outer {
         return [0.0, 0.0, 0.0, 1.0];
     } else {
         disc_coverage(q.x_px, q.y_px, p[0], p[1], p[2])
     };
-    if cov <= 0.0 {
+    if coverage <= 0.0 {
         return [0.0, 0.0, 0.0, 1.0];
     }
     if shading == Shading::Flat {
-        return [cov, 0.0, cov * q.backdrop, 1.0];
+        return [coverage, 0.0, coverage * q.backdrop, 1.0];
     }
-    let [nx, ny, nz] = sphere_normal(dx, dy, p[2], cov);
+    let [nx, ny, nz] = sphere_normal(dx, dy, p[2], coverage);
     let ln = (p[3] * p[3] + p[4] * p[4] + 1.0).sqrt();
     let lambert = ((nx * p[3] + ny * p[4] + nz) / ln).max(0.0);
-    [cov, cov * lambert, cov * q.backdrop, 1.0]
+    [coverage, coverage * lambert, coverage * q.backdrop, 1.0]
 }
 
 /// Residuals of the best linear coefficients for nonlinear parameters `p` (variable projection).
@@ -975,14 +327,14 @@ fn light_start(window: &[WindowPixel], c: Circle) -> [f64; SHADED_NP] {
     let mut ata = SMatrix::<f64, 6, 6>::zeros();
     let mut atb = SVector::<f64, 6>::zeros();
     for q in window {
-        let cov = disc_coverage(q.x_px, q.y_px, cx, cy, r);
-        let [nx, ny, nz] = sphere_normal(q.x_px - cx, q.y_px - cy, r, cov);
+        let coverage = disc_coverage(q.x_px, q.y_px, cx, cy, r);
+        let [nx, ny, nz] = sphere_normal(q.x_px - cx, q.y_px - cy, r, coverage);
         let v = SVector::<f64, 6>::from_column_slice(&[
-            cov,
-            cov * nx,
-            cov * ny,
-            cov * nz,
-            cov * q.backdrop,
+            coverage,
+            coverage * nx,
+            coverage * ny,
+            coverage * nz,
+            coverage * q.backdrop,
             1.0,
         ]);
         ata += v * v.transpose();
@@ -1086,7 +438,7 @@ pub fn shaded_fit(window: &[WindowPixel], start: Circle) -> Option<ShadedFit> {
     let (f, jtj, n, res) = out?;
     let dof = n.saturating_sub(NP + SHADED_LINEAR).max(1) as f64;
     let correlation = pixel_correlation_factor(&pixels, &res);
-    let cov = jtj.try_inverse()? * (f / dof) * correlation;
+    let covariance = jtj.try_inverse()? * (f / dof) * correlation;
     // The silhouette of a uniform disc where the Lambert term does not earn its three parameters
     // (b, u, v) by Schwarz's criterion (BIC, "Estimating the dimension of a model", Ann. Statist.
     // 6, 1978): n ln(RSS_flat / RSS_lambert) < 3 ln n, n the pixels' number divided by the
@@ -1118,10 +470,15 @@ pub fn shaded_fit(window: &[WindowPixel], start: Circle) -> Option<ShadedFit> {
     let (circle_p, var, rss) = match flat {
         Some((q, ff, rf, jf)) => {
             let dof = n.saturating_sub(3 + SHADED_LINEAR - 1).max(1) as f64;
-            let cf = jf.try_inverse()? * (ff / dof) * pixel_correlation_factor(&pixels, &rf);
-            (q, 0.5 * (cf[(0, 0)] + cf[(1, 1)]), ff)
+            let covariance_flat =
+                jf.try_inverse()? * (ff / dof) * pixel_correlation_factor(&pixels, &rf);
+            (
+                q,
+                0.5 * (covariance_flat[(0, 0)] + covariance_flat[(1, 1)]),
+                ff,
+            )
         }
-        None => (p, 0.5 * (cov[(0, 0)] + cov[(1, 1)]), f),
+        None => (p, 0.5 * (covariance[(0, 0)] + covariance[(1, 1)]), f),
     };
     if !(var.is_finite() && p.iter().chain(&circle_p).all(|v| v.is_finite())) {
         return None;
@@ -1134,7 +491,10 @@ pub fn shaded_fit(window: &[WindowPixel], start: Circle) -> Option<ShadedFit> {
         },
         sigma_px: var.max(0.0).sqrt(),
         light_uv: [p[3], p[4]],
-        light_sigma: [cov[(3, 3)].max(0.0).sqrt(), cov[(4, 4)].max(0.0).sqrt()],
+        light_sigma: [
+            covariance[(3, 3)].max(0.0).sqrt(),
+            covariance[(4, 4)].max(0.0).sqrt(),
+        ],
         rms: (rss / nf).sqrt(),
         kept: nf / window.len() as f64,
         flat: is_flat,
