@@ -50,11 +50,10 @@ impl Default for RefineOptions {
 }
 
 /// Starts of a cluster's fit closer than this fraction of a radius to a stronger start are
-/// dropped as second guesses at one image: half the closest spacing of two images the spots
-/// issue asks to separate (0.8 radius), so a start displaced by up to 0.2 radius towards a true
-/// neighbour still stands. On the bench, the start of a rolling r = 8 px ball's chain lost 2 of
-/// its 41 images in scope to such pairs (each point claimed by both went to neither); with the
-/// rule, none, and of the suite's 757 images in scope 1 is missed instead of 4.
+/// dropped as second guesses at one image: half the closest spacing of two images that must stay
+/// apart (0.8 radius), so a start displaced by up to 0.2 radius towards a true neighbour still
+/// stands. Kept, the two would share the image's rim points, and a point claimed by both goes to
+/// neither.
 pub const DUPLICATE_FRACTION: f64 = 0.4;
 
 /// Fit all candidates of a region jointly. `radius` is the photo's radius model when known.
@@ -159,8 +158,7 @@ pub fn refine_region(
 /// circles that stood: on the edge points near the start, with those circles claiming theirs.
 /// In a tight chain the rounds can drop every start of an image (its points claimed about
 /// equally by junk starts between the images, so owned by none); with the junk gone, the image
-/// may hold its own. On the bench: the 160 flash photo 130 -> 132 of its 140 images in scope,
-/// overlap_r30 32 -> 35 of 49 (the gained ones nearer than 0.8 radius), nothing lost.
+/// may hold its own.
 fn second_chance(
     region: &Region,
     candidates: &[Candidate],

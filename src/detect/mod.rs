@@ -6,11 +6,11 @@
 //! the photo's [`Tone`], sRGB by default); the others by their edges, corrected by the lit-limb
 //! pull those fits measure.
 //!
-//! A large ball (smallest searched radius at least 2 x [`SpotOptions::coarse_r_px`]) is found on
-//! the photo averaged over d x d blocks: background, threshold, vote and first circle fits run
-//! there; then each circle's edge points are extracted at full resolution in a band around it
-//! ([`hough::prepare_band`]) and every fit is made again on them. The pixel work of a 24 MP photo
-//! of a 75 px ball falls to about a fifth.
+//! The stages, one module each: [`search`] (background, threshold and Hough vote, on the photo
+//! averaged over blocks for a large ball, then carried to full resolution), [`joint`] (circle
+//! fits of each region's images together, [`circle`] the fits themselves), [`radius`] (the range
+//! searched and the photo's radius model), [`reject`] (which fits are ball images),
+//! [`shading`] (the shaded-sphere refinement of isolated images, [`shaded`] the fit itself).
 
 pub mod circle;
 pub mod hough;
@@ -81,10 +81,9 @@ pub struct SpotOptions {
     /// weights. The limb of a shaded ball is not a clean step: where the rim is dim, the smoothed
     /// gradient of the shading inside merges with the step's and its maximum moves inwards, which
     /// pulls the centre towards the light. Below about 16 px radius the dim rim's flat band is
-    /// narrower than the edge filter and the pull grows as 1 / r^2 (measured on the rendered bench
-    /// suite, flash 27 degrees off the lens axis, per axis: 0.10 px at r = 8, 0.09 px at r = 10,
-    /// 0.03 px at r = 14, 0.01 px at r = 18-24; other lights differ, hence a sigma, not a
-    /// correction).
+    /// narrower than the edge filter and the pull grows as 1 / r^2 (about 0.1 px per axis at
+    /// r = 8 under a flash 27 degrees off the lens axis; other lights differ, hence a sigma, not
+    /// a correction).
     pub systematic_px_r: f64,
     /// Isolated images of a ball whose common radius is at most this are refined by a fit of a
     /// lit sphere's image to their pixels (0: never). Above it the edge fit's lit-limb bias is

@@ -123,7 +123,7 @@ struct Shaded {
 const LIGHT_MIN_FITS: usize = 5;
 
 /// A spot whose light is this far from the photo's, degrees (and 4 of its sigmas), was lit from
-/// elsewhere. The light of one photo's images agrees within about 3 degrees on the bench; a
+/// elsewhere. The light of one photo's images agrees within a few degrees; a
 /// mirror image in the floor, lit by the mirrored light, is 42 degrees off under the default
 /// light 27 degrees off the lens axis.
 const OTHER_LIGHT_DEG: f64 = 20.0;
