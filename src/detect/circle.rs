@@ -8,9 +8,9 @@
 //! Method: an algebraic start (Kasa's fit, "A circle fitting procedure and its error analysis",
 //! IEEE Trans. Instrum. Meas. 25, 1976) and a geometric fit minimising the orthogonal distances by
 //! Levenberg-Marquardt (Gander, Golub & Strebel, "Least-squares fitting of circles and ellipses",
-//! BIT 34, 1994). The covariance is the Gauss-Newton one scaled by the residual variance;
-//! [`correlation_factor`] inflates it for the correlation of neighbouring edge points (lag-1
-//! autocorrelation of the residuals along the rim, AR(1) variance factor (1 + rho)/(1 - rho)).
+//! BIT 34, 1994). The covariance is the Gauss-Newton one scaled by the residual variance, then
+//! inflated for the correlation of neighbouring edge points (lag-1 autocorrelation of the
+//! residuals along the rim, AR(1) variance factor (1 + rho)/(1 - rho)).
 
 use nalgebra::{Matrix3, Vector3};
 

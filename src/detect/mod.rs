@@ -206,6 +206,7 @@ pub fn find_spots(
         return Ok(report);
     };
     let (regions, candidates) = search::find_regions(photo, &bg, &work, radius, options, debug);
+    // The decimated photo and its blobs are done with.
     drop(work);
     let first = joint::first_pass(&regions, &candidates, &options.refine);
     let Some((model, common)) = radius::learn(&first, radius, options.min_score) else {

@@ -3,9 +3,9 @@
 //! Goes in: the circle fits of the second pass, the photo's [`RadiusModel`] and common radius,
 //! the [`SpotOptions`]. Comes out: [`Spot`]s and [`Rejected`] candidates with their [`Reason`].
 //!
-//! Method: rules in order: centre outside the frame, radius off the model (or the given range),
-//! weak rim (low coverage, or RMS residual far above the photo's well-covered images' median),
-//! faint (rim contrast far below the median), inside a better candidate.
+//! Method (ours): rules in order: centre outside the frame, radius off the model (or the given
+//! range), weak rim (low coverage, or RMS residual far above the median of the photo's
+//! well-covered images), faint (rim contrast far below the median), inside a better candidate.
 
 use crate::core::stats::upper_median;
 use crate::detect::circle::CircleFit;

@@ -149,7 +149,7 @@ pub fn settle(
 /// Goes in: the photo, its full-resolution background, the work, the radius range
 /// (full-resolution pixels) and the debug images, if kept. Comes out: one full-resolution
 /// [`Region`] per blob and the [`Candidate`]s in it, full-resolution coordinates. At d > 1 the
-/// vote runs on the decimated photo and [`full_resolution_regions`] carries its circles over;
+/// vote runs on the decimated photo and `full_resolution_regions` carries its circles over;
 /// the debug votes are the accumulators spread over their blocks.
 pub fn find_regions(
     photo: &Photo,
