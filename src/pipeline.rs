@@ -92,9 +92,9 @@ impl MeasureSettings {
     }
 
     /// Refuse absurd values and settings that do not go together, naming the setting by its
-    /// snake_case key (never a command-line flag).
+    /// snake_case key (never a command-line flag). The spot options are checked where they are
+    /// used, by [`detect::find_spots`].
     pub fn validate(&self) -> Result<()> {
-        self.spots.validate()?;
         if let Some(r) = self.rate_hz
             && !(r.is_finite() && r > 0.0 && r <= 1e5)
         {

@@ -1,6 +1,6 @@
 //! Circle fits against a published worked example.
 
-use beadline::detect::refine::{geometric_fit, kasa_fit};
+use beadline::detect::circle::{geometric_fit, kasa_fit};
 
 /// Gander, Golub & Strebel, "Least-squares fitting of circles and ellipses", BIT 34 (1994),
 /// example points. Geometric fit: centre (4.7398, 2.9835), radius 4.7142 (values from memory;

@@ -355,23 +355,60 @@ pub fn vote(
     options: &HoughOptions,
     keep_votes: bool,
 ) -> (Vec<Candidate>, Vec<f32>) {
-    let (w, h) = (region.width, region.height);
-    let mut acc = vec![0f32; w * h];
     // Votes of neighbouring radii land within the 3 x 3 box below up to about 1.5 px apart, so
     // large balls can use a coarser step.
     let step_px = options
         .radius_step_px
         .max(LARGE_STEP_FRACTION * 0.5 * (r_min_px + r_max_px));
     let steps = (((r_max_px - r_min_px) / step_px).ceil() as usize).max(1);
-    // Radius histogram per accumulator cell is too costly; keep the vote-weighted mean radius.
-    let mut rsum = vec![0f32; w * h];
     let radii: Vec<f64> = (0..=steps)
         .map(|s| r_min_px + (r_max_px - r_min_px) * s as f64 / steps as f64)
         .collect();
+    let (acc, rsum) = accumulate(region, &radii);
+    let sm = box_smooth(&acc, region.width, region.height);
+    let r_mid = 0.5 * (r_min_px + r_max_px);
+    // A complete rim: about 2 pi r edge points, each landing (steps + 1) votes spread over the
+    // radii; the ones near the true radius (within the 3 x 3 box) count.
+    let per_point =
+        (1.5 / ((r_max_px - r_min_px) / steps as f64).max(1e-9)).min(steps as f64 + 1.0);
+    let full = (2.0 * std::f64::consts::PI * r_mid * per_point) as f32;
+    let votes = Votes {
+        acc: &acc,
+        rsum: &rsum,
+        sm: &sm,
+        w: region.width,
+        h: region.height,
+    };
+    let min_peak = (options.min_peak_fraction as f32) * full;
+    let nms = (options.nms_fraction * r_min_px).max(1.5);
+    let mut peaks = Vec::new();
+    for y in 1..votes.h.saturating_sub(1) {
+        for x in 1..votes.w.saturating_sub(1) {
+            let v = sm[y * votes.w + x];
+            if v >= min_peak
+                && votes.is_peak(x, y, nms)
+                && let Some(c) = votes.centroid(region, x, y, full)
+            {
+                peaks.push(c);
+            }
+        }
+    }
+    peaks.sort_by(|a, b| b.strength.total_cmp(&a.strength));
+    (peaks, if keep_votes { sm } else { Vec::new() })
+}
+
+/// Every edge point's votes for the centres at the given radii along its gradient, splatted
+/// bilinearly. Goes in: the region and the radii; comes out: the accumulator and the
+/// vote-weighted sum of radii per cell (a radius histogram per cell is too costly), row-major
+/// over the region.
+fn accumulate(region: &Region, radii: &[f64]) -> (Vec<f32>, Vec<f32>) {
+    let (w, h) = (region.width, region.height);
+    let mut acc = vec![0f32; w * h];
+    let mut rsum = vec![0f32; w * h];
     let (wf, hf) = ((w - 1) as f64, (h - 1) as f64);
     for e in &region.edges {
         let (ex, ey) = (e.x_px - region.x0 as f64, e.y_px - region.y0 as f64);
-        for &r in &radii {
+        for &r in radii {
             let (cx, cy) = (ex + r * e.ux, ey + r * e.uy);
             // In range for the 2 x 2 splat (also rejects NaN); truncation is floor here.
             if !(cx >= 0.0 && cy >= 0.0 && cx < wf && cy < hf) {
@@ -392,7 +429,11 @@ pub fn vote(
             }
         }
     }
-    // Smooth the accumulator with a 3 x 3 box.
+    (acc, rsum)
+}
+
+/// The accumulator `acc` (w x h, row-major) smoothed with a 3 x 3 box; the border stays 0.
+fn box_smooth(acc: &[f32], w: usize, h: usize) -> Vec<f32> {
     let mut sm = vec![0f32; w * h];
     for y in 1..h.saturating_sub(1) {
         for x in 1..w.saturating_sub(1) {
@@ -405,74 +446,76 @@ pub fn vote(
             sm[y * w + x] = s;
         }
     }
-    let r_mid = 0.5 * (r_min_px + r_max_px);
-    // A complete rim: about 2 pi r edge points, each landing (steps + 1) votes spread over the
-    // radii; the ones near the true radius (within the 3 x 3 box) count.
-    let per_point =
-        (1.5 / ((r_max_px - r_min_px) / steps as f64).max(1e-9)).min(steps as f64 + 1.0);
-    let full = (2.0 * std::f64::consts::PI * r_mid * per_point) as f32;
-    let min_peak = (options.min_peak_fraction as f32) * full;
-    let nms = (options.nms_fraction * r_min_px).max(1.5);
-    let nms_i = nms.ceil() as isize;
-    let mut peaks = Vec::new();
-    for y in 1..h.saturating_sub(1) {
-        for x in 1..w.saturating_sub(1) {
-            let v = sm[y * w + x];
-            if v < min_peak {
-                continue;
-            }
-            // A maximum over the disc is one over its 3 x 3 neighbours first (same tie rule):
-            // that cheap test leaves the disc scan to a few pixels per peak.
-            let beaten = |dx: isize, dy: isize| {
-                let o = sm[(y as isize + dy) as usize * w + (x as isize + dx) as usize];
-                o > v || (o == v && (dy < 0 || (dy == 0 && dx < 0)))
-            };
-            if (-1..=1).any(|dy| (-1..=1).any(|dx| (dx, dy) != (0, 0) && beaten(dx, dy))) {
-                continue;
-            }
-            let mut is_max = true;
-            'scan: for dy in -nms_i..=nms_i {
-                for dx in -nms_i..=nms_i {
-                    if (dx == 0 && dy == 0) || ((dx * dx + dy * dy) as f64) > nms * nms {
-                        continue;
-                    }
-                    let (xx, yy) = (x as isize + dx, y as isize + dy);
-                    if xx < 0 || yy < 0 || xx as usize >= w || yy as usize >= h {
-                        continue;
-                    }
-                    let o = sm[yy as usize * w + xx as usize];
-                    // Ties go to the first in scan order.
-                    if o > v || (o == v && (dy < 0 || (dy == 0 && dx < 0))) {
-                        is_max = false;
-                        break 'scan;
-                    }
-                }
-            }
-            if !is_max {
-                continue;
-            }
-            // Sub-pixel peak: centroid of the raw votes in the 3 x 3 box.
-            let (mut sx, mut sy, mut s, mut sr) = (0.0, 0.0, 0.0, 0.0);
-            for j in y - 1..=y + 1 {
-                for i in x - 1..=x + 1 {
-                    let a = acc[j * w + i] as f64;
-                    sx += a * i as f64;
-                    sy += a * j as f64;
-                    s += a;
-                    sr += rsum[j * w + i] as f64;
-                }
-            }
-            if s <= 0.0 {
-                continue;
-            }
-            peaks.push(Candidate {
-                x_px: region.x0 as f64 + sx / s,
-                y_px: region.y0 as f64 + sy / s,
-                r_px: sr / s,
-                strength: (v / full) as f64,
-            });
+    sm
+}
+
+/// A region's accumulators, w x h, row-major: raw votes, vote-weighted radii, smoothed votes.
+struct Votes<'a> {
+    acc: &'a [f32],
+    rsum: &'a [f32],
+    sm: &'a [f32],
+    w: usize,
+    h: usize,
+}
+
+impl Votes<'_> {
+    /// Whether the smoothed votes at (x, y) (not on the border) are a maximum over the disc of
+    /// radius `nms` around it; ties go to the first in scan order.
+    fn is_peak(&self, x: usize, y: usize, nms: f64) -> bool {
+        let (w, h, sm) = (self.w, self.h, self.sm);
+        let v = sm[y * w + x];
+        // A maximum over the disc is one over its 3 x 3 neighbours first (same tie rule): that
+        // cheap test leaves the disc scan to a few pixels per peak.
+        let beaten = |dx: isize, dy: isize| {
+            let o = sm[(y as isize + dy) as usize * w + (x as isize + dx) as usize];
+            o > v || (o == v && (dy < 0 || (dy == 0 && dx < 0)))
+        };
+        if (-1..=1).any(|dy| (-1..=1).any(|dx| (dx, dy) != (0, 0) && beaten(dx, dy))) {
+            return false;
         }
+        let nms_i = nms.ceil() as isize;
+        for dy in -nms_i..=nms_i {
+            for dx in -nms_i..=nms_i {
+                if (dx == 0 && dy == 0) || ((dx * dx + dy * dy) as f64) > nms * nms {
+                    continue;
+                }
+                let (xx, yy) = (x as isize + dx, y as isize + dy);
+                if xx < 0 || yy < 0 || xx as usize >= w || yy as usize >= h {
+                    continue;
+                }
+                let o = sm[yy as usize * w + xx as usize];
+                // Ties go to the first in scan order.
+                if o > v || (o == v && (dy < 0 || (dy == 0 && dx < 0))) {
+                    return false;
+                }
+            }
+        }
+        true
     }
-    peaks.sort_by(|a, b| b.strength.total_cmp(&a.strength));
-    (peaks, if keep_votes { sm } else { Vec::new() })
+
+    /// The candidate at peak (x, y): sub-pixel centre by the centroid of the raw votes in the
+    /// 3 x 3 box, radius by their weighted mean, strength as the smoothed votes over those of a
+    /// `full` rim. None when the box holds no vote.
+    fn centroid(&self, region: &Region, x: usize, y: usize, full: f32) -> Option<Candidate> {
+        let w = self.w;
+        let (mut sx, mut sy, mut s, mut sr) = (0.0, 0.0, 0.0, 0.0);
+        for j in y - 1..=y + 1 {
+            for i in x - 1..=x + 1 {
+                let a = self.acc[j * w + i] as f64;
+                sx += a * i as f64;
+                sy += a * j as f64;
+                s += a;
+                sr += self.rsum[j * w + i] as f64;
+            }
+        }
+        if s <= 0.0 {
+            return None;
+        }
+        Some(Candidate {
+            x_px: region.x0 as f64 + sx / s,
+            y_px: region.y0 as f64 + sy / s,
+            r_px: sr / s,
+            strength: (self.sm[y * w + x] / full) as f64,
+        })
+    }
 }

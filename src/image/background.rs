@@ -81,8 +81,7 @@ impl Background {
     /// read: a plate's values mapped by `f` and averaged over the 5 x 5 pixels around (cut at the
     /// photo's edges); the grid, smooth already, is `f` of its value. Regressing on a plate's own
     /// noisy pixels (the shaded fit's hidden-backdrop term) fits its noise, which the difference
-    /// photo - plate also holds, with the opposite sign: a dark ball's centres scattered 1.3x
-    /// more (dark_r12 of the bench suite, a least-squares disc fit: 0.115 px against 0.088 px).
+    /// photo - plate also holds, with the opposite sign, and scatters a dark ball's centres.
     pub fn smooth_at(&self, x: usize, y: usize, f: impl Fn(f32) -> f64) -> f64 {
         match &self.kind {
             Kind::Plate(p) => {

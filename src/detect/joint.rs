@@ -1,0 +1,401 @@
+//! Joint refinement of one region: the circles of a cluster of ball images fitted together to
+//! the edge points each of them owns.
+//!
+//! Goes in: a [`Region`]'s sub-pixel edge points, the Hough [`Candidate`]s in it and, once known,
+//! the photo's [`RadiusModel`]. Comes out: [`CircleFit`]s with centre, radius, a 1-sigma centre
+//! uncertainty and a rim-coverage score.
+//!
+//! Method: alternation between assignment and fitting. Every edge point is given to the one
+//! circle whose rim it lies on and whose centre its gradient points at; points that two rims
+//! claim are left out, so each circle is fitted to the arcs it owns (geometric fit, Gander, Golub
+//! & Strebel, BIT 34, 1994, see [`crate::detect::circle`]); circles that own too little of their
+//! rim keep the photo's common radius. Starts the rounds dropped get a second chance alone.
+
+use crate::core::stats::MAD_TO_SIGMA;
+use crate::detect::circle::{
+    Circle, CircleFit, correlation_factor, dist, geometric_fit, rim_coverage,
+};
+use crate::detect::hough::{Candidate, EdgePoint, Region};
+use crate::detect::radius::RadiusModel;
+use rayon::prelude::*;
+
+/// Settings of the refinement stage.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct RefineOptions {
+    /// Largest distance of an edge point from a rim to belong to it, pixels.
+    pub rim_tolerance_px: f64,
+    /// Smallest cosine between an edge point's gradient and the direction to the centre.
+    pub min_cosine: f64,
+    /// Rounds of assignment and fitting in a cluster.
+    pub rounds: usize,
+    /// Below this rim coverage the radius is held at the photo's common radius.
+    pub free_radius_coverage: f64,
+    /// Fewest owned edge points for a fit.
+    pub min_points: usize,
+    /// After each round, candidates with less rim coverage than this are dropped.
+    pub prune_coverage: f64,
+}
+
+impl Default for RefineOptions {
+    fn default() -> Self {
+        RefineOptions {
+            rim_tolerance_px: 1.5,
+            min_cosine: 0.75,
+            rounds: 4,
+            free_radius_coverage: 0.6,
+            min_points: 8,
+            prune_coverage: 0.15,
+        }
+    }
+}
+
+/// Starts of a cluster's fit closer than this fraction of a radius to a stronger start are
+/// dropped as second guesses at one image: half the closest spacing of two images that must stay
+/// apart (0.8 radius), so a start displaced by up to 0.2 radius towards a true neighbour still
+/// stands. Kept, the two would share the image's rim points, and a point claimed by both goes to
+/// neither.
+pub const DUPLICATE_FRACTION: f64 = 0.4;
+
+/// Fit all candidates of a region jointly. `radius` is the photo's radius model when known.
+pub fn refine_region(
+    region: &Region,
+    candidates: &[Candidate],
+    radius: Option<&RadiusModel>,
+    options: &RefineOptions,
+) -> Vec<CircleFit> {
+    let mut circles: Vec<Circle> = candidates
+        .iter()
+        .map(|c| Circle {
+            x_px: c.x_px,
+            y_px: c.y_px,
+            r_px: radius.map_or(c.r_px, |m| m.at(c.x_px, c.y_px)),
+        })
+        .collect();
+    // A start within DUPLICATE_FRACTION of a radius of a stronger one is a second guess at the
+    // same image: kept, the two would share its rim points, neither owning enough of them.
+    let mut alive = vec![true; circles.len()];
+    let mut order: Vec<usize> = (0..circles.len()).collect();
+    order.sort_by(|&a, &b| candidates[b].strength.total_cmp(&candidates[a].strength));
+    for (k, &i) in order.iter().enumerate() {
+        let (c, kept) = (circles[i], &order[..k]);
+        alive[i] = !kept.iter().any(|&j| {
+            alive[j]
+                && (c.x_px - circles[j].x_px).hypot(c.y_px - circles[j].y_px)
+                    < DUPLICATE_FRACTION * c.r_px.min(circles[j].r_px)
+        });
+    }
+    let mut result: Vec<Option<CircleFit>> = vec![None; circles.len()];
+    for round in 0..options.rounds {
+        let tol = if round == 0 {
+            2.0 * options.rim_tolerance_px
+        } else {
+            options.rim_tolerance_px
+        };
+        let owned = assign(&region.edges, &circles, &alive, tol, options.min_cosine);
+        for (i, pts_idx) in owned.iter().enumerate() {
+            if !alive[i] {
+                continue;
+            }
+            if pts_idx.len() < options.min_points {
+                alive[i] = false;
+                result[i] = None;
+                continue;
+            }
+            match fit_owned(region, pts_idx, circles[i], radius, options) {
+                Some(f) => {
+                    circles[i] = f.circle;
+                    result[i] = Some(f);
+                }
+                None => {
+                    alive[i] = false;
+                    result[i] = None;
+                }
+            }
+        }
+        // Candidates with almost no rim stop claiming points.
+        for i in 0..circles.len() {
+            if alive[i] && result[i].is_some_and(|f| f.coverage < options.prune_coverage) {
+                alive[i] = false;
+                result[i] = None;
+            }
+        }
+        // Merge circles that converged onto one image: keep the better supported.
+        for i in 0..circles.len() {
+            for j in i + 1..circles.len() {
+                if !(alive[i] && alive[j]) {
+                    continue;
+                }
+                let d =
+                    (circles[i].x_px - circles[j].x_px).hypot(circles[i].y_px - circles[j].y_px);
+                if d < 0.3 * circles[i].r_px.min(circles[j].r_px) {
+                    // The better rim coverage wins, then the more points.
+                    let key = |k: usize| result[k].map_or((0.0, 0), |f| (f.coverage, f.points));
+                    let (ki, kj) = (key(i), key(j));
+                    let drop = if ki.0 > kj.0 || (ki.0 == kj.0 && ki.1 >= kj.1) {
+                        j
+                    } else {
+                        i
+                    };
+                    alive[drop] = false;
+                    result[drop] = None;
+                }
+            }
+        }
+    }
+    second_chance(
+        region,
+        candidates,
+        radius,
+        options,
+        &mut circles,
+        &mut alive,
+        &mut result,
+    );
+    result.into_iter().flatten().collect()
+}
+
+/// Starts that the joint rounds dropped get one more try each, strongest first, against the
+/// circles that stood: on the edge points near the start, with those circles claiming theirs.
+/// In a tight chain the rounds can drop every start of an image (its points claimed about
+/// equally by junk starts between the images, so owned by none); with the junk gone, the image
+/// may hold its own.
+fn second_chance(
+    region: &Region,
+    candidates: &[Candidate],
+    radius: Option<&RadiusModel>,
+    options: &RefineOptions,
+    circles: &mut [Circle],
+    alive: &mut [bool],
+    result: &mut [Option<CircleFit>],
+) {
+    let mut order: Vec<usize> = (0..circles.len()).filter(|&i| !alive[i]).collect();
+    order.sort_by(|&a, &b| candidates[b].strength.total_cmp(&candidates[a].strength));
+    for i in order {
+        let start = Circle {
+            x_px: candidates[i].x_px,
+            y_px: candidates[i].y_px,
+            r_px: radius.map_or(candidates[i].r_px, |m| {
+                m.at(candidates[i].x_px, candidates[i].y_px)
+            }),
+        };
+        let near =
+            |c: &Circle, reach: f64| (c.x_px - start.x_px).hypot(c.y_px - start.y_px) < reach;
+        if (0..circles.len())
+            .any(|j| alive[j] && near(&circles[j], DUPLICATE_FRACTION * start.r_px))
+        {
+            continue;
+        }
+        let reach = start.r_px + 2.0 * options.rim_tolerance_px;
+        let local: Vec<usize> = (0..circles.len())
+            .filter(|&j| alive[j] && near(&circles[j], 2.0 * reach))
+            .collect();
+        let edges: Vec<EdgePoint> = region
+            .edges
+            .iter()
+            .filter(|e| (e.x_px - start.x_px).hypot(e.y_px - start.y_px) < reach)
+            .copied()
+            .collect();
+        let sub = Region {
+            x0: region.x0,
+            y0: region.y0,
+            width: region.width,
+            height: region.height,
+            edges,
+        };
+        let mut c = start;
+        let mut fit = None;
+        for _ in 0..options.rounds {
+            let mut cs: Vec<Circle> = local.iter().map(|&j| circles[j]).collect();
+            cs.push(c);
+            let live = vec![true; cs.len()];
+            let owned = assign(
+                &sub.edges,
+                &cs,
+                &live,
+                options.rim_tolerance_px,
+                options.min_cosine,
+            );
+            let mine = &owned[cs.len() - 1];
+            if mine.len() < options.min_points {
+                fit = None;
+                break;
+            }
+            fit = fit_owned(&sub, mine, c, radius, options);
+            match fit {
+                Some(f) => c = f.circle,
+                None => break,
+            }
+        }
+        if let Some(f) = fit.filter(|f| f.coverage >= options.prune_coverage)
+            && !(0..circles.len()).any(|j| {
+                alive[j]
+                    && (circles[j].x_px - f.circle.x_px).hypot(circles[j].y_px - f.circle.y_px)
+                        < DUPLICATE_FRACTION * f.circle.r_px
+            })
+        {
+            circles[i] = f.circle;
+            alive[i] = true;
+            result[i] = Some(f);
+        }
+    }
+}
+
+/// Geometric fit of one circle to the edge points it owns (`pts_idx` into `region.edges`), from
+/// `start`: the radius held at the photo's model where the rim is short, gross outliers (beyond
+/// 3 robust sigmas) dropped and the fit made again, the centre's sigma inflated for points that
+/// are neighbours along the rim. None when too few points remain or the fit fails.
+fn fit_owned(
+    region: &Region,
+    pts_idx: &[usize],
+    start: Circle,
+    radius: Option<&RadiusModel>,
+    options: &RefineOptions,
+) -> Option<CircleFit> {
+    let pts: Vec<[f64; 2]> = pts_idx
+        .iter()
+        .map(|&k| [region.edges[k].x_px, region.edges[k].y_px])
+        .collect();
+    let coverage = rim_coverage(&start, &pts);
+    let hold = match radius {
+        Some(m) if coverage < options.free_radius_coverage => Some(m.at(start.x_px, start.y_px)),
+        _ => None,
+    };
+    let fit = geometric_fit(&pts, start, hold)?;
+    let res: Vec<f64> = pts
+        .iter()
+        .map(|q| (dist(q[0] - fit.circle.x_px, q[1] - fit.circle.y_px) - fit.circle.r_px).abs())
+        .collect();
+    let mut sorted = res.clone();
+    sorted.sort_by(f64::total_cmp);
+    let cut = (3.0 * MAD_TO_SIGMA * sorted[sorted.len() / 2]).max(0.05);
+    let kept: Vec<[f64; 2]> = pts
+        .iter()
+        .zip(&res)
+        .filter(|(_, r)| **r <= cut)
+        .map(|(q, _)| *q)
+        .collect();
+    let fit = if kept.len() >= options.min_points && kept.len() < pts.len() {
+        geometric_fit(&kept, fit.circle, hold).unwrap_or(fit)
+    } else {
+        fit
+    };
+    let used = if kept.len() >= options.min_points {
+        &kept
+    } else {
+        &pts
+    };
+    let mut mags: Vec<f32> = pts_idx.iter().map(|&k| region.edges[k].magnitude).collect();
+    let mid = mags.len() / 2;
+    let strength = *mags.select_nth_unstable_by(mid, f32::total_cmp).1 as f64;
+    let inflation = correlation_factor(&fit.circle, used);
+    let var = 0.5 * (fit.covariance[(0, 0)] + fit.covariance[(1, 1)]) * inflation;
+    Some(CircleFit {
+        circle: fit.circle,
+        sigma_px: var.max(0.0).sqrt(),
+        coverage: rim_coverage(&fit.circle, used),
+        rms_px: fit.rms_px,
+        points: used.len(),
+        edge_strength: strength,
+        radius_held: hold.is_some(),
+    })
+}
+
+/// Give each edge point to the circle whose rim it lies on and whose centre its gradient points
+/// at; when two rims claim it about equally (within `tol` / 2 of each other), nobody gets it.
+fn assign(
+    edges: &[EdgePoint],
+    circles: &[Circle],
+    alive: &[bool],
+    tol: f64,
+    min_cos: f64,
+) -> Vec<Vec<usize>> {
+    let mut owned = vec![Vec::new(); circles.len()];
+    for (k, e) in edges.iter().enumerate() {
+        let mut best: Option<(usize, f64)> = None;
+        let mut second = f64::INFINITY;
+        for (i, c) in circles.iter().enumerate() {
+            if !alive[i] {
+                continue;
+            }
+            let (dx, dy) = (c.x_px - e.x_px, c.y_px - e.y_px);
+            let rho = dist(dx, dy);
+            let res = (rho - c.r_px).abs();
+            if res > tol || rho < 1e-9 {
+                continue;
+            }
+            let cos = (dx * e.ux + dy * e.uy) / rho;
+            if cos < min_cos {
+                continue;
+            }
+            match best {
+                Some((_, b)) if res >= b => second = second.min(res),
+                _ => {
+                    if let Some((_, b)) = best {
+                        second = second.min(b);
+                    }
+                    best = Some((i, res));
+                }
+            }
+        }
+        if let Some((i, b)) = best
+            && second - b > 0.5 * tol
+        {
+            owned[i].push(k);
+        }
+    }
+    owned
+}
+
+/// Pass 1 over a photo's regions: every region's candidates fitted with free radii, to learn
+/// the photo's radius. Goes in: the regions and their candidates; comes out: each region's fits.
+pub fn first_pass(
+    regions: &[Region],
+    candidates: &[Vec<Candidate>],
+    options: &RefineOptions,
+) -> Vec<Vec<CircleFit>> {
+    regions
+        .par_iter()
+        .zip(candidates)
+        .map(|(r, c)| refine_region(r, c, None, options))
+        .collect()
+}
+
+/// Pass 2 over a photo's regions, with the radius learned: each region fitted again from its
+/// first fits, plus the Hough candidates that pass 1 lost (too few points with the wrong radius)
+/// and that no first fit lies within 0.3 `common_px` of, holding the radius at `model` where the
+/// rim is short (no model: free radii). Goes in: the regions, their first fits and candidates;
+/// comes out: all fits (an image in two regions' margins may be fitted twice).
+pub fn second_pass(
+    regions: &[Region],
+    first: &[Vec<CircleFit>],
+    candidates: &[Vec<Candidate>],
+    common_px: f64,
+    model: Option<&RadiusModel>,
+    options: &RefineOptions,
+) -> Vec<CircleFit> {
+    regions
+        .par_iter()
+        .zip(first)
+        .zip(candidates)
+        .flat_map_iter(|((r, f), c)| {
+            let mut starts: Vec<Candidate> = f
+                .iter()
+                .map(|f| Candidate {
+                    x_px: f.circle.x_px,
+                    y_px: f.circle.y_px,
+                    r_px: f.circle.r_px,
+                    strength: f.coverage,
+                })
+                .collect();
+            for cand in c {
+                if starts
+                    .iter()
+                    .all(|s| (s.x_px - cand.x_px).hypot(s.y_px - cand.y_px) > 0.3 * common_px)
+                {
+                    starts.push(*cand);
+                }
+            }
+            refine_region(r, &starts, model, options)
+        })
+        .collect()
+}

@@ -1,0 +1,198 @@
+//! The ball's radius: the range to search, estimated from the blobs, and the radius of its
+//! images across the photo, learned from the first circle fits.
+//!
+//! Goes in: the threshold's [`Blobs`]; later the first [`CircleFit`]s. Comes out: a radius range
+//! ([`auto_radius`]) and a [`RadiusModel`] with the photo's common radius ([`learn`]).
+//!
+//! Method: the median size of the compact blobs, or, with none alone, the largest inscribed disc
+//! of each blob (Felzenszwalb & Huttenlocher's distance transform); the model is a least-squares
+//! plane r = a + bx x + by y with rounds of rejection at 3 robust sigmas (1.4826 x MAD).
+
+use crate::core::stats::MAD_TO_SIGMA;
+use crate::detect::WELL_COVERED;
+use crate::detect::circle::{Circle, CircleFit};
+use crate::image::threshold::Blobs;
+use nalgebra::{Matrix3, Vector3};
+
+/// Estimate the radius range to search, pixels of the blobs' photo, from the compact, isolated
+/// blobs (None: no blob to estimate it from).
+pub fn auto_radius(blobs: &Blobs) -> Option<(f64, f64)> {
+    let mut radii: Vec<f64> = blobs
+        .blobs
+        .iter()
+        .filter(|b| b.is_compact())
+        .map(|b| 0.25 * (b.width_px() + b.height_px()))
+        .collect();
+    // A chain's largest inscribed disc also takes in the halo of the threshold and whatever
+    // the chain rests on (an incline's edge): its radius is an upper bound more than a measure.
+    let mut low = 0.8;
+    if radii.is_empty() {
+        radii = inscribed_radii(blobs);
+        low = 0.5;
+    }
+    if radii.is_empty() {
+        return None;
+    }
+    radii.sort_by(f64::total_cmp);
+    let r0 = radii[radii.len() / 2];
+    let slack = blobs.block_px as f64;
+    Some(((low * r0 - slack).max(3.0), 1.25 * r0 + slack + 1.0))
+}
+
+/// With no round blob alone (every image touches a neighbour: a chain rolling down an incline),
+/// the radius of each blob of four blocks or more is that of the largest disc inside it: its
+/// largest Euclidean distance to a block outside (Felzenszwalb & Huttenlocher, "Distance
+/// transforms of sampled functions", via imageproc). A chain of overlapping images of radius r
+/// is 2 r wide, so that disc has radius r; a bounding box would give the chain's extent.
+fn inscribed_radii(blobs: &Blobs) -> Vec<f64> {
+    use image::{GrayImage, Luma};
+    let (w, h) = blobs.mask.dimensions();
+    // Outside the photo counts as outside the blob: a one-block frame around the mask.
+    let mut outside = GrayImage::from_pixel(w + 2, h + 2, Luma([255u8]));
+    for (x, y, p) in blobs.mask.enumerate_pixels() {
+        if p[0] > 0 {
+            outside.put_pixel(x + 1, y + 1, Luma([0]));
+        }
+    }
+    let d2 = imageproc::distance_transform::euclidean_squared_distance_transform(&outside);
+    let b = blobs.block_px;
+    blobs
+        .blobs
+        .iter()
+        .filter(|blob| blob.blocks >= 4)
+        .filter_map(|blob| {
+            let (bx0, by0) = (blob.x0 / b, blob.y0 / b);
+            let (bx1, by1) = (
+                (blob.x1 / b).min(w as usize - 1),
+                (blob.y1 / b).min(h as usize - 1),
+            );
+            let mut best: f64 = 0.0;
+            for by in by0..=by1 {
+                for bx in bx0..=bx1 {
+                    best = best.max(d2.get_pixel(bx as u32 + 1, by as u32 + 1)[0]);
+                }
+            }
+            (best > 0.0).then(|| best.sqrt() * b as f64)
+        })
+        .collect()
+}
+
+/// The radius of the ball's images across the photo: r = a + bx x + by y (pixels). Under a
+/// perspective tilt the scale, and so the radius, changes linearly across the plane to first order.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct RadiusModel {
+    /// Radius at the pixel origin, pixels.
+    pub a_px: f64,
+    /// Change per pixel in x.
+    pub bx: f64,
+    /// Change per pixel in y.
+    pub by: f64,
+}
+
+impl RadiusModel {
+    /// The same radius everywhere.
+    pub fn constant(r_px: f64) -> RadiusModel {
+        RadiusModel {
+            a_px: r_px,
+            bx: 0.0,
+            by: 0.0,
+        }
+    }
+
+    /// Radius expected at a pixel.
+    pub fn at(&self, x_px: f64, y_px: f64) -> f64 {
+        self.a_px + self.bx * x_px + self.by * y_px
+    }
+
+    /// Fit to well-measured circles: least squares of a plane with two rounds of rejection of
+    /// circles more than 3 robust sigmas off; the median radius when fewer than 8 circles, or when
+    /// they span less than 5 radii.
+    pub fn fit(circles: &[Circle]) -> Option<RadiusModel> {
+        if circles.is_empty() {
+            return None;
+        }
+        let mut radii: Vec<f64> = circles.iter().map(|c| c.r_px).collect();
+        radii.sort_by(f64::total_cmp);
+        let median = RadiusModel::constant(radii[radii.len() / 2]);
+        let (xmin, xmax) = circles
+            .iter()
+            .fold((f64::INFINITY, f64::NEG_INFINITY), |(a, b), c| {
+                (a.min(c.x_px), b.max(c.x_px))
+            });
+        let (ymin, ymax) = circles
+            .iter()
+            .fold((f64::INFINITY, f64::NEG_INFINITY), |(a, b), c| {
+                (a.min(c.y_px), b.max(c.y_px))
+            });
+        if circles.len() < 8 || (xmax - xmin).max(ymax - ymin) < 5.0 * median.a_px {
+            return Some(median);
+        }
+        let mut model = median;
+        let mut use_all: Vec<&Circle> = circles.iter().collect();
+        for _ in 0..3 {
+            let mut ata = Matrix3::zeros();
+            let mut atb = Vector3::zeros();
+            for c in &use_all {
+                let row = Vector3::new(1.0, c.x_px, c.y_px);
+                ata += row * row.transpose();
+                atb += row * c.r_px;
+            }
+            let Some(sol) = ata.lu().solve(&atb) else {
+                return Some(median);
+            };
+            model = RadiusModel {
+                a_px: sol[0],
+                bx: sol[1],
+                by: sol[2],
+            };
+            let mut dev: Vec<f64> = circles
+                .iter()
+                .map(|c| (c.r_px - model.at(c.x_px, c.y_px)).abs())
+                .collect();
+            dev.sort_by(f64::total_cmp);
+            let cut = (3.0 * MAD_TO_SIGMA * dev[dev.len() / 2]).max(0.02 * median.a_px);
+            use_all = circles
+                .iter()
+                .filter(|c| (c.r_px - model.at(c.x_px, c.y_px)).abs() <= cut)
+                .collect();
+            if use_all.len() < 8 {
+                return Some(median);
+            }
+        }
+        Some(model)
+    }
+}
+
+/// The photo's radius model and common radius (the median of the model at the circles' centres)
+/// from the first fits: those well covered (rim coverage at least [`WELL_COVERED`]) with a radius
+/// in `r_min_px..=r_max_px`, or, with none, all with coverage at least `min_score`. None when no
+/// fit qualifies.
+pub fn learn(
+    first: &[Vec<CircleFit>],
+    (r_min_px, r_max_px): (f64, f64),
+    min_score: f64,
+) -> Option<(RadiusModel, f64)> {
+    let mut good: Vec<Circle> = first
+        .iter()
+        .flatten()
+        .filter(|f| {
+            f.coverage >= WELL_COVERED && f.circle.r_px >= r_min_px && f.circle.r_px <= r_max_px
+        })
+        .map(|f| f.circle)
+        .collect();
+    if good.is_empty() {
+        good = first
+            .iter()
+            .flatten()
+            .filter(|f| f.coverage >= min_score)
+            .map(|f| f.circle)
+            .collect();
+    }
+    let model = RadiusModel::fit(&good)?;
+    let mut at_centre = good
+        .iter()
+        .map(|c| model.at(c.x_px, c.y_px))
+        .collect::<Vec<_>>();
+    at_centre.sort_by(f64::total_cmp);
+    Some((model, at_centre[at_centre.len() / 2]))
+}

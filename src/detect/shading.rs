@@ -1,0 +1,289 @@
+//! Shaded-sphere refinement of a photo's spots: the isolated images refitted by their pixels,
+//! the images lit from elsewhere rejected, and the others corrected by the pull measured.
+//!
+//! Goes in: the photo, its background, its [`Tone`] and the edge-fitted spots of a
+//! [`SpotReport`]. Comes out: the same report with the isolated spots replaced by shaded fits
+//! ([`crate::detect::shaded::shaded_fit`], a Lambertian sphere by variable projection), spots
+//! lit by another light rejected as [`Reason::OtherLight`], the edge fits of the others
+//! corrected by the median lit-limb pull (robust sigma 1.4826 x MAD of the pulls joins theirs)
+//! and the photo's systematic set accordingly.
+
+use crate::core::light::Tone;
+use crate::core::stats::{MAD_TO_SIGMA, upper_median};
+use crate::detect::circle::Circle;
+use crate::detect::shaded::{ShadedFit, WindowPixel, shaded_fit};
+use crate::detect::{Reason, Rejected, Spot, SpotReport};
+use crate::image::background::Background;
+use crate::image::load::Photo;
+use rayon::prelude::*;
+
+/// Refine the spots of `report` by their shading (see the module's doc).
+pub fn refine_spots(photo: &Photo, bg: &Background, tone: Tone, report: &mut SpotReport) {
+    let shaded = shade_spots(photo, bg, tone, &mut report.spots, report.systematic_px);
+    let shaded = drop_other_lights(report, shaded);
+    correct_edge_fits(report, &shaded);
+}
+
+/// The pixels around spot `s` in linear light, from 0.65 radius (or 6 px) inside its rim to
+/// 2.5 px outside, without those a neighbouring image may reach; None when a neighbour overlaps
+/// it or takes half of the window.
+fn shade_window(
+    photo: &Photo,
+    bg: &Background,
+    tone: Tone,
+    spots: &[Spot],
+    s: &Spot,
+) -> Option<Vec<WindowPixel>> {
+    let outer = s.r_px + SHADED_OUTSIDE_PX;
+    // An overlapping neighbour leaves this image no clean rim; one that is near keeps the
+    // pixels it may reach (within 2 px of its rim) out of the window.
+    let mut neighbours = Vec::new();
+    for o in spots {
+        let d = (o.x_px - s.x_px).hypot(o.y_px - s.y_px);
+        if d > 0.3 * s.r_px && d < o.r_px + s.r_px {
+            return None;
+        }
+        if d > 0.3 * s.r_px && d < o.r_px + outer + 2.0 {
+            neighbours.push(o);
+        }
+    }
+    let inner = (0.65 * s.r_px).max(s.r_px - 6.0);
+    let x0 = (s.x_px - outer).floor().max(0.0) as usize;
+    let y0 = (s.y_px - outer).floor().max(0.0) as usize;
+    let x1 = ((s.x_px + outer).ceil().max(0.0) as usize).min(photo.width - 1);
+    let y1 = ((s.y_px + outer).ceil().max(0.0) as usize).min(photo.height - 1);
+    let mut window = Vec::new();
+    let mut annulus = 0usize;
+    for y in y0..=y1 {
+        for x in x0..=x1 {
+            let (xf, yf) = (x as f64, y as f64);
+            let d = (xf - s.x_px).hypot(yf - s.y_px);
+            if d < inner || d > outer {
+                continue;
+            }
+            annulus += 1;
+            if neighbours
+                .iter()
+                .any(|o| (xf - o.x_px).hypot(yf - o.y_px) < o.r_px + 2.0)
+            {
+                continue;
+            }
+            window.push(WindowPixel {
+                x_px: xf,
+                y_px: yf,
+                value: tone.to_linear(photo.at(x, y)) - tone.to_linear(bg.at(x, y)),
+                backdrop: bg.smooth_at(x, y, |v| tone.to_linear(v)),
+            });
+        }
+    }
+    if window.is_empty() || 2 * window.len() < annulus {
+        return None;
+    }
+    let mean = window.iter().map(|q| q.backdrop).sum::<f64>() / window.len() as f64;
+    for q in &mut window {
+        q.backdrop -= mean;
+    }
+    // On a large image, every few pixels away from the rim say as much about the shading as all
+    // of them: keep the rim's band and thin the rest to the pixel budget.
+    if window.len() > SHADED_BUDGET {
+        let rim =
+            |q: &WindowPixel| ((q.x_px - s.x_px).hypot(q.y_px - s.y_px) - s.r_px).abs() <= 1.5;
+        let n_rim = window.iter().filter(|q| rim(q)).count();
+        let rest = window.len() - n_rim;
+        let stride_rim = n_rim.div_ceil(SHADED_BUDGET * 2 / 3).max(1);
+        let stride_rest = rest.div_ceil(SHADED_BUDGET / 3).max(1);
+        let (mut i_rim, mut i_rest) = (0usize, 0usize);
+        window.retain(|q| {
+            let (i, stride) = if rim(q) {
+                i_rim += 1;
+                (i_rim, stride_rim)
+            } else {
+                i_rest += 1;
+                (i_rest, stride_rest)
+            };
+            i % stride == 0
+        });
+    }
+    Some(window)
+}
+
+/// What the shaded fit of one spot found.
+#[derive(Debug, Clone, Copy)]
+struct Shaded {
+    /// Shaded fit minus edge fit: x, y, r, pixels.
+    shift: [f64; 3],
+    /// Light direction (u, v, 1) and the 1-sigma of u and v.
+    light_uv: [f64; 2],
+    light_sigma: [f64; 2],
+    /// Fitted as a uniform disc: the ball's shading was below the noise.
+    flat: bool,
+}
+
+/// Fewest shaded fits that give the photo's light for the others.
+const LIGHT_MIN_FITS: usize = 5;
+
+/// A spot whose light is this far from the photo's, degrees (and 4 of its sigmas), was lit from
+/// elsewhere. The light of one photo's images agrees within a few degrees; a
+/// mirror image in the floor, lit by the mirrored light, is 42 degrees off under the default
+/// light 27 degrees off the lens axis.
+const OTHER_LIGHT_DEG: f64 = 20.0;
+
+/// The photo's images agree on their light when their median angle from it is at most this,
+/// degrees.
+const LIGHT_AGREE_DEG: f64 = 5.0;
+
+/// Spots whose shading shows another light than the photo's (the median of its shaded fits'
+/// light directions, when they agree on it) are rejected as `OtherLight`; the shaded fits of the
+/// rest are returned.
+fn drop_other_lights(report: &mut SpotReport, shaded: Vec<Option<Shaded>>) -> Vec<Option<Shaded>> {
+    let lights: Vec<&Shaded> = shaded.iter().flatten().collect();
+    if lights.len() < LIGHT_MIN_FITS {
+        return shaded;
+    }
+    let u = upper_median(lights.iter().map(|f| f.light_uv[0]).collect());
+    let v = upper_median(lights.iter().map(|f| f.light_uv[1]).collect());
+    let unit = |u: f64, v: f64| {
+        let n = (u * u + v * v + 1.0).sqrt();
+        [u / n, v / n, 1.0 / n]
+    };
+    let photo_light = unit(u, v);
+    let angle_deg = |f: &Shaded| {
+        let l = unit(f.light_uv[0], f.light_uv[1]);
+        let cos: f64 = (0..3).map(|i| l[i] * photo_light[i]).sum();
+        cos.clamp(-1.0, 1.0).acos().to_degrees()
+    };
+    // Only a light that the photo's images agree on tells one apart (a faint dark ball against
+    // its plate shows too little shading for that).
+    if upper_median(lights.iter().map(|f| angle_deg(f)).collect()) > LIGHT_AGREE_DEG {
+        return shaded;
+    }
+    let spots = std::mem::take(&mut report.spots);
+    let mut kept = Vec::with_capacity(shaded.len());
+    for (s, f) in spots.into_iter().zip(shaded) {
+        if let Some(f) = &f {
+            let angle_deg = angle_deg(f);
+            // The direction turns by about d(u, v) / (1 + u^2 + v^2) radians.
+            let [a, b] = f.light_uv;
+            let sigma_deg =
+                (f.light_sigma[0].hypot(f.light_sigma[1]) / (1.0 + a * a + b * b)).to_degrees();
+            if angle_deg > OTHER_LIGHT_DEG && angle_deg > 4.0 * sigma_deg {
+                report.rejected.push(Rejected {
+                    x_px: s.x_px,
+                    y_px: s.y_px,
+                    r_px: s.r_px,
+                    score: s.score,
+                    reason: Reason::OtherLight,
+                });
+                continue;
+            }
+        }
+        report.spots.push(s);
+        kept.push(f);
+    }
+    kept
+}
+
+/// Fewest shaded fits that measure the photo's edge bias for the others.
+const EDGE_BIAS_MIN_FITS: usize = 3;
+
+/// The edge fits beside shaded fits. The lit limb pulls every edge fit of a photo alike (one
+/// light, one ball), so the shaded fits, which it does not pull, measure that pull: the median of
+/// (shaded - edge) over the refined images corrects the others (images overlapping a neighbour),
+/// and the scatter of those differences (1.4826 x their median absolute deviation, the larger
+/// axis) joins their sigma. Nothing common is left, so the photo's systematic becomes 0. With one
+/// or two shaded fits the pull is not measured: the edge fits keep their centres and the
+/// systematic joins their sigma (it is now a difference between images, not common to all).
+/// When most shaded fits are uniform discs (a dark ball against its plate), there is no lit limb
+/// to pull the edge fits: they keep their centres and sigmas, and the systematic is 0 (the
+/// differences would be the two fits' noise, and correcting by them adds error rather than
+/// removing it).
+fn correct_edge_fits(report: &mut SpotReport, shaded: &[Option<Shaded>]) {
+    let fits: Vec<&Shaded> = shaded.iter().flatten().collect();
+    if fits.is_empty() {
+        return;
+    }
+    if 2 * fits.iter().filter(|f| f.flat).count() > fits.len() {
+        report.systematic_px = 0.0;
+        return;
+    }
+    let measured: Vec<[f64; 3]> = fits.iter().filter(|f| !f.flat).map(|f| f.shift).collect();
+    let (bias, scatter_px) = if measured.len() >= EDGE_BIAS_MIN_FITS {
+        let bias: [f64; 3] =
+            std::array::from_fn(|k| upper_median(measured.iter().map(|m| m[k]).collect()));
+        let mad = |k: usize| {
+            MAD_TO_SIGMA * upper_median(measured.iter().map(|m| (m[k] - bias[k]).abs()).collect())
+        };
+        (bias, mad(0).max(mad(1)))
+    } else {
+        ([0.0; 3], report.systematic_px)
+    };
+    for (s, shift) in report.spots.iter_mut().zip(shaded) {
+        if shift.is_none() {
+            s.x_px += bias[0];
+            s.y_px += bias[1];
+            s.r_px += bias[2];
+            s.sigma_px = s.sigma_px.hypot(scatter_px);
+        }
+    }
+    report.systematic_px = 0.0;
+}
+
+/// Largest number of pixels in a shaded fit's window.
+const SHADED_BUDGET: usize = 1500;
+
+/// How far outside the rim a shaded fit's window reaches, pixels.
+const SHADED_OUTSIDE_PX: f64 = 2.5;
+
+/// Replace the edge fits of the isolated spots by shaded-sphere fits of their pixels. A fit
+/// replaces the edge fit only when it lands near it (a window holding something else than one
+/// ball image does not) and is surer than the edge fit with its lit-limb systematic (a window
+/// that lost much of the rim to an incline's edge may not be). Gives, for each spot it refined,
+/// the shaded fit minus the edge fit (x, y, r).
+fn shade_spots(
+    photo: &Photo,
+    bg: &Background,
+    tone: Tone,
+    spots: &mut [Spot],
+    systematic_px: f64,
+) -> Vec<Option<Shaded>> {
+    let fits: Vec<Option<ShadedFit>> = spots
+        .par_iter()
+        .map(|s| {
+            let window = shade_window(photo, bg, tone, spots, s)?;
+            let start = Circle {
+                x_px: s.x_px,
+                y_px: s.y_px,
+                r_px: s.r_px,
+            };
+            shaded_fit(&window, start)
+        })
+        .collect();
+    let mut shaded = vec![None; spots.len()];
+    for ((s, fit), done) in spots.iter_mut().zip(fits).zip(shaded.iter_mut()) {
+        let Some(fit) = fit else {
+            continue;
+        };
+        let shift = (fit.circle.x_px - s.x_px).hypot(fit.circle.y_px - s.y_px);
+        let edge_total = s.sigma_px.hypot(systematic_px);
+        if shift <= 0.05 * s.r_px + 3.0 * s.sigma_px + 0.1
+            && (fit.circle.r_px - s.r_px).abs() <= 0.05 * s.r_px + 0.3
+            && fit.sigma_px < edge_total
+        {
+            *done = Some(Shaded {
+                shift: [
+                    fit.circle.x_px - s.x_px,
+                    fit.circle.y_px - s.y_px,
+                    fit.circle.r_px - s.r_px,
+                ],
+                light_uv: fit.light_uv,
+                light_sigma: fit.light_sigma,
+                flat: fit.flat,
+            });
+            s.x_px = fit.circle.x_px;
+            s.y_px = fit.circle.y_px;
+            s.r_px = fit.circle.r_px;
+            s.sigma_px = fit.sigma_px;
+        }
+    }
+    shaded
+}
