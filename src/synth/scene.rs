@@ -467,6 +467,41 @@ fn default_distractor_albedo() -> f64 {
     0.5
 }
 
+/// The scene file's checks, each refusal naming the file and the key.
+struct Check<'a> {
+    path: &'a Path,
+}
+
+impl Check<'_> {
+    fn bad(&self, key: &str, why: &str) -> Result<()> {
+        Err(Error::config(self.path, format!("{key}: {why}")))
+    }
+
+    fn positive(&self, key: &str, v: f64) -> Result<()> {
+        if v.is_finite() && v > 0.0 {
+            Ok(())
+        } else {
+            self.bad(key, "must be a positive finite number")
+        }
+    }
+
+    fn finite(&self, key: &str, v: f64) -> Result<()> {
+        if v.is_finite() {
+            Ok(())
+        } else {
+            self.bad(key, "must be a finite number")
+        }
+    }
+
+    fn unit(&self, key: &str, v: f64) -> Result<()> {
+        if v.is_finite() && (0.0..=1.0).contains(&v) {
+            Ok(())
+        } else {
+            self.bad(key, "must be between 0 and 1")
+        }
+    }
+}
+
 impl Scene {
     /// Parse and validate a scene from TOML text; `path` names the source in errors.
     pub fn from_toml(text: &str, path: &Path) -> Result<Scene> {
@@ -486,34 +521,21 @@ impl Scene {
 
     /// Refuse absurd values, naming the key.
     pub fn validate(&self, path: &Path) -> Result<()> {
-        let bad = |key: &str, why: &str| Err(Error::config(path, format!("{key}: {why}")));
-        let positive = |key: &str, v: f64| {
-            if v.is_finite() && v > 0.0 {
-                Ok(())
-            } else {
-                bad(key, "must be a positive finite number")
-            }
-        };
-        let finite = |key: &str, v: f64| {
-            if v.is_finite() {
-                Ok(())
-            } else {
-                bad(key, "must be a finite number")
-            }
-        };
-        let unit = |key: &str, v: f64| {
-            if v.is_finite() && (0.0..=1.0).contains(&v) {
-                Ok(())
-            } else {
-                bad(key, "must be between 0 and 1")
-            }
-        };
-        positive("ball.diameter_m", self.ball.diameter_m)?;
+        let ck = Check { path };
+        self.check_motion(&ck)?;
+        self.check_strobe_and_camera(&ck)?;
+        self.check_photo(&ck)?;
+        self.check_planning(&ck)
+    }
+
+    /// The ball, the incline or the start, the flight and the floor.
+    fn check_motion(&self, ck: &Check) -> Result<()> {
+        ck.positive("ball.diameter_m", self.ball.diameter_m)?;
         if self.ball.build == Build::Thick {
             match self.ball.inner_diameter_m {
                 Some(d) if d.is_finite() && d >= 0.0 && d < self.ball.diameter_m => {}
                 _ => {
-                    return bad(
+                    return ck.bad(
                         "ball.inner_diameter_m",
                         "a thick shell needs 0 <= inner diameter < diameter",
                     );
@@ -522,118 +544,128 @@ impl Scene {
         }
         match (&self.incline, &self.start) {
             (Some(inc), None) => {
-                positive("incline.length_m", inc.length_m)?;
+                ck.positive("incline.length_m", inc.length_m)?;
                 if !(inc.angle_deg.is_finite() && inc.angle_deg > 0.0 && inc.angle_deg < 90.0) {
-                    return bad("incline.angle_deg", "must be between 0 and 90 degrees");
+                    return ck.bad("incline.angle_deg", "must be between 0 and 90 degrees");
                 }
-                positive("incline.bottom_height_m", inc.bottom_height_m)?;
-                finite("incline.bottom_x_m", inc.bottom_x_m)?;
+                ck.positive("incline.bottom_height_m", inc.bottom_height_m)?;
+                ck.finite("incline.bottom_x_m", inc.bottom_x_m)?;
                 if !(inc.rolling_resistance.is_finite() && inc.rolling_resistance >= 0.0) {
-                    return bad("incline.rolling_resistance", "must be >= 0");
+                    return ck.bad("incline.rolling_resistance", "must be >= 0");
                 }
                 let th = inc.angle_deg.to_radians();
                 if th.sin() - inc.rolling_resistance * th.cos() <= 0.0 {
-                    return bad(
+                    return ck.bad(
                         "incline.rolling_resistance",
                         "too large: the ball would not start rolling",
                     );
                 }
             }
             (None, Some(s)) => {
-                finite("start.x_m", s.x_m)?;
-                finite("start.vx_mps", s.vx_mps)?;
-                finite("start.vy_mps", s.vy_mps)?;
+                ck.finite("start.x_m", s.x_m)?;
+                ck.finite("start.vx_mps", s.vx_mps)?;
+                ck.finite("start.vy_mps", s.vy_mps)?;
                 if !(s.y_m.is_finite() && s.y_m >= self.ball.radius_m()) {
-                    return bad(
+                    return ck.bad(
                         "start.y_m",
                         "the ball's centre must start at or above one radius",
                     );
                 }
             }
             (Some(_), Some(_)) => {
-                return bad("start", "give either [incline] or [start], not both");
+                return ck.bad("start", "give either [incline] or [start], not both");
             }
-            (None, None) => return bad("incline", "give either [incline] or [start]"),
+            (None, None) => return ck.bad("incline", "give either [incline] or [start]"),
         }
-        positive("flight.gravity_mps2", self.flight.gravity_mps2)?;
+        ck.positive("flight.gravity_mps2", self.flight.gravity_mps2)?;
         if !(self.flight.drag_per_m.is_finite() && self.flight.drag_per_m >= 0.0) {
-            return bad("flight.drag_per_m", "must be >= 0");
+            return ck.bad("flight.drag_per_m", "must be >= 0");
         }
-        unit("floor.restitution", self.floor.restitution)?;
-        finite(
+        ck.unit("floor.restitution", self.floor.restitution)?;
+        ck.finite(
             "floor.restitution_slope_s_per_m",
             self.floor.restitution_slope_s_per_m,
         )?;
-        unit("floor.tangential_ratio", self.floor.tangential_ratio)?;
-        unit("floor.reflectance", self.floor.reflectance)?;
-        positive("floor.depth_m", self.floor.depth_m)?;
-        positive("strobe.rate_hz", self.strobe.rate_hz)?;
+        ck.unit("floor.tangential_ratio", self.floor.tangential_ratio)?;
+        ck.unit("floor.reflectance", self.floor.reflectance)?;
+        ck.positive("floor.depth_m", self.floor.depth_m)?;
+        Ok(())
+    }
+
+    /// The strobe and the camera.
+    fn check_strobe_and_camera(&self, ck: &Check) -> Result<()> {
+        ck.positive("strobe.rate_hz", self.strobe.rate_hz)?;
         if self.strobe.rate_hz > 1e5 {
-            return bad("strobe.rate_hz", "above 100 kHz is not a strobe");
+            return ck.bad("strobe.rate_hz", "above 100 kHz is not a strobe");
         }
-        finite("strobe.first_flash_s", self.strobe.first_flash_s)?;
+        ck.finite("strobe.first_flash_s", self.strobe.first_flash_s)?;
         if self.strobe.first_flash_s < 0.0 {
-            return bad("strobe.first_flash_s", "must be >= 0 (release is at t = 0)");
+            return ck.bad("strobe.first_flash_s", "must be >= 0 (release is at t = 0)");
         }
-        positive("strobe.exposure_s", self.strobe.exposure_s)?;
+        ck.positive("strobe.exposure_s", self.strobe.exposure_s)?;
         if self.strobe.exposure_s * self.strobe.rate_hz > 100_000.0 {
-            return bad("strobe.exposure_s", "more than 100000 flashes");
+            return ck.bad("strobe.exposure_s", "more than 100000 flashes");
         }
         if !(self.strobe.flash_duration_s.is_finite()
             && self.strobe.flash_duration_s >= 0.0
             && self.strobe.flash_duration_s < self.strobe.interval_s())
         {
-            return bad(
+            return ck.bad(
                 "strobe.flash_duration_s",
                 "must be >= 0 and shorter than the flash interval",
             );
         }
         if self.strobe.max_flashes == Some(0) {
-            return bad("strobe.max_flashes", "must be at least 1");
+            return ck.bad("strobe.max_flashes", "must be at least 1");
         }
         let c = &self.camera;
-        positive("camera.px_per_m", c.px_per_m)?;
+        ck.positive("camera.px_per_m", c.px_per_m)?;
         if c.width_px == 0 || c.height_px == 0 || c.width_px > 20000 || c.height_px > 20000 {
-            return bad("camera.width_px", "image sides must be 1..20000 pixels");
+            return ck.bad("camera.width_px", "image sides must be 1..20000 pixels");
         }
-        finite("camera.origin_x_px", c.origin_x_px)?;
-        finite("camera.origin_y_px", c.origin_y_px)?;
+        ck.finite("camera.origin_x_px", c.origin_x_px)?;
+        ck.finite("camera.origin_y_px", c.origin_y_px)?;
         if !(c.roll_deg.is_finite() && c.roll_deg.abs() <= 45.0) {
-            return bad("camera.roll_deg", "must be within +-45 degrees");
+            return ck.bad("camera.roll_deg", "must be within +-45 degrees");
         }
         if !(c.tilt_deg.is_finite() && c.tilt_deg.abs() <= 60.0) {
-            return bad("camera.tilt_deg", "must be within +-60 degrees");
+            return ck.bad("camera.tilt_deg", "must be within +-60 degrees");
         }
         if let Some(f) = c.focal_px {
-            positive("camera.focal_px", f)?;
+            ck.positive("camera.focal_px", f)?;
         }
         if !(c.k1.is_finite() && c.k1.abs() < 1.0) {
-            return bad("camera.k1", "must be within +-1");
+            return ck.bad("camera.k1", "must be within +-1");
         }
         if !(c.k2.is_finite() && c.k2.abs() < 1.0) {
-            return bad("camera.k2", "must be within +-1");
+            return ck.bad("camera.k2", "must be within +-1");
         }
+        Ok(())
+    }
+
+    /// The look of the photograph.
+    fn check_photo(&self, ck: &Check) -> Result<()> {
         let p = &self.photo;
         if let Some(v) = p.flash_exposure {
-            positive("photo.flash_exposure", v)?;
+            ck.positive("photo.flash_exposure", v)?;
         }
         if !(p.ambient_exposure.is_finite() && p.ambient_exposure >= 0.0) {
-            return bad("photo.ambient_exposure", "must be >= 0");
+            return ck.bad("photo.ambient_exposure", "must be >= 0");
         }
         if let Some(v) = p.ball_albedo {
-            unit("photo.ball_albedo", v)?;
+            ck.unit("photo.ball_albedo", v)?;
         }
         if let Some(v) = p.backdrop_level {
-            unit("photo.backdrop_level", v)?;
+            ck.unit("photo.backdrop_level", v)?;
         }
-        unit("photo.floor_level", p.floor_level)?;
-        unit("photo.incline_level", p.incline_level)?;
-        unit("photo.texture", p.texture)?;
-        unit("photo.gradient", p.gradient)?;
-        unit("photo.vignetting", p.vignetting)?;
-        positive("photo.full_well_e", p.full_well_e)?;
+        ck.unit("photo.floor_level", p.floor_level)?;
+        ck.unit("photo.incline_level", p.incline_level)?;
+        ck.unit("photo.texture", p.texture)?;
+        ck.unit("photo.gradient", p.gradient)?;
+        ck.unit("photo.vignetting", p.vignetting)?;
+        ck.positive("photo.full_well_e", p.full_well_e)?;
         if !(p.read_noise_e.is_finite() && p.read_noise_e >= 0.0) {
-            return bad("photo.read_noise_e", "must be >= 0");
+            return ck.bad("photo.read_noise_e", "must be >= 0");
         }
         for (i, v) in p.ball_rgb.iter().chain(p.backdrop_rgb.iter()).enumerate() {
             if !(v.is_finite() && (0.0..=1.0).contains(v)) {
@@ -642,36 +674,41 @@ impl Scene {
                 } else {
                     "photo.backdrop_rgb"
                 };
-                return bad(key, "colour multipliers must be between 0 and 1");
+                return ck.bad(key, "colour multipliers must be between 0 and 1");
             }
         }
         if !(p.light_dir.iter().all(|v| v.is_finite()) && p.light_dir[2] > 0.0) {
-            return bad(
+            return ck.bad(
                 "photo.light_dir",
                 "must be finite with z > 0 (the flash is on the camera's side)",
             );
         }
         if p.bit_depth != 8 && p.bit_depth != 16 {
-            return bad("photo.bit_depth", "must be 8 or 16");
+            return ck.bad("photo.bit_depth", "must be 8 or 16");
         }
         if p.jpeg_quality == 0 || p.jpeg_quality > 100 {
-            return bad("photo.jpeg_quality", "must be 1..100");
+            return ck.bad("photo.jpeg_quality", "must be 1..100");
         }
+        Ok(())
+    }
+
+    /// The flash unit, the wishes and the distractors.
+    fn check_planning(&self, ck: &Check) -> Result<()> {
         if let Some(u) = &self.flash_unit {
             if u.levels.is_empty() {
-                return bad("flash_unit.levels", "give at least one power level");
+                return ck.bad("flash_unit.levels", "give at least one power level");
             }
             for (i, l) in u.levels.iter().enumerate() {
-                positive(
+                ck.positive(
                     &format!("flash_unit.levels[{i}].max_rate_hz"),
                     l.max_rate_hz,
                 )?;
-                positive(
+                ck.positive(
                     &format!("flash_unit.levels[{i}].flash_duration_s"),
                     l.flash_duration_s,
                 )?;
                 if l.max_flashes < 2 {
-                    return bad(
+                    return ck.bad(
                         &format!("flash_unit.levels[{i}].max_flashes"),
                         "a strobe photo needs at least 2 flashes",
                     );
@@ -680,18 +717,18 @@ impl Scene {
         }
         if let Some(w) = &self.wishes {
             if w.min_images_per_arc == 0 {
-                return bad("wishes.min_images_per_arc", "must be at least 1");
+                return ck.bad("wishes.min_images_per_arc", "must be at least 1");
             }
             if !(w.min_separation_diameters.is_finite() && w.min_separation_diameters >= 0.0) {
-                return bad("wishes.min_separation_diameters", "must be >= 0");
+                return ck.bad("wishes.min_separation_diameters", "must be >= 0");
             }
-            positive("wishes.max_blur_px", w.max_blur_px)?;
+            ck.positive("wishes.max_blur_px", w.max_blur_px)?;
         }
         for (i, d) in self.distractors.iter().enumerate() {
-            finite(&format!("distractors[{i}].x_px"), d.x_px)?;
-            finite(&format!("distractors[{i}].y_px"), d.y_px)?;
-            positive(&format!("distractors[{i}].r_px"), d.r_px)?;
-            unit(&format!("distractors[{i}].albedo"), d.albedo)?;
+            ck.finite(&format!("distractors[{i}].x_px"), d.x_px)?;
+            ck.finite(&format!("distractors[{i}].y_px"), d.y_px)?;
+            ck.positive(&format!("distractors[{i}].r_px"), d.r_px)?;
+            ck.unit(&format!("distractors[{i}].albedo"), d.albedo)?;
         }
         Ok(())
     }
