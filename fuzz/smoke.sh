@@ -35,7 +35,7 @@ for target in load_spots profile scene; do
         "$scratch/$target" "fuzz/seeds/$target" -- \
         -runs="$runs" -max_len=4096 -rss_limit_mb=2048 -timeout=60 \
         >"$scratch/$target.log" 2>&1; then
-        done_line=$(grep -o 'Done [0-9]* runs in [0-9]* second(s)' "$scratch/$target.log" | tail -n 1)
+        done_line=$(grep -o 'Done [0-9]* runs in [0-9]* second(s)' "$scratch/$target.log" | tail -n 1 || true)
         echo "smoke: $target: ${done_line:-done}"
         passed=$((passed + 1))
     else
