@@ -1,32 +1,52 @@
 #!/usr/bin/env bash
-# Fuzz the loader + spot finder and the rig profile parser for a fixed time each and print the
-# executions run. Usage: bench/run_fuzz.sh [SECONDS_PER_TARGET] (default 60).
+# Fuzz each target for a fixed number of executions (or a time) and print the executions run.
+# Works on the stable toolchain: cargo-fuzz's nightly-only flags are let through with
+# RUSTC_BOOTSTRAP=1.
+#
+# Usage: bench/run_fuzz.sh [RUNS_PER_TARGET] [TARGET...]
+#   RUNS_PER_TARGET  executions per target (default 1000000; load_spots gets a tenth of it)
+#   TARGET           load_spots, profile, scene (default: all three)
+# Environment: FUZZ_SANITIZER (address or none, default address), FUZZ_MAX_TIME (seconds, a
+# bound on each run besides the count; default none).
+# The growing corpus is fuzz/corpus/<target> (ignored by git), seeded from fuzz/seeds/<target>.
 set -euo pipefail
 root="$(cd "$(dirname "$0")/.." && pwd)"
-cd "$root/fuzz"
-seconds="${1:-60}"
-if ! rustup toolchain list 2>/dev/null | grep -q '^nightly'; then
-    if ! rustup toolchain install nightly --profile minimal; then
-        echo "run_fuzz: cargo fuzz needs a nightly toolchain and none can be installed here; skipped."
-        exit 0
-    fi
-fi
-if ! cargo +nightly fuzz --version >/dev/null 2>&1; then
+cd "$root"
+runs="${1:-1000000}"
+shift || true
+targets=("$@")
+[ ${#targets[@]} -gt 0 ] || targets=(load_spots profile scene)
+sanitizer="${FUZZ_SANITIZER:-address}"
+export RUSTC_BOOTSTRAP=1
+if ! cargo fuzz --version >/dev/null 2>&1; then
     cargo install cargo-fuzz --locked
 fi
-for target in load_spots profile; do
-    corpus="corpus/$target"
-    mkdir -p "$corpus"
-    if [ "$target" = load_spots ] && [ -d ../../testimages ]; then
-        # Seed with the project's own small photos, if any.
-        find ../../testimages -maxdepth 2 -type f -size -200k \
-            \( -name '*.png' -o -name '*.jpg' -o -name '*.tif' \) -exec cp -n {} "$corpus/" \; || true
+for target in "${targets[@]}"; do
+    n="$runs"
+    max_len=4096
+    if [ "$target" = load_spots ]; then
+        # Each decode and spot search costs far more than a parse.
+        n=$((runs / 10))
     fi
-    log="$target.log"
+    corpus="fuzz/corpus/$target"
+    mkdir -p "$corpus"
+    log="fuzz/$target.log"
+    extra=()
+    [ -n "${FUZZ_MAX_TIME:-}" ] && extra+=("-max_total_time=$FUZZ_MAX_TIME")
+    start=$(date +%s)
     # -rss_limit_mb: the decoding limits must keep memory bounded on any input.
-    # cargo fuzz looks for fuzz/ at the project root unless told where the fuzz crate is.
-    (cd "$root" && cargo +nightly fuzz run --fuzz-dir fuzz "$target" "fuzz/$corpus" -- \
-        -max_total_time="$seconds" -rss_limit_mb=2048 -max_len=262144) 2>&1 | tee "$log" | tail -n 3
+    set +e
+    cargo fuzz run --fuzz-dir fuzz --sanitizer "$sanitizer" "$target" "$corpus" "fuzz/seeds/$target" -- \
+        -runs="$n" -max_len="$max_len" -rss_limit_mb=2048 -timeout=60 \
+        "${extra[@]}" >"$log" 2>&1
+    status=$?
+    set -e
+    secs=$(($(date +%s) - start))
+    tail -n 3 "$log"
     execs=$(grep -o 'Done [0-9]* runs' "$log" | tail -n 1 | grep -o '[0-9]*' || echo "?")
-    echo "run_fuzz: $target: $execs executions in ${seconds} s without a crash"
+    if [ "$status" -ne 0 ]; then
+        echo "run_fuzz: $target: FAILED (status $status) after ${secs} s; see $log and fuzz/artifacts/$target/"
+        exit "$status"
+    fi
+    echo "run_fuzz: $target: $execs executions in ${secs} s without a crash"
 done

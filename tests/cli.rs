@@ -1,20 +1,13 @@
 //! The `beadline` command end to end: outputs a rig pipeline can read back, and one-line errors.
 
-use beadline::report::spots::SpotsDoc;
-use std::path::Path;
-use std::process::Command;
+mod common;
 
-fn beadline(args: &[&str], dir: &Path) -> std::process::Output {
-    Command::new(env!("CARGO_BIN_EXE_beadline"))
-        .args(args)
-        .current_dir(dir)
-        .output()
-        .expect("the binary runs")
-}
+use beadline::report::spots::SpotsDoc;
+use common::beadline;
 
 #[test]
 fn render_then_spots_json_reads_back_with_the_schema_types() {
-    let dir = tempfile::tempdir().unwrap();
+    let dir = common::tempdir();
     std::fs::write(
         dir.path().join("scene.toml"),
         beadline::synth::scene::DEMO_SCENE,
@@ -83,7 +76,7 @@ fn render_then_spots_json_reads_back_with_the_schema_types() {
 
 #[test]
 fn bad_input_gives_one_line_naming_the_file_and_a_failing_status() {
-    let dir = tempfile::tempdir().unwrap();
+    let dir = common::tempdir();
     std::fs::write(dir.path().join("bad.jpg"), b"not a photo").unwrap();
     let out = beadline(&["spots", "bad.jpg", "-o", "s.json"], dir.path());
     assert!(!out.status.success());

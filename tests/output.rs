@@ -1,5 +1,7 @@
 //! Output writing: complete files or none, and special targets left what they are.
 
+mod common;
+
 use beadline::core::output::{write_atomic, write_text};
 use std::os::unix::fs::FileTypeExt;
 
@@ -14,7 +16,7 @@ fn extra_names(dir: &std::path::Path, known: &[&str]) -> Vec<String> {
 
 #[test]
 fn a_failed_write_leaves_the_old_file_and_no_temporary() {
-    let dir = tempfile::tempdir().unwrap();
+    let dir = common::tempdir();
     let path = dir.path().join("report.json");
     std::fs::write(&path, "old").unwrap();
     let result = write_atomic(&path, |w| {
@@ -29,7 +31,7 @@ fn a_failed_write_leaves_the_old_file_and_no_temporary() {
 
 #[test]
 fn a_link_is_written_through_and_stays_a_link() {
-    let dir = tempfile::tempdir().unwrap();
+    let dir = common::tempdir();
     let real = dir.path().join("real.json");
     let link = dir.path().join("link.json");
     std::fs::write(&real, "old").unwrap();
@@ -49,7 +51,7 @@ fn a_link_is_written_through_and_stays_a_link() {
 /// would leave a regular file where every later program expects the device.
 #[test]
 fn a_named_pipe_is_written_into_and_stays_a_pipe() {
-    let dir = tempfile::tempdir().unwrap();
+    let dir = common::tempdir();
     let pipe = dir.path().join("pipe");
     let made = std::process::Command::new("mkfifo")
         .arg(&pipe)

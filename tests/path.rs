@@ -1,12 +1,14 @@
 //! Path ordering checks against a brute-force linear scan and against rendered ground truth.
 
+mod common;
+
 use beadline::detect::Spot;
 use beadline::synth::{self, FlashTruth, scene::Scene};
 use beadline::track::{PathOptions, PathResult, PixelPoint, SpotTree, StrayReason, order_path};
+use common::DropScene;
 use rand::seq::SliceRandom;
 use rand::{RngExt, SeedableRng};
 use rand_chacha::ChaCha8Rng;
-use std::path::Path;
 
 /// Truth flashes inside the frame, in time order.
 fn truth_flashes(scene: &Scene) -> Vec<FlashTruth> {
@@ -59,33 +61,6 @@ fn assert_truth_order(result: &PathResult, truth_n: &[Option<usize>]) -> usize {
         expected.iter().map(|&n| (n - first, Some(n))).collect();
     assert_eq!(got, want, "recovered (n, truth n) pairs");
     path.points.len()
-}
-
-fn drop_scene() -> Scene {
-    let text = r#"
-seed = 11
-[ball]
-diameter_m = 0.04
-[start]
-x_m = 0.1
-y_m = 0.8
-vx_mps = 0.3
-[floor]
-restitution = 0.8
-[strobe]
-rate_hz = 25.0
-first_flash_s = 0.15
-exposure_s = 1.45
-[camera]
-px_per_m = 800.0
-width_px = 1000
-height_px = 900
-origin_x_px = 200.0
-origin_y_px = 850.0
-[photo]
-noise = false
-"#;
-    Scene::from_toml(text, Path::new("drop.toml")).unwrap()
 }
 
 #[test]
@@ -163,7 +138,7 @@ fn demo_path_is_recovered_in_order() {
 fn drop_test_with_bounces_is_recovered_in_order() {
     // Source of truth: the renderer's exact flash positions for a drop with a slow sideways
     // drift, so the arcs come down close to where they went up.
-    let scene = drop_scene();
+    let scene = DropScene::drifting().scene();
     let flashes = truth_flashes(&scene);
     let photo = synth::render(&scene);
     assert!(photo.truth.bounces.len() >= 3);
@@ -177,7 +152,7 @@ fn drop_test_with_bounces_is_recovered_in_order() {
 #[test]
 fn a_deleted_image_is_listed_missing_and_later_flashes_keep_their_index() {
     // Source of truth: the renderer's flashes with one removed in flight and one on the incline.
-    for scene in [Scene::demo(), drop_scene()] {
+    for scene in [Scene::demo(), DropScene::drifting().scene()] {
         let all = truth_flashes(&scene);
         for removed in [5usize, 20] {
             let flashes: Vec<FlashTruth> = all.iter().filter(|f| f.n != removed).cloned().collect();
@@ -370,7 +345,7 @@ fn two_balls_give_two_paths() {
     // Source of truth: the renderer's flashes of two scenes laid over each other (the drop
     // moved right so that its arcs cross the demo's last arcs).
     let demo = truth_flashes(&Scene::demo());
-    let mut drop = truth_flashes(&drop_scene());
+    let mut drop = truth_flashes(&DropScene::drifting().scene());
     for f in &mut drop {
         f.x_px += 700.0;
     }

@@ -1,5 +1,7 @@
 //! Measurement core checks: NIST reference data, textbook homographies and rendered ground truth.
 
+mod common;
+
 use beadline::calibrate::{Calibration, Distortion, homography_dlt};
 use beadline::core::ball::Build;
 use beadline::physics::bands::{Band, Outcome};
@@ -8,10 +10,10 @@ use beadline::physics::{MeasureOptions, Measurement, Quantity, TimedPoint, Unkno
 use beadline::synth::camera::Projection;
 use beadline::synth::scene::Scene;
 use beadline::synth::sim::{Motion, rolling_end_speed_mps};
+use common::DropScene;
 use nalgebra::Matrix3;
 use rand::SeedableRng;
 use rand_distr::{Distribution, Normal};
-use std::path::Path;
 
 const NOISE_PX: f64 = 0.05;
 
@@ -283,38 +285,11 @@ fn demo_incline_launch_bounces_and_gravity() {
     }
 }
 
-fn drop_scene(height_m: f64, e: f64, rate_hz: f64, px_per_m: f64) -> Scene {
-    let text = format!(
-        r#"
-[ball]
-diameter_m = 0.065
-[start]
-x_m = 0.3
-y_m = {y}
-vx_mps = 0.05
-[floor]
-restitution = {e}
-[strobe]
-rate_hz = {rate_hz}
-first_flash_s = 0.02
-exposure_s = 2.5
-[camera]
-px_per_m = {px_per_m}
-width_px = 1600
-height_px = 1000
-origin_x_px = 300.0
-origin_y_px = 950.0
-"#,
-        y = height_m + 0.0325
-    );
-    Scene::from_toml(&text, Path::new("drop.toml")).unwrap()
-}
-
 #[test]
 fn drop_test_estimates_the_flash_interval() {
     // Rendered drop test ([start] from rest): gravity given, flash interval estimated within
     // 0.2 % of the strobe's, restitution within 0.01.
-    let scene = drop_scene(1.0, 0.8, 30.0, 700.0);
+    let scene = DropScene::wide(1.0, 0.8, 30.0, 700.0).scene();
     let s = shot(&scene, &level_cal(&scene), 2);
     let mut o = options(&scene);
     o.unknown = Unknown::Interval;
@@ -387,7 +362,7 @@ fn rolled_level_camera_is_corrected() {
 #[test]
 fn speed_dependent_restitution_trend() {
     // Rendered truth with e = 0.9 - 0.05 s/m * impact speed (floor.restitution_slope_s_per_m).
-    let mut scene = drop_scene(1.2, 0.9, 40.0, 700.0);
+    let mut scene = DropScene::wide(1.2, 0.9, 40.0, 700.0).scene();
     scene.floor.restitution_slope_s_per_m = -0.05;
     let s = shot(&scene, &level_cal(&scene), 5);
     let m = measure(&s.points, scene.ball.radius_m(), &options(&scene)).unwrap();
@@ -452,14 +427,18 @@ fn rebound_standards_as_acceptance_bands() {
     // onto steel must rebound 240-260 mm, e about 0.89-0.92.
     let tennis = "restitution=0.73..0.76";
     assert_eq!(
-        verdict(&drop_scene(2.54, 0.745, 30.0, 340.0), tennis, 7),
+        verdict(
+            &DropScene::wide(2.54, 0.745, 30.0, 340.0).scene(),
+            tennis,
+            7
+        ),
         Outcome::Pass
     );
     assert_eq!(
-        verdict(&drop_scene(2.54, 0.70, 30.0, 340.0), tennis, 8),
+        verdict(&DropScene::wide(2.54, 0.70, 30.0, 340.0).scene(), tennis, 8),
         Outcome::Fail
     );
-    let mut tt = drop_scene(0.305, 0.905, 60.0, 1500.0);
+    let mut tt = DropScene::wide(0.305, 0.905, 60.0, 1500.0).scene();
     tt.ball.diameter_m = 0.04;
     tt.ball.build = Build::Shell;
     if let Some(st) = tt.start.as_mut() {
@@ -489,7 +468,18 @@ fn refuses_bad_paths_without_panicking() {
     let mut nan = line.clone();
     nan[3].y_m = f64::NAN;
     assert!(measure(&nan, 0.02, &o).is_err());
-    let _ = Distortion::for_image(0.0, 0.0, 1600.0, 1600, 900);
+    // A distortion for a 1600 x 900 image: its centre with pixel centres at integer
+    // coordinates, and with k1 = k2 = 0 both ways are the identity.
+    let d = Distortion::for_image(0.0, 0.0, 1600.0, 1600, 900);
+    assert_eq!((d.centre_x_px, d.centre_y_px), (799.5, 449.5));
+    for p in [[0.0, 0.0], [1599.0, 899.0], [123.4, 567.8]] {
+        for q in [d.distort(p), d.undistort(p)] {
+            assert!(
+                (q[0] - p[0]).abs() < 1e-9 && (q[1] - p[1]).abs() < 1e-9,
+                "{p:?} -> {q:?}"
+            );
+        }
+    }
 }
 
 #[test]

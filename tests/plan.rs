@@ -1,43 +1,14 @@
 //! Shot planning against answers worked out by hand from the equations of motion.
 
+mod common;
+
 use beadline::synth::plan::{CAUTION, plan};
 use beadline::synth::{self, scene::Scene, sim::Motion};
-use std::path::Path;
-
-fn drop_scene(max_flashes: usize, max_rate_hz: f64, wishes: &str) -> Scene {
-    let text = format!(
-        r#"
-[ball]
-diameter_m = 0.04
-[start]
-x_m = 0.2
-y_m = 1.02
-[floor]
-restitution = 0.8
-[strobe]
-rate_hz = 20.0
-exposure_s = 1.0
-[camera]
-px_per_m = 700.0
-width_px = 600
-height_px = 900
-origin_x_px = 160.0
-origin_y_px = 880.0
-[[flash_unit.levels]]
-name = "full"
-max_rate_hz = {max_rate_hz}
-max_flashes = {max_flashes}
-flash_duration_s = 0.00005
-[wishes]
-{wishes}
-"#
-    );
-    Scene::from_toml(&text, Path::new("drop.toml")).unwrap()
-}
+use common::DropScene;
 
 #[test]
 fn free_fall_spacing_and_first_bounce_arc_match_the_hand_answer() {
-    let scene = drop_scene(200, 60.0, "min_images_per_arc = 6\nbounces = 1");
+    let scene = DropScene::planned(200, 60.0, "min_images_per_arc = 6\nbounces = 1").scene();
     let p = plan(&scene).unwrap();
     assert!(p.meets_wishes, "{:?}", p.warnings);
     let g: f64 = 9.80665;
@@ -80,7 +51,7 @@ fn free_fall_spacing_and_first_bounce_arc_match_the_hand_answer() {
 #[test]
 fn the_flash_unit_limits_are_respected_and_a_wish_to_drop_is_named() {
     // 12 flashes cannot cover a drop and two rebounds at 8 images per arc.
-    let scene = drop_scene(12, 25.0, "min_images_per_arc = 8\nbounces = 2");
+    let scene = DropScene::planned(12, 25.0, "min_images_per_arc = 8\nbounces = 2").scene();
     let p = plan(&scene).unwrap();
     assert!(p.flashes <= 12 && p.rate_hz <= 25.0);
     assert!(!p.meets_wishes);
@@ -90,7 +61,7 @@ fn the_flash_unit_limits_are_respected_and_a_wish_to_drop_is_named() {
         p.warnings
     );
     // A generous unit meets the same wishes within its limits.
-    let scene = drop_scene(400, 80.0, "min_images_per_arc = 8\nbounces = 2");
+    let scene = DropScene::planned(400, 80.0, "min_images_per_arc = 8\nbounces = 2").scene();
     let p = plan(&scene).unwrap();
     assert!(p.meets_wishes, "{:?}", p.warnings);
     assert!(p.flashes <= 400 && p.rate_hz <= 80.0);
@@ -98,7 +69,7 @@ fn the_flash_unit_limits_are_respected_and_a_wish_to_drop_is_named() {
 
 #[test]
 fn every_plan_in_the_flicker_band_carries_the_caution() {
-    let p = plan(&drop_scene(200, 60.0, "bounces = 1")).unwrap();
+    let p = plan(&DropScene::planned(200, 60.0, "bounces = 1").scene()).unwrap();
     assert!((3.0..=60.0).contains(&p.rate_hz));
     assert_eq!(p.caution.as_deref(), Some(CAUTION));
     assert!(p.text().contains("photosensitive epilepsy"));
@@ -106,7 +77,7 @@ fn every_plan_in_the_flicker_band_carries_the_caution() {
 
 #[test]
 fn the_preview_is_rendered_with_the_planned_settings() {
-    let scene = drop_scene(200, 60.0, "bounces = 1");
+    let scene = DropScene::planned(200, 60.0, "bounces = 1").scene();
     let p = plan(&scene).unwrap();
     let photo = synth::render(&p.apply(&scene));
     assert_eq!(photo.truth.flashes.len(), p.flashes);

@@ -1,5 +1,7 @@
 //! Renderer checks against physics formulas and exact geometry.
 
+mod common;
+
 use beadline::core::ball::{Build, inertia_factor};
 use beadline::core::geometry::disc_coverage;
 use beadline::core::units::STANDARD_GRAVITY_MPS2;
@@ -218,7 +220,7 @@ ball_rgb = [1.0, 1.0, 1.0]
 fn rendered_disc_has_the_analytic_centroid_and_area() {
     // A single flat disc rendered to a 16-bit linear PNG and read back: its intensity centroid is
     // the truth centre within 0.01 px and its area is pi r^2 within 0.1 % (analytic disc).
-    let dir = tempfile::tempdir().unwrap();
+    let dir = common::tempdir();
     for &(x_m, y_m) in &[(0.1, 0.12), (0.1213, 0.1171), (0.09876, 0.13333)] {
         let scene = one_flash_scene(x_m, y_m);
         let photo = synth::render(&scene);

@@ -1,37 +1,15 @@
 //! `beadline rig`: bad inputs, exit statuses, profile precedence, parseable outputs, and the
 //! watch journal's exactly-once behaviour across a kill. Every photo is generated here.
 
-use beadline::synth::{self, scene::Scene};
-use std::io::{BufRead, BufReader};
+mod common;
+
+use common::{DEADLINE, beadline, output_within, render_to, small_scene};
 use std::path::{Path, PathBuf};
-use std::process::{Command, Output, Stdio};
-
-/// The demo scene, reduced so tests stay quick.
-fn small_scene() -> Scene {
-    let mut s = Scene::demo();
-    s.camera.width_px = 800;
-    s.camera.height_px = 450;
-    s.camera.px_per_m = 500.0;
-    s.camera.origin_x_px = 150.0;
-    s.camera.origin_y_px = 410.0;
-    s
-}
-
-fn render_to(scene: &Scene, path: &Path) {
-    synth::render(scene).save(path).expect("render the photo");
-}
+use std::process::{Command, Stdio};
+use std::time::Instant;
 
 /// The demo's measure settings: 25 Hz strobe, 40 mm ball.
 const DEMO: &[&str] = &["--rate", "25", "--ball-diameter", "0.04"];
-
-fn beadline(args: &[&str], dir: &Path) -> Output {
-    Command::new(env!("CARGO_BIN_EXE_beadline"))
-        .args(args)
-        .current_dir(dir)
-        .stdin(Stdio::null())
-        .output()
-        .expect("run beadline")
-}
 
 fn lines(text: &[u8]) -> Vec<serde_json::Value> {
     String::from_utf8_lossy(text)
@@ -47,34 +25,6 @@ fn status_of<'a>(results: &'a [serde_json::Value], file: &str) -> &'a str {
         .collect();
     assert_eq!(hits.len(), 1, "{file} appears once in {results:?}");
     hits[0]["status"].as_str().expect("a status")
-}
-
-/// A PNG whose header claims `w` x `h` pixels (no pixel data follows).
-fn png_header(w: u32, h: u32) -> Vec<u8> {
-    fn crc32(bytes: &[u8]) -> u32 {
-        // CRC-32 (ISO 3309, polynomial 0xEDB88320) as the PNG specification defines it.
-        let mut c = 0xFFFF_FFFFu32;
-        for &b in bytes {
-            c ^= b as u32;
-            for _ in 0..8 {
-                c = if c & 1 != 0 {
-                    0xEDB8_8320 ^ (c >> 1)
-                } else {
-                    c >> 1
-                };
-            }
-        }
-        !c
-    }
-    let mut ihdr = b"IHDR".to_vec();
-    ihdr.extend(w.to_be_bytes());
-    ihdr.extend(h.to_be_bytes());
-    ihdr.extend([8, 0, 0, 0, 0]); // 8-bit grey, no interlace
-    let mut v = vec![0x89, b'P', b'N', b'G', 0x0D, 0x0A, 0x1A, 0x0A];
-    v.extend(13u32.to_be_bytes());
-    v.extend(&ihdr);
-    v.extend(crc32(&ihdr).to_be_bytes());
-    v
 }
 
 /// A grey image with `discs` (x, y, radius) drawn white, saved as PNG.
@@ -93,7 +43,7 @@ fn draw(path: &Path, w: u32, h: u32, discs: &[(f64, f64, f64)]) {
 
 #[test]
 fn every_bad_input_gets_an_error_result_and_the_run_goes_on() {
-    let dir = tempfile::tempdir().unwrap();
+    let dir = common::tempdir();
     let d = dir.path();
     let scene = small_scene();
     render_to(&scene, &d.join("good.png"));
@@ -105,7 +55,11 @@ fn every_bad_input_gets_an_error_result_and_the_run_goes_on() {
     image::GrayImage::from_pixel(1, 1, image::Luma([128]))
         .save(d.join("one_px.png"))
         .unwrap();
-    std::fs::write(d.join("huge.png"), png_header(100_000, 100_000)).unwrap();
+    std::fs::write(
+        d.join("huge.png"),
+        common::png_header(100_000, 100_000, 0, true),
+    )
+    .unwrap();
     // The image crate cannot encode CMYK JPEGs; CMYK decoding is delegated to it. Check only
     // that a JPEG whose frame header claims four (CMYK) components does not panic the run.
     let mut cmyk = jpeg.clone();
@@ -221,7 +175,7 @@ fn every_bad_input_gets_an_error_result_and_the_run_goes_on() {
 
 #[test]
 fn exit_statuses_and_parseable_outputs() {
-    let dir = tempfile::tempdir().unwrap();
+    let dir = common::tempdir();
     let d = dir.path();
     std::fs::create_dir(d.join("shots")).unwrap();
     render_to(&small_scene(), &d.join("shots/a.png"));
@@ -311,7 +265,7 @@ fn exit_statuses_and_parseable_outputs() {
 
 #[test]
 fn profile_settings_with_typed_flags_overriding() {
-    let dir = tempfile::tempdir().unwrap();
+    let dir = common::tempdir();
     let d = dir.path();
     render_to(&small_scene(), &d.join("a.png"));
     std::fs::write(
@@ -382,7 +336,7 @@ fn profile_settings_with_typed_flags_overriding() {
 /// exactly once across both runs; the results file holds whole JSON lines only.
 #[test]
 fn watch_journal_is_exactly_once_across_a_kill() {
-    let dir = tempfile::tempdir().unwrap();
+    let dir = common::tempdir();
     let d = dir.path();
     let inbox = d.join("inbox");
     std::fs::create_dir(&inbox).unwrap();
@@ -419,11 +373,17 @@ fn watch_journal_is_exactly_once_across_a_kill() {
         .stderr(Stdio::null())
         .spawn()
         .unwrap();
-    // Wait for the first whole result line, then kill.
+    // Wait for the first whole result line (at most DEADLINE), then kill.
+    let deadline = Instant::now() + DEADLINE;
     loop {
         let text = std::fs::read(&results).unwrap_or_default();
         if text.contains(&b'\n') {
             break;
+        }
+        if Instant::now() >= deadline {
+            child.kill().unwrap();
+            child.wait().unwrap();
+            panic!("watch wrote no whole result line within {DEADLINE:?}");
         }
         assert!(child.try_wait().unwrap().is_none(), "watch exited early");
         std::thread::sleep(std::time::Duration::from_millis(10));
@@ -437,11 +397,10 @@ fn watch_journal_is_exactly_once_across_a_kill() {
     torn.extend(b"\"p9");
     std::fs::write(inbox.join(".beadline-journal"), &torn).unwrap();
 
-    let out = Command::new(env!("CARGO_BIN_EXE_beadline"))
-        .args(watch_args(&["--idle-exit", "1"]))
-        .stdin(Stdio::null())
-        .output()
-        .unwrap();
+    let out = output_within(
+        Command::new(env!("CARGO_BIN_EXE_beadline")).args(watch_args(&["--idle-exit", "1"])),
+        "the restarted watch (--idle-exit 1)",
+    );
     assert_eq!(
         out.status.code(),
         Some(0),
@@ -478,10 +437,10 @@ fn watch_journal_is_exactly_once_across_a_kill() {
     );
 
     // A third run finds nothing new.
-    let out = Command::new(env!("CARGO_BIN_EXE_beadline"))
-        .args(watch_args(&["--idle-exit", "0.2"]))
-        .output()
-        .unwrap();
+    let out = output_within(
+        Command::new(env!("CARGO_BIN_EXE_beadline")).args(watch_args(&["--idle-exit", "0.2"])),
+        "the third watch (--idle-exit 0.2)",
+    );
     assert_eq!(out.status.code(), Some(0));
     assert_eq!(std::fs::read(&results).unwrap(), all);
 }
@@ -489,7 +448,7 @@ fn watch_journal_is_exactly_once_across_a_kill() {
 /// A photo still being written (size changing) is not taken; once complete it is.
 #[test]
 fn watch_waits_for_a_photo_to_be_complete_and_stops_at_max_photos() {
-    let dir = tempfile::tempdir().unwrap();
+    let dir = common::tempdir();
     let d = dir.path();
     render_to(&small_scene(), &d.join("src.png"));
     let bytes = std::fs::read(d.join("src.png")).unwrap();
@@ -522,10 +481,11 @@ fn watch_waits_for_a_photo_to_be_complete_and_stops_at_max_photos() {
         std::thread::sleep(std::time::Duration::from_millis(10));
     }
     std::fs::write(inbox.join("late.png"), &bytes).unwrap();
-    let mut reader = BufReader::new(child.stdout.take().unwrap());
-    let mut line = String::new();
-    reader.read_line(&mut line).unwrap();
-    let status = child.wait().unwrap();
+    // The first result line and the exit (--max-photos 1), each by the deadline.
+    let deadline = Instant::now() + DEADLINE;
+    let stdout = child.stdout.take().unwrap();
+    let line = common::first_line_until(&mut child, stdout, deadline, "watch --max-photos 1");
+    let status = common::wait_until(&mut child, deadline, "watch --max-photos 1");
     let v: serde_json::Value = serde_json::from_str(&line).unwrap();
     // A photo caught half written would be a truncated PNG: an error, not ok.
     assert_eq!(v["status"], "ok", "{line}");

@@ -1,17 +1,13 @@
 //! Spot finding against rendered ground truth (exact centres from the renderer's physics and
 //! camera model) and against bad input.
 
+mod common;
+
 use beadline::detect::{SpotOptions, SpotReport, find_spots};
 use beadline::image::load::{LoadOptions, load};
 use beadline::synth::{self, Truth, scene::Scene};
+use common::render_and_load;
 use std::path::{Path, PathBuf};
-
-/// Render `scene` into `path` and load it back.
-fn render_and_load(scene: &Scene, path: &Path) -> (beadline::image::load::Photo, Truth) {
-    let photo = synth::render(scene);
-    photo.save(path).unwrap();
-    (load(path, &LoadOptions::default()).unwrap(), photo.truth)
-}
 
 /// Render `scene` into `dir/name`, load it back and find its spots.
 fn detect(scene: &Scene, dir: &Path, name: &str) -> (SpotReport, Truth, PathBuf) {
@@ -113,7 +109,7 @@ origin_y_px = 650.6
 #[test]
 fn discs_at_known_subpixel_centres_are_found_within_a_twentieth_of_a_pixel() {
     // Truth: the renderer's exact centres (area coverage painted in closed form).
-    let dir = tempfile::tempdir().unwrap();
+    let dir = common::tempdir();
     for radius_m in [0.008, 0.015, 0.03] {
         let mut scene = throw_scene(radius_m, 12);
         scene.photo.full_well_e = 200_000.0;
@@ -138,7 +134,7 @@ fn discs_at_known_subpixel_centres_are_found_within_a_twentieth_of_a_pixel() {
 fn demo_photo_meets_the_accuracy_targets_lossless_and_jpeg() {
     // The demo: a slow, overlapping start on the incline, flight and bounces. Targets from the
     // spots issue: isolated RMS <= 0.05 px, overlapping <= 0.15 px.
-    let dir = tempfile::tempdir().unwrap();
+    let dir = common::tempdir();
     for (name, quality) in [("demo.png", 92), ("demo.jpg", 85)] {
         let mut scene = Scene::demo();
         scene.photo.jpeg_quality = quality;
@@ -172,7 +168,7 @@ fn demo_photo_meets_the_accuracy_targets_lossless_and_jpeg() {
 #[test]
 fn dark_ball_on_bright_backdrop_is_found() {
     // Few flashes: each image dims the backdrop by about 1/N (physics of the long exposure).
-    let dir = tempfile::tempdir().unwrap();
+    let dir = common::tempdir();
     let mut scene = throw_scene(0.02, 6);
     scene.photo.polarity = beadline::core::light::Polarity::Dark;
     scene.photo.texture = 0.03;
@@ -186,7 +182,7 @@ fn dark_ball_on_bright_backdrop_is_found() {
 
 #[test]
 fn a_photo_with_no_ball_gives_an_empty_result() {
-    let dir = tempfile::tempdir().unwrap();
+    let dir = common::tempdir();
     let mut scene = throw_scene(0.02, 3);
     // The ball flies outside the frame.
     scene.camera.origin_x_px = -5000.0;
@@ -197,7 +193,7 @@ fn a_photo_with_no_ball_gives_an_empty_result() {
 
 #[test]
 fn a_photo_with_one_ball_gives_one_spot() {
-    let dir = tempfile::tempdir().unwrap();
+    let dir = common::tempdir();
     let scene = throw_scene(0.02, 1);
     let (report, truth, _) = detect(&scene, dir.path(), "one.png");
     let s = score(&report, &truth);
@@ -206,7 +202,7 @@ fn a_photo_with_one_ball_gives_one_spot() {
 
 #[test]
 fn distractors_of_another_size_and_reflections_are_not_kept() {
-    let dir = tempfile::tempdir().unwrap();
+    let dir = common::tempdir();
     let mut scene = Scene::demo();
     scene.floor.glossy = true;
     scene.distractors = vec![
@@ -252,14 +248,14 @@ fn distractors_of_another_size_and_reflections_are_not_kept() {
 
 #[test]
 fn bad_files_get_an_error_naming_the_file() {
-    let dir = tempfile::tempdir().unwrap();
+    let dir = common::tempdir();
     let empty = dir.path().join("empty.jpg");
     std::fs::write(&empty, b"").unwrap();
     let text = dir.path().join("notes.jpg");
     std::fs::write(&text, b"this is not a photo\n").unwrap();
     let scene = throw_scene(0.02, 3);
     let good = dir.path().join("good.jpg");
-    synth::render(&scene).save(&good).unwrap();
+    common::render_to(&scene, &good);
     let bytes = std::fs::read(&good).unwrap();
     let truncated = dir.path().join("truncated.jpg");
     std::fs::write(&truncated, &bytes[..bytes.len() / 3]).unwrap();
@@ -268,11 +264,7 @@ fn bad_files_get_an_error_naming_the_file() {
         assert!(err.contains(&p.display().to_string()), "{err}");
     }
     // A PNG header claiming 100000 x 100000 pixels is refused by the limits before decoding.
-    let mut bomb = Vec::new();
-    bomb.extend_from_slice(b"\x89PNG\r\n\x1a\n\0\0\0\x0dIHDR");
-    bomb.extend_from_slice(&100_000u32.to_be_bytes());
-    bomb.extend_from_slice(&100_000u32.to_be_bytes());
-    bomb.extend_from_slice(&[8, 2, 0, 0, 0, 0, 0, 0, 0]);
+    let bomb = common::png_header(100_000, 100_000, 2, false);
     let bomb_path = dir.path().join("bomb.png");
     std::fs::write(&bomb_path, &bomb).unwrap();
     let err = load(&bomb_path, &LoadOptions::default())
@@ -316,7 +308,7 @@ fn a_colour_jpeg_is_read_as_its_luma_plane() {
     // JFIF (ITU-T T.871) stores Y = 0.299 R + 0.587 G + 0.114 B (ITU-R BT.601 weights); the
     // loader reads that plane without decoding the chroma. Reference: the image crate's own
     // full colour decode, converted with the same weights.
-    let dir = tempfile::tempdir().unwrap();
+    let dir = common::tempdir();
     let (w, h) = (64u32, 48u32);
     // Colours kept away from 0 and 255, where clipping of the decoded RGB would add its own error.
     let img = image::RgbImage::from_fn(w, h, |x, y| {
@@ -345,25 +337,8 @@ fn a_colour_jpeg_is_read_as_its_luma_plane() {
 fn the_exif_orientation_of_a_jpeg_is_applied() {
     // EXIF 2.32 (CIPA DC-008-2019), tag 0x0112 Orientation: 6 means the stored image must be
     // turned 90 degrees clockwise to be upright.
-    let dir = tempfile::tempdir().unwrap();
-    let img = image::GrayImage::from_fn(40, 20, |x, _| image::Luma([if x < 8 { 250 } else { 10 }]));
-    let plain = dir.path().join("plain.jpg");
-    img.save(&plain).unwrap();
-    let bytes = std::fs::read(&plain).unwrap();
-    // APP1 "Exif": a big-endian TIFF header and one IFD entry (Orientation, SHORT, 1, value 6).
-    let mut tiff = b"MM\0\x2a\0\0\0\x08".to_vec();
-    tiff.extend_from_slice(&[
-        0, 1, 0x01, 0x12, 0, 3, 0, 0, 0, 1, 0, 6, 0, 0, 0, 0, 0, 0, 0, 0,
-    ]);
-    let mut app1 = b"Exif\0\0".to_vec();
-    app1.extend_from_slice(&tiff);
-    let mut out = bytes[..2].to_vec();
-    out.extend_from_slice(&[0xFF, 0xE1]);
-    out.extend_from_slice(&((app1.len() + 2) as u16).to_be_bytes());
-    out.extend_from_slice(&app1);
-    out.extend_from_slice(&bytes[2..]);
-    let turned = dir.path().join("turned.jpg");
-    std::fs::write(&turned, &out).unwrap();
+    let dir = common::tempdir();
+    let turned = common::turned_jpeg(dir.path());
     let photo = load(&turned, &LoadOptions::default()).unwrap();
     assert_eq!((photo.width, photo.height), (20, 40));
     // The bright left band of the stored image is now the top band.
@@ -397,7 +372,7 @@ fn a_dark_ball_under_many_flashes_is_found_against_its_clean_plate() {
     // 37 flashes: each image dims the bright backdrop by only ~1/37 of its level, less than the
     // backdrop's own texture (physics of the long exposure, rendered). The clean plate (the same
     // scene without the ball, its own sensor noise) removes the texture.
-    let dir = tempfile::tempdir().unwrap();
+    let dir = common::tempdir();
     let mut scene = Scene::demo();
     scene.photo.polarity = beadline::core::light::Polarity::Dark;
     let (img, clean, truth) = photo_and_plate(&scene, dir.path(), "png");
@@ -433,7 +408,7 @@ fn a_small_lit_sphere_is_centred_by_its_shaded_fit() {
     // axis here, up to 0.1 px in dimmer photos); the shaded-sphere fit of the pixels removes that
     // pull. Target from the
     // spots issue: isolated centre RMS <= 0.05 px (here per axis, so <= 0.035).
-    let dir = tempfile::tempdir().unwrap();
+    let dir = common::tempdir();
     let scene = throw_scene(0.016, 12);
     let (img, truth) = render_and_load(&scene, &dir.path().join("lit.png"));
     let shaded = find_spots(&img, None, &SpotOptions::default(), None).unwrap();
@@ -476,7 +451,7 @@ fn a_linear_sixteen_bit_photo_is_fitted_in_its_own_tone() {
     // Truth: the renderer's exact centres, photo stored linear in 16 bits (a raw read-out).
     // With `tone = linear` the shaded fit sees the light as it is; read as sRGB, the shading is
     // distorted and the fit is worse.
-    let dir = tempfile::tempdir().unwrap();
+    let dir = common::tempdir();
     let mut scene = throw_scene(0.016, 12);
     scene.photo.tone = beadline::core::light::Tone::Linear;
     scene.photo.bit_depth = 16;
@@ -526,7 +501,7 @@ fn a_bright_mirror_image_is_told_apart_by_its_light() {
     // the mirrored side (physics of a plane mirror), which the shaded fit sees. Truth: the
     // renderer's reflection positions. (Mirror images cut by the plate's front edge get no shaded
     // fit, so not every one is caught: 2 of this scene's are kept.)
-    let dir = tempfile::tempdir().unwrap();
+    let dir = common::tempdir();
     // The bench suite's glossy scene (bench/suite.py `glossy_r16`) with a floor reflecting 90 %.
     let mut scene = Scene::demo();
     scene.seed = 700;
@@ -585,7 +560,7 @@ full_well_e = 200000.0
 shading = false
 "#;
     let scene = Scene::from_toml(text, Path::new("large.toml")).unwrap();
-    let dir = tempfile::tempdir().unwrap();
+    let dir = common::tempdir();
     let (img, truth) = render_and_load(&scene, &dir.path().join("large.png"));
     for radius_px in [Some((38.0, 54.0)), None] {
         let options = SpotOptions {
@@ -640,7 +615,7 @@ fn the_decimated_search_keeps_the_full_resolution_centres() {
     // A lit, noisy 30 px ball: searched with 24..36 px the photo is decimated by 2, with
     // `coarse_r_px` 0 it is not. Both must meet the targets against the renderer's truth, and
     // each centre may move between the two by no more than its own sigma.
-    let dir = tempfile::tempdir().unwrap();
+    let dir = common::tempdir();
     let scene = throw_scene(0.03, 12);
     let (img, truth) = render_and_load(&scene, &dir.path().join("lit.png"));
     let run = |coarse_r_px| {
@@ -701,7 +676,7 @@ origin_y_px = 540.0
 noise = true
 "#;
     let scene = Scene::from_toml(text, Path::new("chain.toml")).unwrap();
-    let dir = tempfile::tempdir().unwrap();
+    let dir = common::tempdir();
     let (report, truth, _) = detect(&scene, dir.path(), "chain.png");
     let common = report.common_radius_px.expect("a common radius");
     assert!((common - 8.0).abs() < 0.4, "common radius {common:.2} px");

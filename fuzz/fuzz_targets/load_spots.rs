@@ -2,8 +2,8 @@
 //! error, never a panic, and the decoding limits keep memory bounded.
 #![no_main]
 
-use beadline::image::load::{LoadOptions, load_bytes};
 use beadline::detect::{SpotOptions, find_spots};
+use beadline::image::load::{LoadOptions, load_bytes};
 use libfuzzer_sys::fuzz_target;
 use std::path::Path;
 
