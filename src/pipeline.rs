@@ -163,30 +163,16 @@ pub fn measure_spots(
     measure_validated(photo_path, report, settings)
 }
 
-/// [`measure_spots`] with settings already validated.
-fn measure_validated(
-    photo_path: &Path,
-    report: SpotReport,
+/// The calibration and the scale it gives, from the settings' scale source; `radii_px` are the
+/// path's image radii in increasing order (the ball as the ruler), `(w, h)` the photo's size.
+fn scale_of(
     settings: &MeasureSettings,
-) -> Result<Measured> {
-    let found = report.spots.len();
-    if found < 2 {
-        return Err(Error::track(photo_path, TrackError::TooFewImages { found }));
-    }
-    let paths = track::order_path(&report.spots, &settings.path);
-    let Some(best) = paths.paths.first() else {
-        return Err(Error::track(photo_path, TrackError::NoPath { found }));
-    };
-    let mut radii: Vec<f64> = best.points.iter().map(|p| p.r_px).collect();
-    radii.sort_by(f64::total_cmp);
+    radii: &[f64],
+    (w, h): (u32, u32),
+) -> Result<(Calibration, Option<Quantity>)> {
     let r_px = radii[radii.len() / 2];
-    let (w, h) = (report.width_px as u32, report.height_px as u32);
-    let mut physics_options = settings.physics.clone();
-    physics_options.source = photo_path.to_path_buf();
-    physics_options.unknown = settings.unknown()?;
-    // Scale.
     let nominal = |px_per_m: f64| Calibration::uniform(px_per_m, 0.0, h as f64 - 1.0, 0.0);
-    let (calibration, scale) = match &settings.scale {
+    Ok(match &settings.scale {
         Some(ScaleSource::PxPerM(s)) => (nominal(*s)?, Some(Quantity::new(*s, 0.0, "given"))),
         Some(ScaleSource::Ruler {
             a_px,
@@ -236,7 +222,31 @@ fn measure_validated(
                 .map_or(1000.0, |d| r_px / (d / 2.0));
             (nominal(s)?, Some(Quantity::new(s, f64::NAN, "nominal")))
         }
+    })
+}
+
+/// [`measure_spots`] with settings already validated.
+fn measure_validated(
+    photo_path: &Path,
+    report: SpotReport,
+    settings: &MeasureSettings,
+) -> Result<Measured> {
+    let found = report.spots.len();
+    if found < 2 {
+        return Err(Error::track(photo_path, TrackError::TooFewImages { found }));
+    }
+    let paths = track::order_path(&report.spots, &settings.path);
+    let Some(best) = paths.paths.first() else {
+        return Err(Error::track(photo_path, TrackError::NoPath { found }));
     };
+    let mut radii: Vec<f64> = best.points.iter().map(|p| p.r_px).collect();
+    radii.sort_by(f64::total_cmp);
+    let r_px = radii[radii.len() / 2];
+    let (w, h) = (report.width_px as u32, report.height_px as u32);
+    let mut physics_options = settings.physics.clone();
+    physics_options.source = photo_path.to_path_buf();
+    physics_options.unknown = settings.unknown()?;
+    let (calibration, scale) = scale_of(settings, &radii, (w, h))?;
     // Time.
     let interval = match settings.rate_hz {
         Some(rate) => Quantity::new(1.0 / rate, 0.0, "given flash rate"),

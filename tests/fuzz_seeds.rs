@@ -37,10 +37,18 @@ fn loader_and_spot_finder_take_every_seed() {
         match load_bytes(Path::new("fuzz.img"), &data, &options) {
             Ok(photo) => {
                 if let Err(e) = find_spots(&photo, None, &SpotOptions::default(), None) {
-                    assert!(e.to_string().starts_with("fuzz.img"), "{}: {e}", f.display());
+                    assert!(
+                        e.to_string().starts_with("fuzz.img"),
+                        "{}: {e}",
+                        f.display()
+                    );
                 }
             }
-            Err(e) => assert!(e.to_string().starts_with("fuzz.img"), "{}: {e}", f.display()),
+            Err(e) => assert!(
+                e.to_string().starts_with("fuzz.img"),
+                "{}: {e}",
+                f.display()
+            ),
         }
     }
 }

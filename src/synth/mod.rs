@@ -145,223 +145,332 @@ pub fn render_plate(scene: &Scene) -> Rendered {
     render_with(scene, false)
 }
 
-fn render_with(scene: &Scene, with_ball: bool) -> Rendered {
-    let cam = &scene.camera;
-    let proj = Projection::new(cam);
-    let times = scene.strobe.flash_times_s();
-    let t_last = *times.last().expect("at least one flash");
-    let t_end = scene.strobe.first_flash_s + scene.strobe.exposure_s;
-    let motion = Motion::simulate(scene, t_end.max(t_last) + 1.0);
-    let r_m = scene.ball.radius_m();
-    let p = &scene.photo;
-    let (w, h) = (cam.width_px as usize, cam.height_px as usize);
-    let n_flash = times.len() as f64;
-    let (ball_albedo, backdrop_level) = match p.polarity {
-        Polarity::Bright => (
-            p.ball_albedo.unwrap_or(0.9),
-            p.backdrop_level.unwrap_or(0.05),
-        ),
-        Polarity::Dark => (
-            p.ball_albedo.unwrap_or(0.08),
-            p.backdrop_level.unwrap_or(0.75),
-        ),
-    };
-    let flash = p.flash_exposure.unwrap_or(match p.polarity {
-        Polarity::Bright => 0.6,
-        Polarity::Dark => backdrop_level / n_flash,
-    });
-    let total_weight = flash * n_flash + p.ambient_exposure;
+/// One shot being rendered: the scene, its camera and the ball's motion, with the photo's
+/// exposure levels resolved.
+struct Shot<'a> {
+    scene: &'a Scene,
+    proj: Projection,
+    motion: Motion,
+    times: Vec<f64>,
+    t_end: f64,
+    r_m: f64,
+    w: usize,
+    h: usize,
+    ball_albedo: f64,
+    backdrop_level: f64,
+    flash: f64,
+    total_weight: f64,
+    with_ball: bool,
+}
 
-    let image_of = |t: f64| {
-        let m = motion.at(t);
-        let c = proj.to_pixel(m.x_m, m.y_m);
-        let r = r_m * proj.scale_px_per_m(m.x_m, m.y_m);
+/// What the flashes leave: the stamps to paint and the truth of each image.
+#[derive(Default)]
+struct Flashes {
+    stamps: Vec<Stamp>,
+    flashes: Vec<FlashTruth>,
+    reflections: Vec<DistractorTruth>,
+}
+
+impl<'a> Shot<'a> {
+    fn new(scene: &'a Scene, with_ball: bool) -> Shot<'a> {
+        let cam = &scene.camera;
+        let proj = Projection::new(cam);
+        let times = scene.strobe.flash_times_s();
+        let t_last = *times.last().expect("at least one flash");
+        let t_end = scene.strobe.first_flash_s + scene.strobe.exposure_s;
+        let motion = Motion::simulate(scene, t_end.max(t_last) + 1.0);
+        let r_m = scene.ball.radius_m();
+        let p = &scene.photo;
+        let (w, h) = (cam.width_px as usize, cam.height_px as usize);
+        let n_flash = times.len() as f64;
+        let (ball_albedo, backdrop_level) = match p.polarity {
+            Polarity::Bright => (
+                p.ball_albedo.unwrap_or(0.9),
+                p.backdrop_level.unwrap_or(0.05),
+            ),
+            Polarity::Dark => (
+                p.ball_albedo.unwrap_or(0.08),
+                p.backdrop_level.unwrap_or(0.75),
+            ),
+        };
+        let flash = p.flash_exposure.unwrap_or(match p.polarity {
+            Polarity::Bright => 0.6,
+            Polarity::Dark => backdrop_level / n_flash,
+        });
+        let total_weight = flash * n_flash + p.ambient_exposure;
+        Shot {
+            scene,
+            proj,
+            motion,
+            times,
+            t_end,
+            r_m,
+            w,
+            h,
+            ball_albedo,
+            backdrop_level,
+            flash,
+            total_weight,
+            with_ball,
+        }
+    }
+
+    /// The ball's state, image centre and image radius at time `t`.
+    fn image_of(&self, t: f64) -> (sim::MotionPoint, [f64; 2], f64) {
+        let m = self.motion.at(t);
+        let c = self.proj.to_pixel(m.x_m, m.y_m);
+        let r = self.r_m * self.proj.scale_px_per_m(m.x_m, m.y_m);
         (m, c, r)
-    };
-    let floor_clip = |x_m: f64| {
+    }
+
+    /// The floor plate's clip of a mirror image near `x_m`.
+    fn floor_clip(&self, x_m: f64) -> Clip {
+        let proj = &self.proj;
         let a = proj.to_pixel(x_m - 0.05, 0.0);
         let b = proj.to_pixel(x_m + 0.05, 0.0);
         let slope = (b[1] - a[1]) / (b[0] - a[0]);
         Clip {
             line_a: a[1] - slope * a[0],
             line_b: slope,
-            depth_px: scene.floor.depth_m * proj.scale_px_per_m(x_m, 0.0),
+            depth_px: self.scene.floor.depth_m * proj.scale_px_per_m(x_m, 0.0),
         }
-    };
+    }
 
-    let mut stamps = Vec::new();
-    let mut flashes = Vec::new();
-    let mut reflections = Vec::new();
-    let dur = if p.motion_blur {
-        scene.strobe.flash_duration_s
-    } else {
-        0.0
-    };
-    for (n, &t) in times.iter().enumerate() {
-        let (m, c, r) = image_of(t);
-        let speed_px = (m.vx_mps.hypot(m.vy_mps)) * proj.scale_px_per_m(m.x_m, m.y_m);
-        let subs = ((speed_px * dur / BLUR_STEP_PX).ceil() as usize).clamp(1, 256);
-        for k in 0..subs {
-            let ts = if subs == 1 {
-                t
-            } else {
-                t - dur / 2.0 + dur * (k as f64 + 0.5) / subs as f64
-            };
-            let (ms, cs, rs) = image_of(ts);
-            if !with_ball {
-                continue;
+    /// Every flash's image (motion-blurred in sub-steps, with its mirror image on a glossy
+    /// floor) and its truth.
+    fn flash_images(&self) -> Flashes {
+        let (scene, proj, flash, ball_albedo, with_ball) = (
+            self.scene,
+            &self.proj,
+            self.flash,
+            self.ball_albedo,
+            self.with_ball,
+        );
+        let (p, w, h) = (&scene.photo, self.w, self.h);
+        let image_of = |t: f64| self.image_of(t);
+        let floor_clip = |x_m: f64| self.floor_clip(x_m);
+        let Flashes {
+            mut stamps,
+            mut flashes,
+            mut reflections,
+        } = Flashes::default();
+        let dur = if p.motion_blur {
+            scene.strobe.flash_duration_s
+        } else {
+            0.0
+        };
+        for (n, &t) in self.times.iter().enumerate() {
+            let (m, c, r) = image_of(t);
+            let speed_px = (m.vx_mps.hypot(m.vy_mps)) * proj.scale_px_per_m(m.x_m, m.y_m);
+            let subs = ((speed_px * dur / BLUR_STEP_PX).ceil() as usize).clamp(1, 256);
+            for k in 0..subs {
+                let ts = if subs == 1 {
+                    t
+                } else {
+                    t - dur / 2.0 + dur * (k as f64 + 0.5) / subs as f64
+                };
+                let (ms, cs, rs) = image_of(ts);
+                if !with_ball {
+                    continue;
+                }
+                stamps.push(Stamp {
+                    x_px: cs[0],
+                    y_px: cs[1],
+                    r_px: rs,
+                    weight: flash / subs as f64,
+                    albedo: ball_albedo,
+                    rgb: p.ball_rgb,
+                    light: p.shading.then_some(p.light_dir),
+                    occludes: true,
+                    clip: None,
+                });
+                if scene.floor.glossy {
+                    let mc = proj.to_pixel(ms.x_m, -ms.y_m);
+                    stamps.push(Stamp {
+                        x_px: mc[0],
+                        y_px: mc[1],
+                        r_px: rs,
+                        weight: flash * scene.floor.reflectance / subs as f64,
+                        albedo: ball_albedo,
+                        rgb: p.ball_rgb,
+                        // The mirror world's light comes from the mirrored side.
+                        light: p.shading.then_some([
+                            p.light_dir[0],
+                            -p.light_dir[1],
+                            p.light_dir[2],
+                        ]),
+                        occludes: false,
+                        clip: Some(floor_clip(ms.x_m)),
+                    });
+                }
             }
+            let in_frame = c[0] - r >= -0.5
+                && c[1] - r >= -0.5
+                && c[0] + r <= w as f64 - 0.5
+                && c[1] + r <= h as f64 - 0.5;
+            if scene.floor.glossy {
+                let mc = proj.to_pixel(m.x_m, -m.y_m);
+                reflections.push(DistractorTruth {
+                    x_px: mc[0],
+                    y_px: mc[1],
+                    r_px: r,
+                });
+            }
+            flashes.push(FlashTruth {
+                n,
+                t_s: t,
+                x_px: c[0],
+                y_px: c[1],
+                r_px: r,
+                x_m: m.x_m,
+                y_m: m.y_m,
+                phase: m.phase,
+                arc: m.arc,
+                in_frame,
+            });
+        }
+        Flashes {
+            stamps,
+            flashes,
+            reflections,
+        }
+    }
+
+    /// The ball lit by ambient light along its whole path during the exposure.
+    fn ambient_streak(&self, stamps: &mut Vec<Stamp>) {
+        let (scene, proj, ball_albedo, with_ball, t_end) = (
+            self.scene,
+            &self.proj,
+            self.ball_albedo,
+            self.with_ball,
+            self.t_end,
+        );
+        let p = &scene.photo;
+        let image_of = |t: f64| self.image_of(t);
+        if with_ball && p.ambient_exposure > 0.0 {
+            let t0 = scene.strobe.first_flash_s;
+            let mut samples = Vec::new();
+            let mut t = t0;
+            while t < t_end {
+                let (m, c, r) = image_of(t);
+                let speed_px = m.vx_mps.hypot(m.vy_mps) * proj.scale_px_per_m(m.x_m, m.y_m);
+                let dt = (STREAK_STEP_PX / speed_px.max(1e-9))
+                    .min(t_end - t)
+                    .min(0.01);
+                samples.push((c, r, dt));
+                t += dt;
+                if samples.len() > 2_000_000 {
+                    break;
+                }
+            }
+            let span = t_end - t0;
+            for (c, r, dt) in samples {
+                stamps.push(Stamp {
+                    x_px: c[0],
+                    y_px: c[1],
+                    r_px: r,
+                    weight: p.ambient_exposure * dt / span,
+                    albedo: ball_albedo,
+                    rgb: p.ball_rgb,
+                    light: None,
+                    occludes: true,
+                    clip: None,
+                });
+            }
+        }
+    }
+
+    /// The round objects that are not the ball, and their truth.
+    fn distractors(&self, stamps: &mut Vec<Stamp>) -> Vec<DistractorTruth> {
+        let (scene, total_weight) = (self.scene, self.total_weight);
+        let p = &scene.photo;
+        let mut distractors = Vec::new();
+        for d in &scene.distractors {
             stamps.push(Stamp {
-                x_px: cs[0],
-                y_px: cs[1],
-                r_px: rs,
-                weight: flash / subs as f64,
-                albedo: ball_albedo,
-                rgb: p.ball_rgb,
+                x_px: d.x_px,
+                y_px: d.y_px,
+                r_px: d.r_px,
+                weight: total_weight,
+                albedo: d.albedo,
+                rgb: [1.0, 1.0, 1.0],
                 light: p.shading.then_some(p.light_dir),
                 occludes: true,
                 clip: None,
             });
-            if scene.floor.glossy {
-                let mc = proj.to_pixel(ms.x_m, -ms.y_m);
-                stamps.push(Stamp {
-                    x_px: mc[0],
-                    y_px: mc[1],
-                    r_px: rs,
-                    weight: flash * scene.floor.reflectance / subs as f64,
-                    albedo: ball_albedo,
-                    rgb: p.ball_rgb,
-                    // The mirror world's light comes from the mirrored side.
-                    light: p
-                        .shading
-                        .then_some([p.light_dir[0], -p.light_dir[1], p.light_dir[2]]),
-                    occludes: false,
-                    clip: Some(floor_clip(ms.x_m)),
-                });
-            }
-        }
-        let in_frame = c[0] - r >= -0.5
-            && c[1] - r >= -0.5
-            && c[0] + r <= w as f64 - 0.5
-            && c[1] + r <= h as f64 - 0.5;
-        if scene.floor.glossy {
-            let mc = proj.to_pixel(m.x_m, -m.y_m);
-            reflections.push(DistractorTruth {
-                x_px: mc[0],
-                y_px: mc[1],
-                r_px: r,
+            distractors.push(DistractorTruth {
+                x_px: d.x_px,
+                y_px: d.y_px,
+                r_px: d.r_px,
             });
         }
-        flashes.push(FlashTruth {
-            n,
-            t_s: t,
-            x_px: c[0],
-            y_px: c[1],
-            r_px: r,
-            x_m: m.x_m,
-            y_m: m.y_m,
-            phase: m.phase,
-            arc: m.arc,
-            in_frame,
-        });
-    }
-    // Ambient streak: the ball lit by ambient light along its whole path during the exposure.
-    if with_ball && p.ambient_exposure > 0.0 {
-        let t0 = scene.strobe.first_flash_s;
-        let mut samples = Vec::new();
-        let mut t = t0;
-        while t < t_end {
-            let (m, c, r) = image_of(t);
-            let speed_px = m.vx_mps.hypot(m.vy_mps) * proj.scale_px_per_m(m.x_m, m.y_m);
-            let dt = (STREAK_STEP_PX / speed_px.max(1e-9))
-                .min(t_end - t)
-                .min(0.01);
-            samples.push((c, r, dt));
-            t += dt;
-            if samples.len() > 2_000_000 {
-                break;
-            }
-        }
-        let span = t_end - t0;
-        for (c, r, dt) in samples {
-            stamps.push(Stamp {
-                x_px: c[0],
-                y_px: c[1],
-                r_px: r,
-                weight: p.ambient_exposure * dt / span,
-                albedo: ball_albedo,
-                rgb: p.ball_rgb,
-                light: None,
-                occludes: true,
-                clip: None,
-            });
-        }
-    }
-    let mut distractors = Vec::new();
-    for d in &scene.distractors {
-        stamps.push(Stamp {
-            x_px: d.x_px,
-            y_px: d.y_px,
-            r_px: d.r_px,
-            weight: total_weight,
-            albedo: d.albedo,
-            rgb: [1.0, 1.0, 1.0],
-            light: p.shading.then_some(p.light_dir),
-            occludes: true,
-            clip: None,
-        });
-        distractors.push(DistractorTruth {
-            x_px: d.x_px,
-            y_px: d.y_px,
-            r_px: d.r_px,
-        });
+        distractors
     }
 
-    let exposure = paint::paint(w, h, &stamps);
-    let rig = Rig::new(scene, p.floor_level, p.incline_level);
-    let seed = scene.seed;
-    let backdrop = |x: usize, y: usize| {
-        let (xf, yf) = (x as f64, y as f64);
-        let tex = 1.0
-            + p.texture
-                * (0.7 * paint::value_noise(xf, yf, 48.0, seed)
-                    + 0.3 * paint::value_noise(xf, yf, 9.0, seed ^ 0x5151));
-        let grad = 1.0 + p.gradient * (xf / w as f64 - 0.5);
-        let base = backdrop_level * tex * grad;
-        let mut out = [
-            base * p.backdrop_rgb[0],
-            base * p.backdrop_rgb[1],
-            base * p.backdrop_rgb[2],
-        ];
-        if p.draw_rig {
-            let wp = proj.to_world(xf, yf);
-            let scale = cam.px_per_m;
-            if let Some((cov, level)) = rig.cover(wp, scale) {
-                let metal = level * (1.0 + 0.05 * paint::value_noise(xf, yf, 3.0, seed ^ 0xABCD));
-                for o in out.iter_mut() {
-                    *o = *o * (1.0 - cov) + metal * cov;
+    /// The painted exposure over the backdrop and the rig, toned and with noise: the pixels.
+    fn develop(&self, exposure: &paint::Exposure) -> Vec<[f32; 3]> {
+        let (scene, proj, w, with_ball) = (self.scene, &self.proj, self.w, self.with_ball);
+        let (p, cam) = (&scene.photo, &scene.camera);
+        let (backdrop_level, total_weight) = (self.backdrop_level, self.total_weight);
+        let rig = Rig::new(scene, p.floor_level, p.incline_level);
+        let seed = scene.seed;
+        let backdrop = |x: usize, y: usize| {
+            let (xf, yf) = (x as f64, y as f64);
+            let tex = 1.0
+                + p.texture
+                    * (0.7 * paint::value_noise(xf, yf, 48.0, seed)
+                        + 0.3 * paint::value_noise(xf, yf, 9.0, seed ^ 0x5151));
+            let grad = 1.0 + p.gradient * (xf / w as f64 - 0.5);
+            let base = backdrop_level * tex * grad;
+            let mut out = [
+                base * p.backdrop_rgb[0],
+                base * p.backdrop_rgb[1],
+                base * p.backdrop_rgb[2],
+            ];
+            if p.draw_rig {
+                let wp = proj.to_world(xf, yf);
+                let scale = cam.px_per_m;
+                if let Some((cov, level)) = rig.cover(wp, scale) {
+                    let metal =
+                        level * (1.0 + 0.05 * paint::value_noise(xf, yf, 3.0, seed ^ 0xABCD));
+                    for o in out.iter_mut() {
+                        *o = *o * (1.0 - cov) + metal * cov;
+                    }
                 }
             }
-        }
-        out
-    };
-    let pixels = paint::finish(
-        &exposure,
-        total_weight,
-        backdrop,
-        Finish {
-            vignetting: p.vignetting,
-            noise: p.noise,
-            full_well_e: p.full_well_e,
-            read_noise_e: p.read_noise_e,
-            srgb: p.tone == Tone::Srgb,
-            seed: if with_ball {
-                seed ^ 0x00C0_FFEE
-            } else {
-                seed ^ 0x0091_A7E5
+            out
+        };
+        paint::finish(
+            exposure,
+            total_weight,
+            backdrop,
+            Finish {
+                vignetting: p.vignetting,
+                noise: p.noise,
+                full_well_e: p.full_well_e,
+                read_noise_e: p.read_noise_e,
+                srgb: p.tone == Tone::Srgb,
+                seed: if with_ball {
+                    seed ^ 0x00C0_FFEE
+                } else {
+                    seed ^ 0x0091_A7E5
+                },
             },
-        },
-    );
+        )
+    }
+}
+
+fn render_with(scene: &Scene, with_ball: bool) -> Rendered {
+    let shot = Shot::new(scene, with_ball);
+    let Flashes {
+        mut stamps,
+        flashes,
+        reflections,
+    } = shot.flash_images();
+    shot.ambient_streak(&mut stamps);
+    let distractors = shot.distractors(&mut stamps);
+    let exposure = paint::paint(shot.w, shot.h, &stamps);
+    let pixels = shot.develop(&exposure);
+    let (cam, p, motion) = (&scene.camera, &scene.photo, &shot.motion);
     let truth = Truth {
         version: TRUTH_VERSION,
         width_px: cam.width_px,
@@ -370,7 +479,7 @@ fn render_with(scene: &Scene, with_ball: bool) -> Rendered {
         rate_hz: scene.strobe.rate_hz,
         interval_s: scene.strobe.interval_s(),
         gravity_mps2: scene.flight.gravity_mps2,
-        ball_radius_m: r_m,
+        ball_radius_m: shot.r_m,
         inertia_factor: scene.ball.inertia_factor(),
         incline_accel_mps2: motion.incline_accel_mps2,
         launch: motion.launch,
