@@ -42,6 +42,8 @@ const PROFILE_KEYS: &[(&str, &str)] = &[
     ("accept", "--accept"),
     ("start_px", "--start"),
     ("edge_systematic", "--edge-systematic"),
+    ("poll_interval_s", "--poll-interval"),
+    ("summary", "--summary"),
 ];
 
 /// Rewrite every command-line flag named in `message` as its profile key, so an error found

@@ -2,6 +2,7 @@
 
 use super::args::RigArgs;
 use super::profile::with_profile;
+use super::settings::flagged;
 use anyhow::{Context, Result, bail};
 use std::process::ExitCode;
 
@@ -78,9 +79,7 @@ pub(crate) fn rig(args: RigArgs) -> Result<ExitCode> {
             {
                 bail!("--idle-exit: must be a number of seconds >= 0, got {s}");
             }
-            Ok(r::watch::watch(
-                dir, &options, &watch, &journal, &sink, &done,
-            )?)
+            r::watch::watch(dir, &options, &watch, &journal, &sink, &done).map_err(flagged)
         } else {
             let paths = r::inputs::expand_inputs(&args.paths)?;
             if let Some(b) = &bar {
@@ -102,7 +101,10 @@ pub(crate) fn rig(args: RigArgs) -> Result<ExitCode> {
         b.finish_and_clear();
     }
     if let Some(p) = &args.summary {
-        beadline::core::output::write_text(p, &r::summary::summary_csv(&results)?)?;
+        beadline::core::output::write_text(
+            p,
+            &r::summary::summary_csv(&results).map_err(flagged)?,
+        )?;
     }
     Ok(ExitCode::from(r::exit_status(&results)))
 }

@@ -67,7 +67,7 @@ impl SummaryRow {
 /// The summary CSV of a run, one row per photo.
 pub fn summary_csv(results: &[PhotoResult]) -> Result<String> {
     let mut w = csv::Writer::from_writer(Vec::new());
-    let err = |e: csv::Error| Error::setting("--summary", e.to_string());
+    let err = |e: csv::Error| Error::setting("summary", e.to_string());
     for r in results {
         w.serialize(SummaryRow::of(r)).map_err(err)?;
     }
@@ -87,6 +87,6 @@ pub fn summary_csv(results: &[PhotoResult]) -> Result<String> {
     }
     let bytes = w
         .into_inner()
-        .map_err(|e| Error::setting("--summary", e.to_string()))?;
+        .map_err(|e| Error::setting("summary", e.to_string()))?;
     Ok(String::from_utf8_lossy(&bytes).into_owned())
 }

@@ -41,7 +41,7 @@ pub fn watch(
 ) -> Result<Vec<PhotoResult>> {
     if !(watch.poll_interval_s.is_finite() && watch.poll_interval_s > 0.0) {
         return Err(Error::setting(
-            "--poll-interval",
+            "poll_interval_s",
             format!(
                 "must be a positive number of seconds, got {}",
                 watch.poll_interval_s

@@ -612,12 +612,9 @@ impl Rendered {
             "jpg" | "jpeg" => image::ImageFormat::Jpeg,
             "tif" | "tiff" => image::ImageFormat::Tiff,
             _ => {
-                return Err(Error::setting(
-                    "--out",
-                    format!(
-                        "{}: unknown photo format (use .png, .jpg or .tif)",
-                        path.display()
-                    ),
+                return Err(Error::config(
+                    path,
+                    "unknown photo format (use .png, .jpg or .tif)",
                 ));
             }
         };
