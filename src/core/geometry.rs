@@ -65,12 +65,12 @@ pub fn disc_coverage(px: f64, py: f64, cx: f64, cy: f64, r: f64) -> f64 {
 }
 
 /// Mean surface normal of a sphere of radius `r` over the part of a pixel its image covers
-/// (`cov`), the pixel centre at (dx, dy) from the image's centre: the normal at the pixel centre
+/// (`coverage`), the pixel centre at (dx, dy) from the image's centre: the normal at the pixel centre
 /// for a pixel wholly inside; for a rim pixel, the mean over the radial strip of the covered
 /// width inside the rim, where the normal turns fastest (nz grows as sqrt(2 t / r) at depth t),
 /// so a grazing light on a small image is not misjudged by a pixel-centre sample.
-pub fn sphere_normal(dx: f64, dy: f64, r: f64, cov: f64) -> [f64; 3] {
-    if cov >= 1.0 {
+pub fn sphere_normal(dx: f64, dy: f64, r: f64, coverage: f64) -> [f64; 3] {
+    if coverage >= 1.0 {
         let (nx, ny) = (dx / r, dy / r);
         let n2 = nx * nx + ny * ny;
         if n2 < 1.0 {
@@ -83,7 +83,7 @@ pub fn sphere_normal(dx: f64, dy: f64, r: f64, cov: f64) -> [f64; 3] {
     } else {
         (1.0, 0.0)
     };
-    let a = (r - cov.clamp(1e-9, 1.0)).max(0.0);
+    let a = (r - coverage.clamp(1e-9, 1.0)).max(0.0);
     let nz = (half_disc_primitive(r, r) - half_disc_primitive(a, r)) / (r * (r - a));
     let rho = 0.5 * (a + r) / r;
     [ux * rho, uy * rho, nz]

@@ -429,11 +429,11 @@ impl<'a> Shot<'a> {
             if p.draw_rig {
                 let wp = proj.to_world(xf, yf);
                 let scale = cam.px_per_m;
-                if let Some((cov, level)) = rig.cover(wp, scale) {
+                if let Some((coverage, level)) = rig.cover(wp, scale) {
                     let metal =
                         level * (1.0 + 0.05 * paint::value_noise(xf, yf, 3.0, seed ^ 0xABCD));
                     for o in out.iter_mut() {
-                        *o = *o * (1.0 - cov) + metal * cov;
+                        *o = *o * (1.0 - coverage) + metal * coverage;
                     }
                 }
             }

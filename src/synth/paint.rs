@@ -133,24 +133,24 @@ pub fn paint(width: usize, height: usize, stamps: &[Stamp]) -> Exposure {
                     } else {
                         disc_coverage(xf, y, s.x_px, s.y_px, s.r_px)
                     };
-                    let mut cov = disc;
+                    let mut coverage = disc;
                     if let Some(c) = s.clip {
                         let below = y - (c.line_a + c.line_b * xf);
-                        cov *= (below + 0.5).clamp(0.0, 1.0)
+                        coverage *= (below + 0.5).clamp(0.0, 1.0)
                             * (c.depth_px - below + 0.5).clamp(0.0, 1.0);
                     }
-                    if cov <= 0.0 {
+                    if coverage <= 0.0 {
                         continue;
                     }
                     let sh = s
                         .light
                         .map_or(1.0, |l| shade(sphere_normal(dx, dy, s.r_px, disc), l));
-                    let v = s.weight * cov * s.albedo * sh;
+                    let v = s.weight * coverage * s.albedo * sh;
                     for (l, tint) in lp.iter_mut().zip(s.rgb) {
                         *l += (v * tint) as f32;
                     }
                     if s.occludes {
-                        *hp += (s.weight * cov) as f32;
+                        *hp += (s.weight * coverage) as f32;
                     }
                 }
             }

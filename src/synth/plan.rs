@@ -157,8 +157,14 @@ fn speed_at(m: &Motion, t: f64) -> f64 {
     p.vx_mps.hypot(p.vy_mps)
 }
 
-fn try_setting(cov: &Coverage, scene: &Scene, level: usize, l: &PowerLevel, rate: f64) -> Trial {
-    let m = &cov.motion;
+fn try_setting(
+    covered: &Coverage,
+    scene: &Scene,
+    level: usize,
+    l: &PowerLevel,
+    rate: f64,
+) -> Trial {
+    let m = &covered.motion;
     let dt = 1.0 / rate;
     let gap = |t: f64| {
         let (a, b) = (m.at(t), m.at(t + dt));
@@ -166,18 +172,18 @@ fn try_setting(cov: &Coverage, scene: &Scene, level: usize, l: &PowerLevel, rate
     };
     // First flash: once consecutive images are 0.8 radius apart (or at release).
     let mut t0 = 0.0;
-    while t0 < cov.t_end_s && gap(t0) < 0.8 * cov.radius_m {
+    while t0 < covered.t_end_s && gap(t0) < 0.8 * covered.radius_m {
         t0 += 1e-3;
     }
-    let n_needed = ((cov.t_end_s - t0) * rate).floor() as usize + 1;
+    let n_needed = ((covered.t_end_s - t0) * rate).floor() as usize + 1;
     let flashes = n_needed.min(l.max_flashes);
     let times: Vec<f64> = (0..flashes).map(|i| t0 + i as f64 * dt).collect();
-    let images_per_arc = cov
+    let images_per_arc = covered
         .arcs
         .iter()
         .map(|(a, b)| times.iter().filter(|&&t| t > *a && t < *b).count())
         .collect();
-    let d = 2.0 * cov.radius_m;
+    let d = 2.0 * covered.radius_m;
     let mut closest = f64::INFINITY;
     let (mut v_max, mut fast_gap) = (0.0, f64::INFINITY);
     for w in times.windows(2) {
@@ -193,7 +199,7 @@ fn try_setting(cov: &Coverage, scene: &Scene, level: usize, l: &PowerLevel, rate
     let t_last = times.last().copied().unwrap_or(t0);
     let mut uncovered = 0.0;
     let mut t = t_last;
-    while t < cov.t_end_s {
+    while t < covered.t_end_s {
         uncovered += speed_at(m, t) * 1e-3;
         t += 1e-3;
     }
@@ -211,7 +217,7 @@ fn try_setting(cov: &Coverage, scene: &Scene, level: usize, l: &PowerLevel, rate
 }
 
 /// Which wishes a trial misses.
-fn misses(t: &Trial, w: &Wishes, cov: &Coverage, max_flashes: usize) -> Vec<&'static str> {
+fn misses(t: &Trial, w: &Wishes, covered: &Coverage, max_flashes: usize) -> Vec<&'static str> {
     let mut out = Vec::new();
     if t.images_per_arc.iter().any(|&n| n < w.min_images_per_arc) {
         out.push("min_images_per_arc");
@@ -222,7 +228,7 @@ fn misses(t: &Trial, w: &Wishes, cov: &Coverage, max_flashes: usize) -> Vec<&'st
     if t.blur_px > w.max_blur_px {
         out.push("max_blur_px");
     }
-    let needed = ((cov.t_end_s - t.t0) * t.rate_hz).floor() as usize + 1;
+    let needed = ((covered.t_end_s - t.t0) * t.rate_hz).floor() as usize + 1;
     if needed > max_flashes {
         out.push("bounces");
     }
@@ -238,14 +244,14 @@ pub fn plan(scene: &Scene) -> Result<Plan, PlanError> {
         bounces: 2,
         max_blur_px: 0.5,
     });
-    let cov = coverage(scene, &wishes);
+    let covered = coverage(scene, &wishes);
     let mut best: Option<(Trial, Vec<&'static str>)> = None;
     for (li, l) in unit.levels.iter().enumerate() {
         let steps = (l.max_rate_hz / 0.25).floor() as usize;
         for s in 1..=steps.min(40_000) {
             let rate = s as f64 * 0.25;
-            let t = try_setting(&cov, scene, li, l, rate);
-            let miss = misses(&t, &wishes, &cov, l.max_flashes);
+            let t = try_setting(&covered, scene, li, l, rate);
+            let miss = misses(&t, &wishes, &covered, l.max_flashes);
             let poorest = t.images_per_arc.iter().copied().min().unwrap_or(0);
             let better = match &best {
                 None => true,
@@ -261,7 +267,7 @@ pub fn plan(scene: &Scene) -> Result<Plan, PlanError> {
     }
     let (t, miss) = best.expect("every level has a rate of at least 0.25 Hz");
     let l = &unit.levels[t.level];
-    let mut warnings = cov.warnings.clone();
+    let mut warnings = covered.warnings.clone();
     for m in &miss {
         warnings.push(match *m {
             "min_images_per_arc" => format!(
