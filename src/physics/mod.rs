@@ -20,6 +20,7 @@
 pub mod bands;
 pub mod bounce;
 mod calibration;
+pub mod checks;
 pub mod dynamics;
 pub mod fit;
 pub mod flight;
@@ -275,6 +276,8 @@ pub struct Measurement {
     pub drag: Option<DragFit>,
     /// Acceptance verdicts.
     pub verdicts: Vec<Verdict>,
+    /// Self-checks of the measurement (see [`checks`]).
+    pub checks: Vec<checks::Check>,
 }
 
 /// `e`, from the stage `what` of the measurement, as a physics error of the photo.
@@ -427,6 +430,7 @@ pub fn measure(
         restitution_trend,
         drag,
         verdicts: Vec::new(),
+        checks: Vec::new(),
     };
     m.verdicts = options.bands.iter().map(|b| b.judge(&m)).collect();
     Ok(m)
