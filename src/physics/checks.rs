@@ -70,11 +70,25 @@ pub fn chi_square_999(dof: usize) -> f64 {
     k * (1.0 - c + Z_999 * c.sqrt()).powi(3)
 }
 
-/// Pass up to the 99.9 % point, warn up to residuals five times the sigmas, fail beyond.
+/// Reduced chi-square up to which a fit passes even above its 99.9 % point: residuals up to
+/// twice the centre sigmas only widen the fit's uncertainties by that Birge ratio (every fit's
+/// covariance is scaled so), as sub-pixel centre sigmas are trusted to a factor 2 (common
+/// practice, no source).
+const PASS_REDUCED_CHI_SQUARE: f64 = 4.0;
+
+/// The largest reduced chi-square that passes with `dof` degrees of freedom.
+fn pass_limit(dof: usize) -> f64 {
+    (chi_square_999(dof) / dof.max(1) as f64).max(PASS_REDUCED_CHI_SQUARE)
+}
+
+/// Pass up to the 99.9 % point (or residuals twice the sigmas), warn up to residuals five times
+/// the sigmas, fail beyond.
 fn chi_square_outcome(chi_square: f64, dof: usize) -> CheckOutcome {
     if !chi_square.is_finite() {
         CheckOutcome::Fail
-    } else if dof == 0 || chi_square <= chi_square_999(dof) {
+    } else if dof == 0
+        || chi_square <= chi_square_999(dof).max(PASS_REDUCED_CHI_SQUARE * dof as f64)
+    {
         CheckOutcome::Pass
     } else if chi_square / dof as f64 <= FAIL_REDUCED_CHI_SQUARE {
         CheckOutcome::Warn
@@ -151,7 +165,8 @@ fn arc_check(a: &ArcResult) -> Check {
         "floor run"
     };
     let what = match outcome {
-        CheckOutcome::Warn => format!(
+        _ if a.reduced_chi_square <= 1.0 => String::new(),
+        CheckOutcome::Pass | CheckOutcome::Warn => format!(
             "; its uncertainties are widened by the Birge ratio {:.1}",
             a.reduced_chi_square.sqrt()
         ),
@@ -160,7 +175,6 @@ fn arc_check(a: &ArcResult) -> Check {
             "it does not follow one parabola (a point of another phase, a wrong image on the \
              path, a miscounted flash, air drag, or motion out of the plane)",
         ),
-        CheckOutcome::Pass => String::new(),
     };
     check(
         "arc_fit",
@@ -168,7 +182,7 @@ fn arc_check(a: &ArcResult) -> Check {
         a.reduced_chi_square,
         format!(
             "reduced chi-square <= {:.2} ({} degrees of freedom)",
-            chi_square_999(a.dof) / a.dof.max(1) as f64,
+            pass_limit(a.dof),
             a.dof
         ),
         format!(
@@ -198,8 +212,8 @@ fn incline_checks(i: &super::incline::InclineResult) -> Vec<Check> {
             .max(i.along_reduced_chi_square),
         format!(
             "reduced chi-square <= {:.2} across and {:.2} along the slope",
-            chi_square_999(dof_line) / dof_line.max(1) as f64,
-            chi_square_999(dof_along) / dof_along.max(1) as f64
+            pass_limit(dof_line),
+            pass_limit(dof_along)
         ),
         format!(
             "incline n {}..{}: {:.2} mm RMS off a straight line, constant-acceleration fit \
@@ -285,7 +299,7 @@ fn arc_agreement(arcs: &[ArcResult], fit_drag: bool) -> Option<Check> {
         chi2 / dof as f64,
         format!(
             "reduced chi-square <= {:.2} ({} arcs)",
-            chi_square_999(dof) / dof as f64,
+            pass_limit(dof),
             flying.len()
         ),
         format!(
@@ -366,7 +380,7 @@ fn floor_checks(m: &Measurement) -> Vec<Check> {
             red,
             format!(
                 "reduced chi-square <= {:.2} ({} contacts)",
-                chi_square_999(dof) / dof as f64,
+                pass_limit(dof),
                 m.floor.contacts
             ),
             format!(
@@ -534,8 +548,10 @@ pub fn images_accounted(found: usize, on_path: usize, strays: usize, on_others: 
 }
 
 /// Relative change of the ball's size along the path above which it moves in depth (common
-/// practice, no source: 3 %, beyond the radius noise of a well-lit ball).
+/// practice, no source: 3 %, beyond the radius noise of a well-lit ball), and above which the
+/// distances along the path are off by several per cent (10 %): warn, fail.
 const DEPTH_CHANGE: f64 = 0.03;
+const DEPTH_CHANGE_FAIL: f64 = 0.10;
 
 /// The ball's size in the plane of motion should not change along the path: a trend means
 /// motion in depth, which the in-plane model cannot follow. `flash_n` and `r_m` are the path's flash indexes
@@ -559,7 +575,9 @@ pub fn radius_trend(flash_n: &[f64], r_m: &[f64]) -> Option<Check> {
     let span = flash_n[n - 1] - flash_n[0];
     let change = line.coefficients[1] * span / mean;
     let z = line.coefficients[1] / line.sigma(1);
-    let outcome = if change.abs() > DEPTH_CHANGE && z.abs() > 5.0 {
+    let outcome = if change.abs() > DEPTH_CHANGE_FAIL && z.abs() > 5.0 {
+        CheckOutcome::Fail
+    } else if change.abs() > DEPTH_CHANGE && z.abs() > 5.0 {
         CheckOutcome::Warn
     } else {
         CheckOutcome::Pass
