@@ -24,6 +24,7 @@ pub mod checks;
 pub mod dynamics;
 pub mod fit;
 pub mod flight;
+pub mod frame;
 pub mod incline;
 pub mod phases;
 

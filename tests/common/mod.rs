@@ -6,7 +6,8 @@
 #![allow(dead_code)]
 
 use beadline::image::load::{LoadOptions, Photo, load};
-use beadline::synth::{self, Truth, scene::Scene};
+use beadline::report::measure::MeasureDoc;
+use beadline::synth::{self, FlashTruth, Truth, scene::Scene};
 use std::io::{BufRead, BufReader, Read};
 use std::path::{Path, PathBuf};
 use std::process::{Child, ChildStdout, Command, ExitStatus, Output, Stdio};
@@ -219,6 +220,66 @@ pub fn render_and_load(scene: &Scene, path: &Path) -> (Photo, Truth) {
         load(path, &LoadOptions::default()).expect("load the rendered photo"),
         truth,
     )
+}
+
+// ---------------------------------------------------------------------------------------------
+// Measured against the truth
+
+/// The truth of the flash whose image is centred nearest the pixel (`x_px`, `y_px`).
+pub fn flash_at(truth: &Truth, x_px: f64, y_px: f64) -> &FlashTruth {
+    truth
+        .flashes
+        .iter()
+        .min_by(|a, b| {
+            let da = (a.x_px - x_px).hypot(a.y_px - y_px);
+            let db = (b.x_px - x_px).hypot(b.y_px - y_px);
+            da.total_cmp(&db)
+        })
+        .expect("the truth has flashes")
+}
+
+/// Every path entry of `doc` against its flash's truth position less `origin_m` (a point of
+/// the truth's world, which has the floor at y = 0): within 3 sigma + 1 mm, sigma the entry's own
+/// (its pixel sigma at the truth's scale) and `origin_sigma_m` (the measured origin's) in
+/// quadrature. Every entry must be an image of a flash (within half a radius). Returns the
+/// largest offset, metres.
+pub fn assert_path_in_truth_frame(
+    doc: &MeasureDoc,
+    truth: &Truth,
+    origin_m: [f64; 2],
+    origin_sigma_m: f64,
+) -> f64 {
+    assert!(!doc.path.is_empty());
+    let mut worst: f64 = 0.0;
+    for p in &doc.path {
+        let f = flash_at(truth, p.x_px, p.y_px);
+        assert!(
+            (f.x_px - p.x_px).hypot(f.y_px - p.y_px) < 0.5 * f.r_px,
+            "path entry n = {} at ({:.1}, {:.1}) px is no flash's image",
+            p.n,
+            p.x_px,
+            p.y_px
+        );
+        let sigma = (p.sigma_px / truth.scale_px_per_m).hypot(origin_sigma_m);
+        let tol = 3.0 * sigma + 1e-3;
+        let (dx, dy) = (p.x_m - (f.x_m - origin_m[0]), p.y_m - (f.y_m - origin_m[1]));
+        assert!(
+            dx.abs() <= tol && dy.abs() <= tol,
+            "path entry n = {} (flash {}): ({:.5}, {:.5}) m, truth ({:.5}, {:.5}) m less the \
+             origin ({:.5}, {:.5}), tolerance {:.5} m",
+            p.n,
+            f.n,
+            p.x_m,
+            p.y_m,
+            f.x_m,
+            f.y_m,
+            origin_m[0],
+            origin_m[1],
+            tol
+        );
+        worst = worst.max(dx.abs()).max(dy.abs());
+    }
+    worst
 }
 
 // ---------------------------------------------------------------------------------------------
