@@ -123,9 +123,10 @@ impl DropScene {
         }
     }
 
-    /// A 40 mm ball dropped from rest from 1 m (bottom) for shot planning: a flash unit with one
-    /// power level of `max_flashes` flashes at up to `max_rate_hz`, and `wishes` (lines of the
-    /// `[wishes]` table).
+    /// A 40 mm ball let go 1 m (bottom) above the floor, drifting 0.5 m/s sideways (a straight
+    /// drop piles its images up at every apex, which measure cannot separate), for shot
+    /// planning: a flash unit with one power level of `max_flashes` flashes at up to
+    /// `max_rate_hz`, and `wishes` (lines of the `[wishes]` table); a 1200 x 900 view.
     pub fn planned(max_flashes: usize, max_rate_hz: f64, wishes: &str) -> DropScene {
         DropScene {
             seed: None,
@@ -133,13 +134,13 @@ impl DropScene {
             build: None,
             x_m: 0.2,
             y_m: 1.02,
-            vx_mps: None,
+            vx_mps: Some(0.5),
             restitution: 0.8,
             rate_hz: 20.0,
             first_flash_s: None,
             exposure_s: 1.0,
             px_per_m: 700.0,
-            width_px: 600,
+            width_px: 1200,
             height_px: 900,
             origin_x_px: 160.0,
             origin_y_px: 880.0,
