@@ -3,7 +3,7 @@
 //!
 //! Goes in: a [`Measurement`] and the [`MeasureOptions`] it was made with. Comes out: a
 //! [`ResultFrame`], the similarity that [`super::measure`] applied to its input points before it
-//! fitted them: the turn by the camera roll when it was corrected (as [`calibration::level`]
+//! fitted them: the turn by the camera roll when it was corrected (as the level correction
 //! turns the path) and, when the scale is the estimated quantity, the factor that rescales every
 //! length (nominal scale / estimated scale). Both are about the input's origin, so a shift of the
 //! input points by `o` shifts every position of the results by `from_input(o)` and leaves every
