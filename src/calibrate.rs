@@ -189,6 +189,42 @@ impl Calibration {
         self.world_to_pixel
     }
 
+    /// The same mapping into a new world frame: each world position w of this calibration
+    /// becomes `factor` R(`roll_rad`) w - `origin_m`, where R turns (x, y) to
+    /// (x cos - y sin, x sin + y cos) (the physics' level correction), so the world point
+    /// `origin_m` of the turned and scaled frame is the new origin.
+    pub fn reframed(&self, roll_rad: f64, factor: f64, origin_m: [f64; 2]) -> Result<Self> {
+        if !(factor.is_finite() && factor > 0.0) {
+            return Err(Error::setting(
+                "frame",
+                "the length factor must be positive",
+            ));
+        }
+        if !(roll_rad.is_finite() && origin_m.iter().all(|v| v.is_finite())) {
+            return Err(Error::setting("frame", "roll and origin must be finite"));
+        }
+        let (s, c) = roll_rad.sin_cos();
+        let to_new = Matrix3::new(
+            factor * c,
+            -factor * s,
+            -origin_m[0],
+            factor * s,
+            factor * c,
+            -origin_m[1],
+            0.0,
+            0.0,
+            1.0,
+        );
+        let back = to_new
+            .try_inverse()
+            .ok_or_else(|| Error::setting("frame", "is singular"))?;
+        let mut h = self.world_to_pixel * back;
+        if h[(2, 2)] != 0.0 {
+            h /= h[(2, 2)];
+        }
+        Self::from_homography(h, self.distortion)
+    }
+
     /// Recorded pixel to world metres.
     pub fn to_world(&self, x_px: f64, y_px: f64) -> [f64; 2] {
         let u = self
@@ -484,6 +520,26 @@ mod tests {
         assert!((c.sigma_m(500.0, 300.0, 0.8) - 0.001).abs() < 1e-9);
         let o = c.to_world(100.0, 700.0);
         assert!(o[0].abs() < 1e-12 && o[1].abs() < 1e-12);
+    }
+
+    #[test]
+    fn reframed_turns_scales_and_shifts_the_world() {
+        // Seen without its roll, a picture turned by 2 degrees gives world positions turned by
+        // -2 degrees; turning them back by the roll (the physics' level correction) is the
+        // calibration that knows the roll. Then a factor and a new origin.
+        let level = Calibration::uniform(800.0, 100.0, 700.0, 0.0).unwrap();
+        let rolled = Calibration::uniform(800.0, 100.0, 700.0, 2.0).unwrap();
+        let turned = level.reframed(2f64.to_radians(), 1.0, [0.0, 0.0]).unwrap();
+        let moved = level.reframed(2f64.to_radians(), 1.5, [0.2, -0.1]).unwrap();
+        for p in [[100.0, 700.0], [900.0, 120.0], [350.5, 480.25]] {
+            let (a, b) = (turned.to_world(p[0], p[1]), rolled.to_world(p[0], p[1]));
+            assert!((a[0] - b[0]).abs() < 1e-12 && (a[1] - b[1]).abs() < 1e-12);
+            let m = moved.to_world(p[0], p[1]);
+            assert!((m[0] - (1.5 * b[0] - 0.2)).abs() < 1e-12);
+            assert!((m[1] - (1.5 * b[1] + 0.1)).abs() < 1e-12);
+            let q = moved.to_pixel(m[0], m[1]);
+            assert!((q[0] - p[0]).abs() < 1e-9 && (q[1] - p[1]).abs() < 1e-9);
+        }
     }
 
     #[test]

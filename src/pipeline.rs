@@ -9,8 +9,9 @@
 use crate::calibrate::{self, Calibration, PlaneFile};
 use crate::detect::{self, SpotOptions, SpotReport};
 use crate::error::{Error, Result, TrackError, positive};
+use crate::physics::frame::ResultFrame;
 use crate::physics::{self, MeasureOptions, Quantity, TimedPoint, Unknown};
-use crate::report::measure::{MeasureDoc, PathEntry};
+use crate::report::measure::{MeasureDoc, PathEntry, WorldOrigin};
 use crate::track::{self, PathOptions, PathResult};
 use std::path::{Path, PathBuf};
 
@@ -269,6 +270,12 @@ fn image_checks(
 }
 
 /// [`measure_spots`] with settings already validated.
+///
+/// The physics runs twice: once on the path in the calibration's world frame, which gives the
+/// floor, the launch and the bounces, and once on the same path shifted so that the origin of
+/// [`origin_of`] is (0, 0). A shift changes no speed, acceleration or restitution, only where
+/// the positions lie; the second run puts every position of the results (floor, launch,
+/// bounces, checks) in the reported frame, and the path entries are mapped into the same frame.
 fn measure_validated(
     photo_path: &Path,
     report: SpotReport,
@@ -316,7 +323,32 @@ fn measure_validated(
         r_px / calibration.scale_px_per_m(w as f64 / 2.0, h as f64 / 2.0),
         |d| d / 2.0,
     );
-    let mut measurement = physics::measure(&points, radius_m, &physics_options)?;
+    let first = physics::measure(&points, radius_m, &physics_options)?;
+    let frame = ResultFrame::of(&first, &physics_options);
+    let plane = matches!(settings.scale, Some(ScaleSource::Plane(_)));
+    // The ball's radius in the result frame: a given diameter is true metres already.
+    let radius_result_m = match settings.ball_diameter_m {
+        Some(_) => radius_m,
+        None => radius_m * frame.length_factor,
+    };
+    let origin = origin_of(&first, &points, &frame, radius_result_m, plane);
+    let calibration = calibration.reframed(frame.roll_rad, frame.length_factor, origin.at_m)?;
+    let measurement = if origin.at_m == [0.0, 0.0] {
+        first
+    } else {
+        let shift = frame.to_input(origin.at_m);
+        let shifted: Vec<TimedPoint> = points
+            .iter()
+            .map(|p| TimedPoint {
+                x_m: p.x_m - shift[0],
+                y_m: p.y_m - shift[1],
+                ..*p
+            })
+            .collect();
+        physics_options.floor_y_m = physics_options.floor_y_m.map(|y| y - origin.at_m[1]);
+        physics::measure(&shifted, radius_m, &physics_options)?
+    };
+    let mut measurement = measurement;
     measurement.checks.extend(image_checks(
         &report,
         &paths,
@@ -324,34 +356,125 @@ fn measure_validated(
         &calibration,
         &measurement,
     ));
-    let doc = MeasureDoc {
-        file: photo_path.display().to_string(),
-        width_px: report.width_px,
-        height_px: report.height_px,
-        spots_found: report.spots.len(),
-        path: best
-            .points
-            .iter()
-            .zip(&points)
-            .map(|(p, t)| PathEntry {
-                n: p.n,
-                t_s: t.t_s,
-                x_px: p.x_px,
-                y_px: p.y_px,
-                r_px: p.r_px,
-                sigma_px: p.sigma_px,
-                x_m: t.x_m,
-                y_m: t.y_m,
-            })
-            .collect(),
-        missing: best.missing.clone(),
-        strays: paths.strays.clone(),
-        measurement,
-    };
     Ok(Measured {
-        doc,
+        doc: document(
+            photo_path,
+            &report,
+            best,
+            &paths,
+            measurement,
+            &calibration,
+            origin,
+        ),
         spots: report,
         paths,
         calibration,
     })
+}
+
+/// The height origin when no floor was found.
+const LOWEST_IMAGE: &str = "lowest_image";
+
+/// The origin of the reported world frame, as a position of the first run's result frame.
+struct Origin {
+    /// Where it lies in the first run's results, metres.
+    at_m: [f64; 2],
+    /// What it is, for the document.
+    doc: WorldOrigin,
+}
+
+/// The origin of the reported frame from the first run `m` of the physics on `points` (input
+/// frame), whose results lie in `frame` (`radius_m` is the ball's radius in that frame): with a plane file, the plane's own origin; otherwise
+/// y = 0 at the floor line when the floor was found (else at the underside of the ball at its
+/// lowest image), and x = 0 at the ball's centre at the launch off the incline, else at its
+/// centre at the first bounce contact, else at its first image.
+fn origin_of(
+    m: &physics::Measurement,
+    points: &[TimedPoint],
+    frame: &ResultFrame,
+    radius_m: f64,
+    plane: bool,
+) -> Origin {
+    if plane {
+        return Origin {
+            at_m: [0.0, 0.0],
+            doc: WorldOrigin {
+                x: "plane".into(),
+                y: "plane".into(),
+            },
+        };
+    }
+    let result: Vec<[f64; 2]> = points
+        .iter()
+        .map(|p| frame.from_input([p.x_m, p.y_m]))
+        .collect();
+    let launch_x = m.launch.as_ref().map(|l| l.x_m).filter(|x| x.is_finite());
+    let bounce_x = m.bounces.first().map(|b| b.x_m).filter(|x| x.is_finite());
+    let (x, x_doc) = match (launch_x, bounce_x) {
+        (Some(x), _) => (x, "launch"),
+        (None, Some(x)) => (x, "first_bounce"),
+        (None, None) => (result[0][0], "first_image"),
+    };
+    let (y, y_doc) = if m.floor.y_m.is_finite() {
+        (m.floor.y_m, "floor")
+    } else {
+        let lowest = result.iter().map(|p| p[1]).fold(f64::INFINITY, f64::min);
+        (lowest - radius_m, LOWEST_IMAGE)
+    };
+    Origin {
+        at_m: [x, y],
+        doc: WorldOrigin {
+            x: x_doc.into(),
+            y: y_doc.into(),
+        },
+    }
+}
+
+/// The document of the measurement `m` of the path `best`, whose positions are in the frame of
+/// `calibration` (the path entries are mapped into it, their times counted in the measured
+/// flash interval).
+fn document(
+    photo_path: &Path,
+    report: &SpotReport,
+    best: &track::BallPath,
+    paths: &PathResult,
+    mut m: physics::Measurement,
+    calibration: &Calibration,
+    origin: Origin,
+) -> MeasureDoc {
+    if origin.doc.y == LOWEST_IMAGE {
+        m.floor.source = format!(
+            "{}; heights count from the underside of the ball at its lowest image, not from \
+             the floor",
+            m.floor.source
+        );
+    }
+    let dt = m.flash_interval_s.value;
+    MeasureDoc {
+        file: photo_path.display().to_string(),
+        width_px: report.width_px,
+        height_px: report.height_px,
+        spots_found: report.spots.len(),
+        origin: origin.doc,
+        path: best
+            .points
+            .iter()
+            .map(|p| {
+                let [x_m, y_m] = calibration.to_world(p.x_px, p.y_px);
+                PathEntry {
+                    n: p.n,
+                    t_s: p.n as f64 * dt,
+                    x_px: p.x_px,
+                    y_px: p.y_px,
+                    r_px: p.r_px,
+                    sigma_px: p.sigma_px,
+                    x_m,
+                    y_m,
+                }
+            })
+            .collect(),
+        missing: best.missing.clone(),
+        strays: paths.strays.clone(),
+        measurement: m,
+    }
 }

@@ -170,6 +170,12 @@ fn a_tilted_camera_is_measured_through_a_plane_homography() {
     };
     settings.physics.camera_level = true;
     let m = measure_photo(&photo, &settings).unwrap();
+    // The plane file's world is the user's: kept as given, its points are the truth's world.
+    assert_eq!(
+        (m.doc.origin.x.as_str(), m.doc.origin.y.as_str()),
+        ("plane", "plane")
+    );
+    common::assert_path_in_truth_frame(&m.doc, &truth, [0.0, 0.0], 0.0);
     let doc = &m.doc.measurement;
     assert!(!doc.bounces.is_empty());
     for b in &doc.bounces {
@@ -380,4 +386,130 @@ fn failed_self_checks_and_unmeasured_bands_give_their_exit_status() {
     ];
     let unmeasured = common::beadline(&args, dir.path());
     assert_eq!(unmeasured.status.code(), Some(3), "{unmeasured:?}");
+}
+
+#[test]
+fn positions_have_the_floor_at_zero_and_x_from_the_launch_point() {
+    // The README's frame: y = 0 at the floor line found from the bounces, x = 0 at the launch
+    // point (the ball's centre leaving the incline). Truth: the renderer's world has its floor
+    // at y = 0, so every path point, the launch height and each bounce must match the truth once
+    // x is counted from the truth's launch point.
+    let dir = common::tempdir();
+    let (photo, truth) = shoot(&common::small_scene(), dir.path(), "small.png");
+    let settings = MeasureSettings {
+        rate_hz: Some(25.0),
+        scale: Some(ScaleSource::BallDiameter),
+        ball_diameter_m: Some(0.04),
+        ..Default::default()
+    };
+    let m = measure_photo(&photo, &settings).unwrap();
+    assert_eq!(
+        (m.doc.origin.x.as_str(), m.doc.origin.y.as_str()),
+        ("launch", "floor")
+    );
+    let doc = &m.doc.measurement;
+    assert!(
+        doc.floor.y_m.abs() <= doc.floor.sigma_m.max(1e-9),
+        "{:?}",
+        doc.floor
+    );
+    let launch = doc.launch.as_ref().expect("a launch");
+    // The origin's own 1-sigma: the launch time's sigma times the horizontal speed.
+    let origin_sigma = launch.t_sigma_s * launch.velocity_mps[0].abs();
+    assert!(launch.x_m.abs() < 1e-9, "launch x {}", launch.x_m);
+    let worst =
+        common::assert_path_in_truth_frame(&m.doc, &truth, [truth.launch.x_m, 0.0], origin_sigma);
+    assert!(
+        (launch.y_m - truth.launch.y_m).abs() < 3.0 * origin_sigma + 1e-3,
+        "launch y {} vs {}",
+        launch.y_m,
+        truth.launch.y_m
+    );
+    assert!(doc.bounces.len() >= 2);
+    for (b, t) in doc.bounces.iter().zip(&truth.bounces) {
+        let want = t.x_m - truth.launch.x_m;
+        assert!((b.x_m - want).abs() < 1e-3, "bounce x {} vs {want}", b.x_m);
+    }
+    eprintln!("worst path offset {worst:.6} m, origin sigma {origin_sigma:.6} m");
+    // The overlay's calibration maps the reported frame back onto the photo.
+    for p in &m.doc.path {
+        let q = m.calibration.to_pixel(p.x_m, p.y_m);
+        assert!((q[0] - p.x_px).abs() < 1e-6 && (q[1] - p.y_px).abs() < 1e-6);
+    }
+}
+
+#[test]
+fn a_rolled_drop_with_the_scale_estimated_counts_x_from_the_first_bounce() {
+    // No incline: x = 0 at the ball's centre at the first bounce contact. The camera is rolled
+    // 1.5 degrees (corrected from the arcs) and the scale is the estimated quantity, so the
+    // path entries must be levelled and rescaled like the physics to match the truth's world.
+    let dir = common::tempdir();
+    let mut scene = DropScene::drifting().scene();
+    scene.camera.roll_deg = 1.5;
+    let (photo, truth) = shoot(&scene, dir.path(), "rolled.png");
+    let settings = MeasureSettings {
+        rate_hz: Some(25.0),
+        ball_diameter_m: Some(0.04),
+        ..Default::default()
+    };
+    let m = measure_photo(&photo, &settings).unwrap();
+    assert_eq!(
+        (m.doc.origin.x.as_str(), m.doc.origin.y.as_str()),
+        ("first_bounce", "floor")
+    );
+    let doc = &m.doc.measurement;
+    assert!(doc.level.corrected);
+    assert!(doc.scale_px_per_m.source.contains("estimated"));
+    assert!(
+        doc.floor.y_m.abs() <= doc.floor.sigma_m.max(1e-9),
+        "{:?}",
+        doc.floor
+    );
+    assert!(doc.bounces[0].x_m.abs() < 1e-9);
+    let worst =
+        common::assert_path_in_truth_frame(&m.doc, &truth, [truth.bounces[0].x_m, 0.0], 0.0);
+    for (b, t) in doc.bounces.iter().zip(&truth.bounces) {
+        let want = t.x_m - truth.bounces[0].x_m;
+        assert!((b.x_m - want).abs() < 1e-3, "bounce x {} vs {want}", b.x_m);
+    }
+    eprintln!("worst path offset {worst:.6} m");
+}
+
+#[test]
+fn without_a_bounce_the_height_origin_is_the_lowest_image_and_says_so() {
+    // A fall photographed before it reaches the floor: no floor can be found, so heights count
+    // from the underside of the ball at its lowest image, and the floor's source says it is not
+    // the floor; x = 0 at the first image.
+    let dir = common::tempdir();
+    let mut scene = DropScene::drifting().scene();
+    scene.strobe.max_flashes = Some(7);
+    let (photo, truth) = shoot(&scene, dir.path(), "fall.png");
+    assert!(truth.flashes.iter().all(|f| f.arc == 0));
+    let settings = MeasureSettings {
+        rate_hz: Some(25.0),
+        scale: Some(ScaleSource::PxPerM(800.0)),
+        ball_diameter_m: Some(0.04),
+        ..Default::default()
+    };
+    let m = measure_photo(&photo, &settings).unwrap();
+    assert_eq!(
+        (m.doc.origin.x.as_str(), m.doc.origin.y.as_str()),
+        ("first_image", "lowest_image")
+    );
+    let doc = &m.doc.measurement;
+    assert!(doc.floor.y_m.is_nan());
+    assert!(
+        doc.floor.source.contains("not from the floor"),
+        "{}",
+        doc.floor.source
+    );
+    let first = common::flash_at(&truth, m.doc.path[0].x_px, m.doc.path[0].y_px);
+    let lowest = m
+        .doc
+        .path
+        .iter()
+        .map(|p| common::flash_at(&truth, p.x_px, p.y_px).y_m)
+        .fold(f64::INFINITY, f64::min);
+    common::assert_path_in_truth_frame(&m.doc, &truth, [first.x_m, lowest - 0.02], 0.0);
+    assert!(m.doc.text().contains("not the floor"));
 }

@@ -1,16 +1,71 @@
-//! Shot planning against answers worked out by hand from the equations of motion.
+//! Shot planning against answers worked out by hand from the equations of motion, and every
+//! recommended shot rendered and measured against its truth.
 
 mod common;
 
-use beadline::synth::plan::{CAUTION, plan};
+use beadline::pipeline::{MeasureSettings, ScaleSource, measure_photo};
+use beadline::synth::plan::{CAUTION, Plan, PlanError, RESOLVABLE, plan};
+use beadline::synth::scene::{FlashUnit, PowerLevel};
 use beadline::synth::{self, scene::Scene, sim::Motion};
 use common::DropScene;
+
+/// `value` (1-sigma `sigma`) within max(3 sigma, 1 %) of `truth`.
+fn right(what: &str, value: f64, sigma: f64, truth: f64) {
+    let tol = (3.0 * sigma).max(0.01 * truth.abs());
+    assert!(
+        (value - truth).abs() <= tol,
+        "{what}: {value} +- {sigma}, truth {truth}"
+    );
+}
+
+/// Render the recommended shot `p` of `scene` (Plan::apply + the renderer) and measure it as a
+/// user would (the planned rate, the ball's diameter as the scale): every bounce's restitution,
+/// the launch speed (with an incline) and gravity must match the rendered truth.
+fn measures_right(scene: &Scene, p: &Plan) {
+    let dir = common::tempdir();
+    let (photo, truth) = common::shoot(&p.apply(scene), dir.path(), "planned.png");
+    let settings = MeasureSettings {
+        rate_hz: Some(p.rate_hz),
+        scale: Some(ScaleSource::BallDiameter),
+        ball_diameter_m: Some(scene.ball.diameter_m),
+        ..Default::default()
+    };
+    let m = measure_photo(&photo, &settings).expect("the planned shot is measured");
+    let d = &m.doc.measurement;
+    let g = &d.gravity_mps2;
+    right("gravity", g.value, g.sigma, truth.gravity_mps2);
+    // Every bounce the plan covers is measured.
+    assert!(
+        d.bounces.len() + 1 >= p.images_per_arc.len(),
+        "{} bounces measured, {} arcs planned",
+        d.bounces.len(),
+        p.images_per_arc.len()
+    );
+    for (b, t) in d.bounces.iter().zip(&truth.bounces) {
+        right(
+            "restitution",
+            b.restitution,
+            b.restitution_sigma,
+            t.restitution,
+        );
+    }
+    if scene.incline.is_some() {
+        let l = d.launch.as_ref().expect("a launch off the incline");
+        right(
+            "launch speed",
+            l.speed_mps,
+            l.speed_sigma_mps,
+            truth.launch.speed_mps,
+        );
+    }
+}
 
 #[test]
 fn free_fall_spacing_and_first_bounce_arc_match_the_hand_answer() {
     let scene = DropScene::planned(200, 60.0, "min_images_per_arc = 6\nbounces = 1").scene();
     let p = plan(&scene).unwrap();
     assert!(p.meets_wishes, "{:?}", p.warnings);
+    measures_right(&scene, &p);
     let g: f64 = 9.80665;
     let dt = 1.0 / p.rate_hz;
     let motion = Motion::simulate(&p.apply(&scene), 5.0);
@@ -30,9 +85,13 @@ fn free_fall_spacing_and_first_bounce_arc_match_the_hand_answer() {
         let hand = g * dt * dt * (k + i as f64 + 0.5);
         assert!((spacing - hand).abs() < 1e-12, "{spacing} vs {hand}");
     }
-    // The first flash waits until images are 0.8 radius apart: g t0 dt + g dt^2 / 2 >= 0.8 r.
-    let gap0 = g * p.first_flash_s * dt + 0.5 * g * dt * dt;
-    assert!(gap0 >= 0.8 * 0.02 - 1e-9 && gap0 < 0.8 * 0.02 + g * 1.1e-3 * dt);
+    // The first flash waits until images are one radius apart: with the 0.5 m/s drift the gap
+    // from the first flash is hypot(vx dt, g t0 dt + g dt^2 / 2) (by hand), at least 0.02 m, and
+    // a millisecond earlier it was under it unless the flash is at release.
+    let gap = |t0: f64| (0.5 * dt).hypot(g * t0 * dt + 0.5 * g * dt * dt);
+    assert!(gap(p.first_flash_s) >= 0.02 - 1e-9);
+    assert!(p.first_flash_s == 0.0 || gap(p.first_flash_s - 1e-3) < 0.02);
+    assert!(p.closest_spacing_diameters >= RESOLVABLE.min_spacing_diameters);
     // First rebound: it leaves at v = e g t_b and lands 2 e g t_b / g later; its apex is at
     // t_b + e t_b. Count the planned flashes inside that arc by hand.
     let e = 0.8;
@@ -50,26 +109,85 @@ fn free_fall_spacing_and_first_bounce_arc_match_the_hand_answer() {
 
 #[test]
 fn the_flash_unit_limits_are_respected_and_a_wish_to_drop_is_named() {
-    // 12 flashes cannot cover a drop and two rebounds at 8 images per arc.
-    let scene = DropScene::planned(12, 25.0, "min_images_per_arc = 8\nbounces = 2").scene();
+    // 20 flashes cannot cover a drop and two rebounds at 8 images per arc, but they can at the
+    // 4 per arc measure needs: a plan that names the wish to drop.
+    let scene = DropScene::planned(20, 25.0, "min_images_per_arc = 8\nbounces = 2").scene();
     let p = plan(&scene).unwrap();
-    assert!(p.flashes <= 12 && p.rate_hz <= 25.0);
+    assert!(p.flashes <= 20 && p.rate_hz <= 25.0);
     assert!(!p.meets_wishes);
     assert!(
         p.warnings.iter().any(|w| w.contains("wishes.")),
         "{:?}",
         p.warnings
     );
+    assert!(
+        p.images_per_arc.iter().all(|&n| n >= 4),
+        "{:?}",
+        p.images_per_arc
+    );
+    measures_right(&scene, &p);
     // A generous unit meets the same wishes within its limits.
     let scene = DropScene::planned(400, 80.0, "min_images_per_arc = 8\nbounces = 2").scene();
     let p = plan(&scene).unwrap();
     assert!(p.meets_wishes, "{:?}", p.warnings);
     assert!(p.flashes <= 400 && p.rate_hz <= 80.0);
+    measures_right(&scene, &p);
+}
+
+#[test]
+fn a_unit_that_cannot_give_a_measurable_photo_is_refused_with_the_reason() {
+    // 12 flashes over a fall and two rebounds (about 1.75 s): some arc gets under the 4 images
+    // an arc fit needs at every rate.
+    let scene = DropScene::planned(12, 25.0, "bounces = 2").scene();
+    let err = plan(&scene).unwrap_err();
+    assert!(
+        matches!(&err, PlanError::Unmeasurable(why) if why.contains("images on flight arc")),
+        "{err}"
+    );
+    // A straight drop turns in place at every apex: two consecutive images coincide there at
+    // some phase, whatever the rate.
+    let mut straight = DropScene::planned(200, 60.0, "bounces = 1");
+    straight.vx_mps = None;
+    let err = plan(&straight.scene()).unwrap_err();
+    assert!(err.to_string().contains("sideways speed"), "{err}");
+    // An 8 px ball (the demo at 400 px/m): under the radius measure follows.
+    let mut small = Scene::demo();
+    small.camera.px_per_m = 400.0;
+    small.flash_unit = Some(unit(60.0, 100));
+    let err = plan(&small).unwrap_err();
+    assert!(err.to_string().contains("px in radius"), "{err}");
+}
+
+/// A flash unit of one power level.
+fn unit(max_rate_hz: f64, max_flashes: usize) -> FlashUnit {
+    FlashUnit {
+        levels: vec![PowerLevel {
+            name: "full".into(),
+            max_rate_hz,
+            max_flashes,
+            flash_duration_s: 5e-5,
+        }],
+    }
+}
+
+#[test]
+fn the_demo_with_a_fast_unit_gets_a_shot_measure_resolves() {
+    // The demo rig with a 60 Hz unit: the plan once chose 56.5 Hz with images 0.40 diameters
+    // apart on the incline. Now the closest images are at least one radius apart, the incline
+    // has 4 or more images, and the shot measures right.
+    let mut scene = Scene::demo();
+    scene.flash_unit = Some(unit(60.0, 100));
+    let p = plan(&scene).unwrap();
+    assert!(p.closest_spacing_diameters >= RESOLVABLE.min_spacing_diameters);
+    assert!(p.images_per_arc.iter().all(|&n| n >= 4));
+    measures_right(&scene, &p);
 }
 
 #[test]
 fn every_plan_in_the_flicker_band_carries_the_caution() {
-    let p = plan(&DropScene::planned(200, 60.0, "bounces = 1").scene()).unwrap();
+    let scene = DropScene::planned(200, 60.0, "bounces = 1").scene();
+    let p = plan(&scene).unwrap();
+    measures_right(&scene, &p);
     assert!((3.0..=60.0).contains(&p.rate_hz));
     assert_eq!(p.caution.as_deref(), Some(CAUTION));
     assert!(p.text().contains("photosensitive epilepsy"));
@@ -83,6 +201,7 @@ fn the_preview_is_rendered_with_the_planned_settings() {
     assert_eq!(photo.truth.flashes.len(), p.flashes);
     assert_eq!(photo.truth.rate_hz, p.rate_hz);
     assert!((photo.truth.flashes[0].t_s - p.first_flash_s).abs() < 1e-12);
+    measures_right(&scene, &p);
 }
 
 #[test]

@@ -24,6 +24,7 @@ pub mod checks;
 pub mod dynamics;
 pub mod fit;
 pub mod flight;
+pub mod frame;
 pub mod incline;
 pub mod phases;
 
@@ -633,7 +634,8 @@ fn floor_line(
 /// between them, so their heights are correlated: the covariance of every pair that shares an
 /// arc is propagated through that arc's y covariance (the arc after bounce k is the one before
 /// bounce k + 1 when their arc indexes follow). The frame was rotated by a roll known to
-/// `roll_sigma_rad`: a rotation error d moves a height at x by d x, for every contact alike.
+/// `roll_sigma_rad`: a rotation error d tilts the floor line by d, moving the height of a contact
+/// at x by d (x - the contacts' mean x).
 fn weighted_contacts(
     contacts: &[(usize, &ArcFit, bounce::Contact)],
     roll_sigma_rad: f64,
@@ -656,7 +658,10 @@ fn weighted_contacts(
             cov[(i + 1, i)] = v;
         }
     }
-    let x = DVector::from_iterator(n, contacts.iter().map(|c| c.2.x_m));
+    // Centred on the contacts: the floor is known best where they are, and the estimate does
+    // not depend on where the frame's origin lies.
+    let mean_x = contacts.iter().map(|c| c.2.x_m).sum::<f64>() / n as f64;
+    let x = DVector::from_iterator(n, contacts.iter().map(|c| c.2.x_m - mean_x));
     cov += &x * x.transpose() * roll_sigma_rad.powi(2);
     let inv = cov.try_inverse()?;
     let ones = DVector::from_element(n, 1.0);

@@ -21,10 +21,47 @@ pub struct PathEntry {
     pub r_px: f64,
     /// 1-sigma of the centre, pixels.
     pub sigma_px: f64,
-    /// Centre x, metres (world, x right; before the level correction).
+    /// Centre x, metres (the reported world frame of [`MeasureDoc::origin`], x right).
     pub x_m: f64,
-    /// Centre y, metres (world, y up; before the level correction).
+    /// Centre y, metres (the reported world frame, y up: the height above the floor when the
+    /// floor was found).
     pub y_m: f64,
+}
+
+/// Where the origin of the reported world frame lies. Every position of the document (the path
+/// entries' `x_m` and `y_m`, the floor's `y_m`, the launch's `x_m` and `y_m`, the bounces' `x_m`)
+/// is in this one frame: metres, x right, y up, levelled by the camera roll when it was
+/// corrected, and in the estimated scale when the scale was estimated.
+#[derive(Debug, Clone, PartialEq, Eq, Serialize)]
+pub struct WorldOrigin {
+    /// `launch`: x = 0 at the ball's centre when it leaves the incline (the launch point);
+    /// `first_bounce`: at its centre at the first bounce contact (no incline); `first_image`:
+    /// at its first image on the path (neither); `plane`: the plane file's own origin and axes.
+    pub x: String,
+    /// `floor`: y = 0 at the floor line found from the bounce contacts (or given);
+    /// `lowest_image`: no floor was found, y = 0 at the underside of the ball at its lowest
+    /// image (the floor only if the ball rested on it there); `plane`: the plane file's own.
+    pub y: String,
+}
+
+impl WorldOrigin {
+    /// The origin in words.
+    pub fn words(&self) -> String {
+        let x = match self.x.as_str() {
+            "launch" => "x = 0 at the launch point (ball centre leaving the incline)",
+            "first_bounce" => "x = 0 at the ball's centre at the first bounce",
+            "first_image" => "x = 0 at the first image on the path",
+            _ => "x and y as in the plane file",
+        };
+        let y = match self.y.as_str() {
+            "floor" => ", y = 0 at the floor",
+            "lowest_image" => {
+                ", y = 0 at the underside of the ball's lowest image (no floor found: not the floor)"
+            }
+            _ => "",
+        };
+        format!("{x}{y}")
+    }
 }
 
 /// `beadline measure --format json`.
@@ -38,7 +75,9 @@ pub struct MeasureDoc {
     pub height_px: usize,
     /// Ball images found.
     pub spots_found: usize,
-    /// The timed path.
+    /// The origin of the world frame of every position in the document.
+    pub origin: WorldOrigin,
+    /// The timed path (times in the measured flash interval).
     pub path: Vec<PathEntry>,
     /// Flash indexes with no image.
     pub missing: Vec<usize>,
@@ -47,6 +86,12 @@ pub struct MeasureDoc {
     /// The physics (flattened: `schema_version`, `phases`, `bounces`, `launch`, ...).
     #[serde(flatten)]
     pub measurement: Measurement,
+}
+
+/// `v` with 4 decimals, a rounding to zero written without its sign.
+fn fixed4(v: f64) -> String {
+    let s = format!("{v:.4}");
+    if s == "-0.0000" { "0.0000".into() } else { s }
 }
 
 fn quantity(q: &Quantity, unit: &str) -> String {
@@ -108,6 +153,7 @@ impl MeasureDoc {
             self.missing.len(),
             self.strays.len()
         );
+        s += &format!("  world frame    {}\n", self.origin.words());
         s += &format!("  scale          {}\n", quantity(&m.scale_px_per_m, "px/m"));
         s += &format!("  flash interval {}\n", quantity(&m.flash_interval_s, "s"));
         s += &format!("  gravity        {}\n", quantity(&m.gravity_mps2, "m/s^2"));
@@ -139,19 +185,30 @@ impl MeasureDoc {
         }
         if let Some(l) = &m.launch {
             s += &format!(
-                "  launch         {:.4} +- {:.4} m/s at {:.2} +- {:.2} deg, t = {:.4} s\n",
-                l.speed_mps, l.speed_sigma_mps, l.angle_deg, l.angle_sigma_deg, l.t_s
+                "  launch         {:.4} +- {:.4} m/s at {:.2} +- {:.2} deg, t = {:.4} s, \
+                 at x = {} m, y = {} m\n",
+                l.speed_mps,
+                l.speed_sigma_mps,
+                l.angle_deg,
+                l.angle_sigma_deg,
+                l.t_s,
+                fixed4(l.x_m),
+                fixed4(l.y_m)
             );
         }
         s += &format!(
-            "  floor          y = {:.4} +- {:.4} m ({})\n",
-            m.floor.y_m, m.floor.sigma_m, m.floor.source
+            "  floor          y = {} +- {:.4} m ({})\n",
+            fixed4(m.floor.y_m),
+            m.floor.sigma_m,
+            m.floor.source
         );
         for (i, b) in m.bounces.iter().enumerate() {
             s += &format!(
-                "  bounce {}       t = {:.4} s, e = {:.4} +- {:.4}, impact {:.3} m/s, rebound {:.3} m/s",
+                "  bounce {}       t = {:.4} s, x = {} m, e = {:.4} +- {:.4}, impact {:.3} m/s, \
+                 rebound {:.3} m/s",
                 i + 1,
                 b.t_s,
+                fixed4(b.x_m),
                 b.restitution,
                 b.restitution_sigma,
                 b.impact_speed_mps,

@@ -7,9 +7,14 @@
 //!
 //! Method: the motion is simulated from physics ([`crate::synth::sim`]); every power level and
 //! every flash rate on a 0.25 Hz grid up to the level's limit is tried; the first flash waits until
-//! consecutive images are at least 0.8 radius apart (closer piles cannot be separated, see the
-//! spot finder); among the settings that meet every wish the one with the most images on its
-//! poorest arc wins (ties: the lower rate, which needs fewer flashes).
+//! consecutive images are at least one radius apart. A setting must first give a photo that
+//! `measure` resolves ([`Resolvable`]): ball images of at least 10 px radius, consecutive images
+//! at least one radius apart everywhere (closer chains bias or lose centres: the demo at 67 Hz,
+//! images 0.72 radius apart on the incline, measured its launch speed 6 % fast), 4 or more images
+//! on every flight arc covered (each side of every bounce) and on the incline. When no setting
+//! does, the plan is refused with the reason. Among the settings that do, the one that misses the
+//! fewest wishes and then has the most images on its poorest arc wins (ties: the lower rate,
+//! which needs fewer flashes).
 
 use crate::synth::camera::Projection;
 use crate::synth::scene::{PowerLevel, Scene, Wishes};
@@ -42,7 +47,8 @@ pub struct Plan {
     pub flash_duration_s: f64,
     /// Images on each flight arc covered (arc 0 from launch to the first bounce).
     pub images_per_arc: Vec<usize>,
-    /// Closest consecutive images, in ball diameters (below 1 they overlap).
+    /// Closest consecutive images anywhere on the covered path after the first flash, whatever
+    /// the flashes' phase, in ball diameters (below 1 they overlap).
     pub closest_spacing_diameters: f64,
     /// Consecutive images where the ball is fastest, in ball diameters.
     pub fast_spacing_diameters: f64,
@@ -58,11 +64,33 @@ pub struct Plan {
     pub caution: Option<String>,
 }
 
+/// What `measure` resolves, which every recommended shot must give (see the README's spots
+/// section: chains of images under one radius apart lose or bias centres, and an 8 px ball on
+/// an incline is not followed; the physics fits a flight arc from 4 images).
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct Resolvable {
+    /// Smallest ball radius in the photo, pixels.
+    pub min_radius_px: f64,
+    /// Smallest distance between consecutive images, ball diameters.
+    pub min_spacing_diameters: f64,
+    /// Fewest images on every flight arc covered and on the incline.
+    pub min_images_per_arc: usize,
+}
+
+/// The limits of today's `measure`.
+pub const RESOLVABLE: Resolvable = Resolvable {
+    min_radius_px: 10.0,
+    min_spacing_diameters: 0.5,
+    min_images_per_arc: 4,
+};
+
 /// Why a plan cannot be made at all.
-#[derive(Debug, Clone, PartialEq, Eq)]
+#[derive(Debug, Clone, PartialEq)]
 pub enum PlanError {
     /// The scene has no `[flash_unit]`.
     NoFlashUnit,
+    /// No setting of the flash unit gives a photo that `measure` resolves: the reason.
+    Unmeasurable(String),
 }
 
 impl std::fmt::Display for PlanError {
@@ -71,6 +99,11 @@ impl std::fmt::Display for PlanError {
             PlanError::NoFlashUnit => {
                 write!(f, "the scene has no [flash_unit] section to plan with")
             }
+            PlanError::Unmeasurable(why) => write!(
+                f,
+                "refused: no setting of the flash unit gives a photo that measure can resolve: \
+                 {why}"
+            ),
         }
     }
 }
@@ -147,6 +180,10 @@ struct Trial {
     flashes: usize,
     images_per_arc: Vec<usize>,
     closest_d: f64,
+    /// Time of the first of the two closest images, seconds.
+    closest_t_s: f64,
+    /// Images on the incline (None without one).
+    incline_images: Option<usize>,
     fast_d: f64,
     blur_px: f64,
     uncovered_m: f64,
@@ -170,9 +207,10 @@ fn try_setting(
         let (a, b) = (m.at(t), m.at(t + dt));
         (b.x_m - a.x_m).hypot(b.y_m - a.y_m)
     };
-    // First flash: once consecutive images are 0.8 radius apart (or at release).
+    // First flash: once consecutive images are far enough apart to resolve (or at release).
+    let spacing_m = RESOLVABLE.min_spacing_diameters * 2.0 * covered.radius_m;
     let mut t0 = 0.0;
-    while t0 < covered.t_end_s && gap(t0) < 0.8 * covered.radius_m {
+    while t0 < covered.t_end_s && gap(t0) < spacing_m {
         t0 += 1e-3;
     }
     let n_needed = ((covered.t_end_s - t0) * rate).floor() as usize + 1;
@@ -184,7 +222,20 @@ fn try_setting(
         .map(|(a, b)| times.iter().filter(|&&t| t > *a && t < *b).count())
         .collect();
     let d = 2.0 * covered.radius_m;
+    // The closest consecutive images whatever the flashes' phase: the gap over one interval
+    // from every millisecond of the covered path (an apex or a bounce falls between two flashes
+    // at any phase in the photo: a phase that happens to straddle it is no plan).
     let mut closest = f64::INFINITY;
+    let mut closest_t = t0;
+    let mut t = t0;
+    while t + dt <= covered.t_end_s.max(t0 + dt) {
+        let g = gap(t);
+        if g < closest {
+            closest = g;
+            closest_t = t;
+        }
+        t += 1e-3;
+    }
     let (mut v_max, mut fast_gap) = (0.0, f64::INFINITY);
     for w in times.windows(2) {
         let (a, b) = (m.at(w[0]), m.at(w[1]));
@@ -210,10 +261,49 @@ fn try_setting(
         flashes,
         images_per_arc,
         closest_d: closest / d,
+        closest_t_s: closest_t,
+        incline_images: scene
+            .incline
+            .as_ref()
+            .map(|_| times.iter().filter(|&&t| t < m.launch.t_s).count()),
         fast_d: fast_gap / d,
         blur_px: v_max * l.flash_duration_s * scene.camera.px_per_m,
         uncovered_m: uncovered,
     }
+}
+
+/// Why `measure` could not resolve the photo of a trial: images too close (a faster rate makes
+/// it worse), and too few images on an arc or the incline (a slower rate makes it worse). Both
+/// empty: it can.
+fn unresolvable(t: &Trial) -> (Vec<String>, Vec<String>) {
+    let r = RESOLVABLE;
+    let mut close = Vec::new();
+    let mut out = Vec::new();
+    if t.closest_d < r.min_spacing_diameters {
+        close.push(format!(
+            "consecutive images {:.2} diameters apart at t = {:.3} s (measure separates them from \
+             {} diameters; where the ball turns at an apex, give it a sideways speed)",
+            t.closest_d, t.closest_t_s, r.min_spacing_diameters
+        ));
+    }
+    if let Some((k, n)) = t
+        .images_per_arc
+        .iter()
+        .enumerate()
+        .find(|(_, n)| **n < r.min_images_per_arc)
+    {
+        out.push(format!(
+            "{n} images on flight arc {k} (measure fits an arc, each side of a bounce, from {})",
+            r.min_images_per_arc
+        ));
+    }
+    if let Some(n) = t.incline_images.filter(|n| *n < r.min_images_per_arc) {
+        out.push(format!(
+            "{n} images on the incline (the launch needs {} there)",
+            r.min_images_per_arc
+        ));
+    }
+    (close, out)
 }
 
 /// Which wishes a trial misses.
@@ -245,12 +335,33 @@ pub fn plan(scene: &Scene) -> Result<Plan, PlanError> {
         max_blur_px: 0.5,
     });
     let covered = coverage(scene, &wishes);
+    let radius_px = covered.radius_m * scene.camera.px_per_m;
+    if radius_px < RESOLVABLE.min_radius_px {
+        return Err(PlanError::Unmeasurable(format!(
+            "the ball's images are {radius_px:.1} px in radius and measure needs {} px: bring \
+             the camera closer, use a longer lens or more pixels",
+            RESOLVABLE.min_radius_px
+        )));
+    }
     let mut best: Option<(Trial, Vec<&'static str>)> = None;
+    // For the refusal: the fastest rate with too few images, the slowest with images too close.
+    let mut too_few: Option<(f64, Vec<String>)> = None;
+    let mut too_close: Option<(f64, Vec<String>)> = None;
     for (li, l) in unit.levels.iter().enumerate() {
         let steps = (l.max_rate_hz / 0.25).floor() as usize;
         for s in 1..=steps.min(40_000) {
             let rate = s as f64 * 0.25;
             let t = try_setting(&covered, scene, li, l, rate);
+            let (close, few) = unresolvable(&t);
+            if !few.is_empty() && too_few.as_ref().is_none_or(|f| rate > f.0) {
+                too_few = Some((rate, few.clone()));
+            }
+            if !close.is_empty() && too_close.as_ref().is_none_or(|c| rate < c.0) {
+                too_close = Some((rate, close.clone()));
+            }
+            if !(close.is_empty() && few.is_empty()) {
+                continue;
+            }
             let miss = misses(&t, &wishes, &covered, l.max_flashes);
             let poorest = t.images_per_arc.iter().copied().min().unwrap_or(0);
             let better = match &best {
@@ -265,7 +376,15 @@ pub fn plan(scene: &Scene) -> Result<Plan, PlanError> {
             }
         }
     }
-    let (t, miss) = best.expect("every level has a rate of at least 0.25 Hz");
+    let Some(best) = best else {
+        let why: Vec<String> = [too_few, too_close]
+            .into_iter()
+            .flatten()
+            .map(|(rate, why)| format!("at {rate} Hz {}", why.join(" and ")))
+            .collect();
+        return Err(PlanError::Unmeasurable(why.join("; ")));
+    };
+    let (t, miss) = best;
     let l = &unit.levels[t.level];
     let mut warnings = covered.warnings.clone();
     for m in &miss {

@@ -6,7 +6,8 @@
 #![allow(dead_code)]
 
 use beadline::image::load::{LoadOptions, Photo, load};
-use beadline::synth::{self, Truth, scene::Scene};
+use beadline::report::measure::MeasureDoc;
+use beadline::synth::{self, FlashTruth, Truth, scene::Scene};
 use std::io::{BufRead, BufReader, Read};
 use std::path::{Path, PathBuf};
 use std::process::{Child, ChildStdout, Command, ExitStatus, Output, Stdio};
@@ -122,9 +123,10 @@ impl DropScene {
         }
     }
 
-    /// A 40 mm ball dropped from rest from 1 m (bottom) for shot planning: a flash unit with one
-    /// power level of `max_flashes` flashes at up to `max_rate_hz`, and `wishes` (lines of the
-    /// `[wishes]` table).
+    /// A 40 mm ball let go 1 m (bottom) above the floor, drifting 0.5 m/s sideways (a straight
+    /// drop piles its images up at every apex, which measure cannot separate), for shot
+    /// planning: a flash unit with one power level of `max_flashes` flashes at up to
+    /// `max_rate_hz`, and `wishes` (lines of the `[wishes]` table); a 1200 x 900 view.
     pub fn planned(max_flashes: usize, max_rate_hz: f64, wishes: &str) -> DropScene {
         DropScene {
             seed: None,
@@ -132,13 +134,13 @@ impl DropScene {
             build: None,
             x_m: 0.2,
             y_m: 1.02,
-            vx_mps: None,
+            vx_mps: Some(0.5),
             restitution: 0.8,
             rate_hz: 20.0,
             first_flash_s: None,
             exposure_s: 1.0,
             px_per_m: 700.0,
-            width_px: 600,
+            width_px: 1200,
             height_px: 900,
             origin_x_px: 160.0,
             origin_y_px: 880.0,
@@ -219,6 +221,66 @@ pub fn render_and_load(scene: &Scene, path: &Path) -> (Photo, Truth) {
         load(path, &LoadOptions::default()).expect("load the rendered photo"),
         truth,
     )
+}
+
+// ---------------------------------------------------------------------------------------------
+// Measured against the truth
+
+/// The truth of the flash whose image is centred nearest the pixel (`x_px`, `y_px`).
+pub fn flash_at(truth: &Truth, x_px: f64, y_px: f64) -> &FlashTruth {
+    truth
+        .flashes
+        .iter()
+        .min_by(|a, b| {
+            let da = (a.x_px - x_px).hypot(a.y_px - y_px);
+            let db = (b.x_px - x_px).hypot(b.y_px - y_px);
+            da.total_cmp(&db)
+        })
+        .expect("the truth has flashes")
+}
+
+/// Every path entry of `doc` against its flash's truth position less `origin_m` (a point of
+/// the truth's world, which has the floor at y = 0): within 3 sigma + 1 mm, sigma the entry's own
+/// (its pixel sigma at the truth's scale) and `origin_sigma_m` (the measured origin's) in
+/// quadrature. Every entry must be an image of a flash (within half a radius). Returns the
+/// largest offset, metres.
+pub fn assert_path_in_truth_frame(
+    doc: &MeasureDoc,
+    truth: &Truth,
+    origin_m: [f64; 2],
+    origin_sigma_m: f64,
+) -> f64 {
+    assert!(!doc.path.is_empty());
+    let mut worst: f64 = 0.0;
+    for p in &doc.path {
+        let f = flash_at(truth, p.x_px, p.y_px);
+        assert!(
+            (f.x_px - p.x_px).hypot(f.y_px - p.y_px) < 0.5 * f.r_px,
+            "path entry n = {} at ({:.1}, {:.1}) px is no flash's image",
+            p.n,
+            p.x_px,
+            p.y_px
+        );
+        let sigma = (p.sigma_px / truth.scale_px_per_m).hypot(origin_sigma_m);
+        let tol = 3.0 * sigma + 1e-3;
+        let (dx, dy) = (p.x_m - (f.x_m - origin_m[0]), p.y_m - (f.y_m - origin_m[1]));
+        assert!(
+            dx.abs() <= tol && dy.abs() <= tol,
+            "path entry n = {} (flash {}): ({:.5}, {:.5}) m, truth ({:.5}, {:.5}) m less the \
+             origin ({:.5}, {:.5}), tolerance {:.5} m",
+            p.n,
+            f.n,
+            p.x_m,
+            p.y_m,
+            f.x_m,
+            f.y_m,
+            origin_m[0],
+            origin_m[1],
+            tol
+        );
+        worst = worst.max(dx.abs()).max(dy.abs());
+    }
+    worst
 }
 
 // ---------------------------------------------------------------------------------------------
