@@ -69,8 +69,8 @@ impl Finder<'_> {
         moves
     }
 
-    /// Steps from the last point where the acceleration changes: the ball leaves an incline
-    /// for free flight, seen backward in time. Position and velocity are continuous there, so
+    /// Steps from the last point of a flight arc where the acceleration changes: the ball
+    /// leaves an incline for free flight, seen backward in time. Position and velocity are continuous there, so
     /// the next image lies where some acceleration (a mean of the two) would put it; the one
     /// the step implies must be no larger than the measured one (gravity is the largest
     /// acceleration on a path). Its direction is left free: the last point may already lie
@@ -82,7 +82,9 @@ impl Finder<'_> {
         else {
             return;
         };
-        if arc_len < 3 || norm(a) <= 0.0 || norm(v) <= 0.0 {
+        // Only from a flight arc (its acceleration, gravity, points down the picture): the
+        // largest acceleration on a path, which bounds the change.
+        if arc_len < 3 || norm(v) <= 0.0 || gravity_direction(Some(a))[1] < MIN_DOWN_COS {
             return;
         }
         let origin = self.pos(last.item);
@@ -90,6 +92,11 @@ impl Finder<'_> {
             let kf = k as f64;
             // The implied acceleration may exceed the measured one by the centres' noise.
             let slack = 2.0 * 3.0 * self.sigma_px * 20f64.sqrt() / (kf * kf);
+            if norm(a) < 2.0 * slack {
+                // The acceleration is not known well enough to bound the change (the slow
+                // start of an incline, where images overlap): no step of this kind.
+                break;
+            }
             // Constant velocity; the acceleration moves the image by accel k^2 / 2.
             let coast = add(origin, scale(v, kf));
             let reach_px = (norm(a) + slack) * kf * kf / 2.0;
