@@ -20,28 +20,6 @@ use nalgebra::DMatrix;
 use serde::Serialize;
 use std::ops::Range;
 
-/// Quick incline model for the phase split: chi-square of x and y parabolas in t, and the
-/// magnitude of the acceleration.
-pub(crate) struct InclineModel {
-    pub chi_square: f64,
-    pub accel_mps2: f64,
-}
-
-/// The incline model on `points`, None when it cannot be fitted.
-pub(crate) fn incline_model(points: &[TimedPoint]) -> Option<InclineModel> {
-    let t: Vec<f64> = points.iter().map(|p| p.t_s).collect();
-    let s: Vec<f64> = points.iter().map(|p| p.sigma_m).collect();
-    let x: Vec<f64> = points.iter().map(|p| p.x_m).collect();
-    let y: Vec<f64> = points.iter().map(|p| p.y_m).collect();
-    let o = FitOptions::default();
-    let fx = polynomial_fit(&t, &x, Some(&s), 2, &o).ok()?;
-    let fy = polynomial_fit(&t, &y, Some(&s), 2, &o).ok()?;
-    Some(InclineModel {
-        chi_square: fx.chi_square + fy.chi_square,
-        accel_mps2: 2.0 * fx.coefficients[2].hypot(fy.coefficients[2]),
-    })
-}
-
 /// A fitted incline.
 pub(crate) struct InclineFit {
     pub range: Range<usize>,

@@ -15,9 +15,8 @@
 //! than 25 against one flight arc for the whole segment and its acceleration is below 0.8 g.
 
 use super::TimedPoint;
-use super::fit::CovarianceScaling;
+use super::fit::{CovarianceScaling, FitOptions, polynomial_fit};
 use super::flight::{ArcFit, fit_arc, flight_chi_square};
-use super::incline::incline_model;
 use std::ops::Range;
 
 /// Chi-square improvement an incline must bring over pure flight to be accepted.
@@ -114,14 +113,32 @@ pub(crate) fn segment(points: &[TimedPoint], gravity_mps2: f64) -> Segments {
             }
         }
     }
-    // Core of the first segment, before any ambiguous point.
-    let first_end = runs.first().map_or(n, |r| r.0);
-    let (incline, mut start) = find_incline(points, 0..first_end, gravity_mps2);
+    let (incline, mut start) = match runs.first() {
+        None => {
+            let (incline, start, _) = find_incline(points, 0..n, gravity_mps2);
+            (incline, start)
+        }
+        // The incline and the first bounce together: at a low flash rate the first arc has
+        // only a few points, and which side of the bounce the ambiguous ones lie on decides
+        // whether the incline's end can be found.
+        Some(&(a, b)) => {
+            let next_core_end = runs.get(1).map_or(n, |r| r.0);
+            let mut best: Option<(f64, Option<Range<usize>>, usize)> = None;
+            for split in a..=b + 1 {
+                let (incline, start, cost) = find_incline(points, 0..split, gravity_mps2);
+                let cost = cost + flight_chi_square(points, split..next_core_end);
+                if best.as_ref().is_none_or(|b| cost < b.0) {
+                    best = Some((cost, incline, start));
+                }
+            }
+            best.map_or((None, 0), |(_, incline, start)| (incline, start))
+        }
+    };
     let mut arcs = Vec::new();
     for (k, &(a, b)) in runs.iter().enumerate() {
         let next_core_end = runs.get(k + 1).map_or(n, |r| r.0);
-        let mut best = (f64::INFINITY, a);
-        for split in a..=b + 1 {
+        let mut best = (f64::INFINITY, a.max(start));
+        for split in a.max(start)..=b + 1 {
             let cost = flight_chi_square(points, start..split)
                 + flight_chi_square(points, split..next_core_end);
             if cost < best.0 {
@@ -136,26 +153,76 @@ pub(crate) fn segment(points: &[TimedPoint], gravity_mps2: f64) -> Segments {
     Segments { incline, arcs }
 }
 
-/// The incline at the start of `range` and where the first arc begins.
+/// The incline at the start of `range`, where the first arc begins, and the chi-square of the
+/// split (incline and the arc after it, or one flight arc over the whole range).
+///
+/// Every end `m` of the incline is tried: the points before it on a straight line with constant
+/// acceleration along it ([`line_model`]), the points after it on a flight arc; the end with the
+/// smallest total chi-square wins. The line ends where it stops fitting: a flight point on it
+/// is off the line (the arc curves), an incline point on the flight arc is off the parabola
+/// (its acceleration is not gravity). The flight part may have 2 points (at a low flash rate
+/// the first arc before a bounce is short).
 fn find_incline(
     points: &[TimedPoint],
     range: Range<usize>,
     gravity_mps2: f64,
-) -> (Option<Range<usize>>, usize) {
+) -> (Option<Range<usize>>, usize, f64) {
     let (s, e) = (range.start, range.end);
     let all_flight = flight_chi_square(points, s..e);
     let mut best: Option<(f64, usize)> = None;
-    for m in s + 3..=e.saturating_sub(3) {
-        let Some(inc) = incline_model(&points[s..m]) else {
+    for m in s + 3..=e.saturating_sub(2) {
+        let Some(line) = line_model(&points[s..m]) else {
             continue;
         };
-        let cost = inc.chi_square + flight_chi_square(points, m..e);
-        if best.is_none_or(|b| cost < b.0) && inc.accel_mps2 < 0.8 * gravity_mps2 {
+        let cost = line.chi_square + flight_chi_square(points, m..e);
+        if best.is_none_or(|b| cost < b.0) && line.accel_mps2 < 0.8 * gravity_mps2 {
             best = Some((cost, m));
         }
     }
     match best {
-        Some((cost, m)) if cost + INCLINE_DELTA_CHI2 < all_flight => (Some(s..m), m),
-        _ => (None, s),
+        Some((cost, m)) if cost + INCLINE_DELTA_CHI2 < all_flight => (Some(s..m), m, cost),
+        _ => (None, s, all_flight),
     }
+}
+
+/// A straight line with constant acceleration along it, fitted to points.
+struct LineModel {
+    /// Chi-square of the distances from the line and of the positions along it (parabola in t).
+    chi_square: f64,
+    /// Magnitude of the acceleration along the line.
+    accel_mps2: f64,
+}
+
+/// The points on a straight line (its direction the principal axis of the points), the position
+/// along it a parabola in time; None under 3 points or when the fit fails.
+fn line_model(points: &[TimedPoint]) -> Option<LineModel> {
+    let n = points.len() as f64;
+    if points.len() < 3 {
+        return None;
+    }
+    let cx = points.iter().map(|p| p.x_m).sum::<f64>() / n;
+    let cy = points.iter().map(|p| p.y_m).sum::<f64>() / n;
+    let (mut sxx, mut syy, mut sxy) = (0.0, 0.0, 0.0);
+    for p in points {
+        sxx += (p.x_m - cx).powi(2);
+        syy += (p.y_m - cy).powi(2);
+        sxy += (p.x_m - cx) * (p.y_m - cy);
+    }
+    let phi = 0.5 * (2.0 * sxy).atan2(sxx - syy);
+    let u = [phi.cos(), phi.sin()];
+    let t: Vec<f64> = points.iter().map(|p| p.t_s).collect();
+    let sigma: Vec<f64> = points.iter().map(|p| p.sigma_m).collect();
+    let along: Vec<f64> = points
+        .iter()
+        .map(|p| (p.x_m - cx) * u[0] + (p.y_m - cy) * u[1])
+        .collect();
+    let across: f64 = points
+        .iter()
+        .map(|p| ((-(p.x_m - cx) * u[1] + (p.y_m - cy) * u[0]) / p.sigma_m).powi(2))
+        .sum();
+    let fit = polynomial_fit(&t, &along, Some(&sigma), 2, &FitOptions::default()).ok()?;
+    Some(LineModel {
+        chi_square: across + fit.chi_square,
+        accel_mps2: 2.0 * fit.coefficients[2].abs(),
+    })
 }

@@ -11,16 +11,24 @@ use crate::core::vec2::{add, dot, norm, scale, sub};
 
 /// Candidates compared per step.
 pub(super) const BRANCH: usize = 3;
+/// Candidates compared per step across a bounce or a change of acceleration.
+const BOUNCE_BRANCH: usize = 12;
 /// Spots looked at per bounce window.
 const WINDOW_QUERY: usize = 64;
 /// Cost of one missed flash when candidates are compared (in squared gates).
 const MISS_COST: f64 = 0.3;
+/// Acceleration of a ball rolling down an incline, as a fraction of gravity, assumed for the
+/// first step after the end of an incline is found (mid-range: 0.1 at 10 degrees, 0.6 at 60).
+const ROLLING_FRACTION: f64 = 0.3;
 /// Cosine of the largest angle between the measured acceleration and image down for a bounce.
 const MIN_DOWN_COS: f64 = 0.85;
 
 impl Finder<'_> {
-    /// Candidate next steps, cheapest first: constant-acceleration steps, or bounce steps
-    /// when none fits.
+    /// Candidate next steps, cheapest first: constant-acceleration steps, or, when none fits,
+    /// steps across a bounce and steps where the acceleration changes (the end of an incline).
+    /// Steps across a bounce are compared by walking on, so more of them are kept: on a
+    /// straight-down drop every image above the bounce lies in the window, and only the images
+    /// after it tell which is the rebound.
     pub(super) fn moves(&self, walk: &Walk) -> Vec<Move> {
         let mut moves = Vec::new();
         let arc_len = walk.nodes.len() - walk.arc_start;
@@ -38,6 +46,7 @@ impl Finder<'_> {
                     item: nb.index,
                     k,
                     bounce: false,
+                    kink: None,
                     cost: r * r + miss_cost,
                 });
                 if moves.iter().filter(|m| m.k == k).count() == BRANCH {
@@ -45,16 +54,80 @@ impl Finder<'_> {
                 }
             }
         }
+        let mut keep = BRANCH;
         if moves.is_empty() {
             if arc_len == 1 {
                 self.after_bounce_moves(walk, &mut moves);
             } else {
                 self.bounce_moves(walk, &mut moves);
+                self.kink_moves(walk, &mut moves);
             }
+            keep = BOUNCE_BRANCH;
         }
         moves.sort_by(|a, b| a.cost.total_cmp(&b.cost));
-        moves.truncate(BRANCH);
+        moves.truncate(keep);
         moves
+    }
+
+    /// Steps from the last point of a flight arc where the acceleration changes: the ball
+    /// leaves an incline for free flight, seen backward in time. Position and velocity are continuous there, so
+    /// the next image lies where some acceleration (a mean of the two) would put it; the one
+    /// the step implies must be no larger than the measured one (gravity is the largest
+    /// acceleration on a path). Its direction is left free: the last point may already lie
+    /// past the change (its image mixes the two accelerations into the velocity).
+    fn kink_moves(&self, walk: &Walk, moves: &mut Vec<Move>) {
+        let arc_len = walk.nodes.len() - walk.arc_start;
+        let (Some(last), Some(v), Some(a)) =
+            (walk.nodes.last(), self.velocity(walk), self.accel(walk))
+        else {
+            return;
+        };
+        // Only from a flight arc (its acceleration, gravity, points down the picture): the
+        // largest acceleration on a path, which bounds the change.
+        if arc_len < 3 || norm(v) <= 0.0 || gravity_direction(Some(a))[1] < MIN_DOWN_COS {
+            return;
+        }
+        let origin = self.pos(last.item);
+        for k in 1..=1 + self.limits.max_misses as i64 {
+            let kf = k as f64;
+            // The implied acceleration may exceed the measured one by the centres' noise.
+            let slack = 2.0 * 3.0 * self.sigma_px * 20f64.sqrt() / (kf * kf);
+            if norm(a) < 2.0 * slack {
+                // The acceleration is not known well enough to bound the change (the slow
+                // start of an incline, where images overlap): no step of this kind.
+                break;
+            }
+            // Constant velocity; the acceleration moves the image by accel k^2 / 2.
+            let coast = add(origin, scale(v, kf));
+            let reach_px = (norm(a) + slack) * kf * kf / 2.0;
+            for nb in self.tree.within(coast[0], coast[1], reach_px, WINDOW_QUERY) {
+                if !self.usable(nb.index) {
+                    continue;
+                }
+                let implied = scale(sub(self.pos(nb.index), coast), 2.0 / (kf * kf));
+                if norm(implied) > norm(a) + slack {
+                    continue;
+                }
+                // The implied acceleration carries the last point's own error (its velocity
+                // mixes the two accelerations). A ball rolling down a line accelerates along
+                // it, by g sin(angle) / (1 + k): 0.1 to 0.6 g for inclines of 10 to 60 degrees;
+                // ROLLING_FRACTION of the measured acceleration (gravity) along the step, until
+                // the new arc has three points.
+                let step = sub(origin, self.pos(nb.index));
+                let length = norm(step);
+                if length <= 0.0 {
+                    continue;
+                }
+                let carried = scale(step, ROLLING_FRACTION * norm(a) / length);
+                moves.push(Move {
+                    item: nb.index,
+                    k,
+                    bounce: false,
+                    kink: Some(carried),
+                    cost: 1.0 + MISS_COST * (k - 1) as f64,
+                });
+            }
+        }
     }
 
     /// Steps across a bounce from the last point (the reflected prediction).
@@ -90,6 +163,7 @@ impl Finder<'_> {
                     item,
                     k,
                     bounce: true,
+                    kink: None,
                     cost: 1.0 + off * off + MISS_COST * (k - 1) as f64,
                 });
             }
@@ -127,6 +201,7 @@ impl Finder<'_> {
                     item,
                     k,
                     bounce: false,
+                    kink: None,
                     cost: 1.0 + miss * miss + MISS_COST * (k - 1) as f64,
                 });
             }
@@ -200,6 +275,18 @@ impl Finder<'_> {
             along_after.abs() <= self.limits.gate_radii * self.r_ref_px
         };
         if !ratio_ok(dot(before, down), -dot(after, down)) || !sideways_ok {
+            return f64::INFINITY;
+        }
+        // The contact is the lowest point of the ball's centre: the images around it lie no
+        // lower (along gravity) than where the arcs meet. On a straight-down drop this is what
+        // tells the rebound from the same rise a flash later, which meets the fall higher up.
+        let contact = arc(p0, v0, t_meet - t0);
+        let tolerance_px = self.limits.gate_radii * self.r_ref_px + 3.0 * self.sigma_px;
+        let lowest = [p0, p1, self.pos(item)]
+            .iter()
+            .map(|p| dot(sub(*p, contact), down))
+            .fold(f64::NEG_INFINITY, f64::max);
+        if lowest > tolerance_px {
             return f64::INFINITY;
         }
         norm(add(gap_at_t0, scale(slope, s)))

@@ -8,7 +8,7 @@
 //! interpolation weights.
 
 use super::walk::{Finder, Node, Walk};
-use crate::core::vec2::{add, scale, sub};
+use crate::core::vec2::{add, norm, scale, sub};
 
 impl Finder<'_> {
     /// Acceleration of the current arc, pixels per flash^2 (second divided difference, leaving
@@ -58,25 +58,48 @@ impl Finder<'_> {
     }
 
     /// Constant-acceleration prediction `k` flashes past the last point and its gate radius,
-    /// pixels.
+    /// pixels. The gate is at most half the distance to the predictions one flash earlier and
+    /// one flash later (through three points), so that a candidate inside it is `k` flashes
+    /// ahead and no other number: where the images are close (a slow start), the physics, not
+    /// the gate, counts the flashes missing across a gap.
     pub(super) fn predict(&self, walk: &Walk, k: i64) -> Option<([f64; 2], f64)> {
+        let (position, weights_sq, spread) = self.position_ahead(walk, k as f64)?;
+        let base_px = self.limits.gate_radii * self.r_ref_px * k as f64 * spread;
+        let earlier = match k {
+            1 => walk.nodes.last().map(|node| self.pos(node.item))?,
+            _ => self.position_ahead(walk, (k - 1) as f64)?.0,
+        };
+        let later = self.position_ahead(walk, (k + 1) as f64)?.0;
+        // Through two points and a carried acceleration the prediction is rough: no tightening.
+        let half_step_px = if spread > 1.0 {
+            f64::INFINITY
+        } else {
+            0.5 * norm(sub(position, earlier)).min(norm(sub(later, position)))
+        };
+        let gate_px = base_px.min(half_step_px) + 3.0 * self.sigma_px * (1.0 + weights_sq).sqrt();
+        (position[0].is_finite() && position[1].is_finite() && gate_px.is_finite())
+            .then_some((position, gate_px))
+    }
+
+    /// Position `k` flashes past the last point of the walk's arc, the sum of the squared
+    /// interpolation weights and the gate's spread (1 through three points, 2 through two and
+    /// the acceleration carried over a bounce).
+    fn position_ahead(&self, walk: &Walk, kf: f64) -> Option<([f64; 2], f64, f64)> {
         let arc = &walk.nodes[walk.arc_start..];
         let len = arc.len();
-        let base_px = self.limits.gate_radii * self.r_ref_px * k as f64;
-        let (position, weights_sq, spread) = if len >= 3 {
+        if len >= 3 {
             let (t, p) = self.samples(&arc[len - 3..]);
-            let at = t[2] + k as f64;
+            let at = t[2] + kf;
             let w = [
                 (at - t[1]) * (at - t[2]) / ((t[0] - t[1]) * (t[0] - t[2])),
                 (at - t[0]) * (at - t[2]) / ((t[1] - t[0]) * (t[1] - t[2])),
                 (at - t[0]) * (at - t[1]) / ((t[2] - t[0]) * (t[2] - t[1])),
             ];
             let position = add(add(scale(p[0], w[0]), scale(p[1], w[1])), scale(p[2], w[2]));
-            (position, w.iter().map(|v| v * v).sum::<f64>(), 1.0)
+            Some((position, w.iter().map(|v| v * v).sum::<f64>(), 1.0))
         } else if len == 2 {
             let (t, p) = self.samples(arc);
             let d = t[1] - t[0];
-            let kf = k as f64;
             let a = walk.carried_accel.unwrap_or([0.0, 0.0]);
             let w1 = 1.0 + kf / d;
             let w0 = kf / d;
@@ -84,12 +107,9 @@ impl Finder<'_> {
                 sub(scale(p[1], w1), scale(p[0], w0)),
                 scale(a, kf * d / 2.0 + kf * kf / 2.0),
             );
-            (position, w1 * w1 + w0 * w0, 2.0)
+            Some((position, w1 * w1 + w0 * w0, 2.0))
         } else {
-            return None;
-        };
-        let gate_px = base_px * spread + 3.0 * self.sigma_px * (1.0 + weights_sq).sqrt();
-        (position[0].is_finite() && position[1].is_finite() && gate_px.is_finite())
-            .then_some((position, gate_px))
+            None
+        }
     }
 }

@@ -56,6 +56,9 @@ pub(super) struct Move {
     /// Flashes ahead (1 = the next flash).
     pub(super) k: i64,
     pub(super) bounce: bool,
+    /// A change of acceleration (the end of an incline) between the last point and this one:
+    /// the acceleration the step implies, pixels per flash^2.
+    pub(super) kink: Option<[f64; 2]>,
     /// Squared residual in gates plus the cost of missed flashes.
     pub(super) cost: f64,
 }
@@ -212,6 +215,11 @@ impl Finder<'_> {
         });
         if step.bounce {
             walk.arc_start = walk.nodes.len() - 1;
+        } else if let Some(accel) = step.kink {
+            // Position and velocity carry over the change: the new arc starts at the last point
+            // before it, with the acceleration the step implies until it has three points.
+            walk.arc_start = walk.nodes.len() - 2;
+            walk.carried_accel = Some(accel);
         }
         self.taken[step.item] = true;
     }
@@ -276,6 +284,7 @@ fn clear_move(moves: &[Move]) -> Option<Move> {
     let clear = CLEAR_FRACTION * CLEAR_FRACTION;
     let rival = 4.0 * clear;
     let ok = !first.bounce
+        && first.kink.is_none()
         && first.k == 1
         && first.cost <= clear
         && !moves[1..].iter().any(|m| m.k == 1 && m.cost <= rival);

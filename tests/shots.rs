@@ -1,0 +1,262 @@
+//! Shots a new user takes beside the demo (issue 16, point 4): a small ball on the incline, low
+//! and high flash rates, throws, and flashes without an image. Each photo is rendered with exact
+//! ground truth (src/synth), measured as `beadline measure PHOTO --rate R --ball-diameter D`
+//! does, and checked against that truth: every value within max(3 sigma, 1 %), the path's flash
+//! indices and missing flashes against the truth's flashes.
+
+mod common;
+
+use beadline::detect::find_spots;
+use beadline::image::load::{LoadOptions, load};
+use beadline::physics::{Measurement, PhaseKind};
+use beadline::pipeline::{MeasureSettings, Measured, ScaleSource, measure_photo, measure_spots};
+use beadline::synth::sim::Phase;
+use beadline::synth::{FlashTruth, Truth, scene::Scene};
+use beadline::track::{BallPath, PathOptions, order_path};
+use common::{DropScene, shoot};
+use std::path::Path;
+
+/// `measured +- sigma` agrees with `truth` within max(3 sigma, 1 %).
+fn agrees(what: &str, measured: f64, sigma: f64, truth: f64) {
+    let tolerance = (3.0 * sigma).max(0.01 * truth.abs());
+    assert!(
+        (measured - truth).abs() <= tolerance,
+        "{what}: {measured} +- {sigma} against the truth {truth}"
+    );
+}
+
+/// The settings of `beadline measure PHOTO --rate R --ball-diameter D`.
+fn settings(rate_hz: f64, diameter_m: f64) -> MeasureSettings {
+    MeasureSettings {
+        rate_hz: Some(rate_hz),
+        scale: Some(ScaleSource::BallDiameter),
+        ball_diameter_m: Some(diameter_m),
+        ..Default::default()
+    }
+}
+
+/// The truth flash nearest to a path point, if its centre is within half a radius.
+fn truth_n(truth: &Truth, x_px: f64, y_px: f64) -> Option<usize> {
+    let distance = |f: &&FlashTruth| (f.x_px - x_px).hypot(f.y_px - y_px);
+    truth
+        .flashes
+        .iter()
+        .filter(|f| f.in_frame)
+        .min_by(|a, b| distance(a).total_cmp(&distance(b)))
+        .filter(|f| distance(f) < 0.5 * f.r_px)
+        .map(|f| f.n)
+}
+
+/// Check the path against the truth: every point is a truth flash, numbered from the first
+/// (n = truth n - first truth n), and the missing flashes are the truth flashes in between that
+/// are not on it. Returns the truth index of the path's first point.
+fn check_path(path: &BallPath, truth: &Truth) -> usize {
+    let found: Vec<usize> = path
+        .points
+        .iter()
+        .map(|p| truth_n(truth, p.x_px, p.y_px).expect("every path point is a ball image"))
+        .collect();
+    let first = found[0];
+    let numbered: Vec<usize> = path.points.iter().map(|p| p.n + first).collect();
+    assert_eq!(numbered, found, "path flash indices against the truth");
+    let last = *found.last().unwrap();
+    let missing: Vec<usize> = (first..=last)
+        .filter(|n| !found.contains(n))
+        .map(|n| n - first)
+        .collect();
+    assert_eq!(path.missing, missing, "missing flashes against the truth");
+    first
+}
+
+/// Render `scene`, measure it with `settings` and check the path; the measurement, the truth
+/// and the truth index of the path's first point.
+fn measure_scene(scene: &Scene, settings: &MeasureSettings) -> (Measured, Truth, usize) {
+    let dir = common::tempdir();
+    let (photo, truth) = shoot(scene, dir.path(), "shot.png");
+    let m = measure_photo(&photo, settings).expect("a measurement");
+    let first = check_path(&m.paths.paths[0], &truth);
+    (m, truth, first)
+}
+
+/// Gravity and every measured bounce's restitution (matched to the truth bounce nearest in
+/// time) against the truth.
+fn check_physics(m: &Measurement, truth: &Truth, first: usize) {
+    agrees(
+        "gravity",
+        m.gravity_mps2.value,
+        m.gravity_mps2.sigma,
+        truth.gravity_mps2,
+    );
+    let t0_s = truth.flashes[first].t_s;
+    for b in &m.bounces {
+        let t = truth
+            .bounces
+            .iter()
+            .min_by(|x, y| {
+                (x.t_s - t0_s - b.t_s)
+                    .abs()
+                    .total_cmp(&(y.t_s - t0_s - b.t_s).abs())
+            })
+            .unwrap();
+        agrees(
+            "restitution",
+            b.restitution,
+            b.restitution_sigma,
+            t.restitution,
+        );
+    }
+}
+
+/// The incline's acceleration and the launch against the truth.
+fn check_incline(m: &Measurement, truth: &Truth) {
+    let accel = truth.incline_accel_mps2.expect("a scene with an incline");
+    let inc = m.incline.as_ref().expect("the incline measured");
+    agrees(
+        "incline acceleration",
+        inc.accel_mps2,
+        inc.accel_sigma_mps2,
+        accel,
+    );
+    let launch = m.launch.as_ref().expect("the launch measured");
+    agrees(
+        "launch speed",
+        launch.speed_mps,
+        launch.speed_sigma_mps,
+        truth.launch.speed_mps,
+    );
+    agrees(
+        "launch angle",
+        launch.angle_deg,
+        launch.angle_sigma_deg,
+        truth.launch.angle_deg,
+    );
+}
+
+/// The truth flashes in frame on the incline.
+fn incline_flashes(truth: &Truth) -> usize {
+    truth
+        .flashes
+        .iter()
+        .filter(|f| f.in_frame && f.phase == Phase::Incline)
+        .count()
+}
+
+#[test]
+fn a_small_ball_keeps_the_incline_on_its_path() {
+    // The demo with a 16 mm ball (8 px radius): the images on the incline once made a path of
+    // their own (incline 28.26 deg, rolling loss -0.13).
+    let mut scene = Scene::demo();
+    scene.ball.diameter_m = 0.016;
+    let (m, truth, first) = measure_scene(&scene, &settings(25.0, 0.016));
+    let in_frame = truth.flashes.iter().filter(|f| f.in_frame).count();
+    assert_eq!(m.paths.paths.len(), 1, "one path");
+    assert_eq!(m.paths.paths[0].points.len(), in_frame);
+    assert!(m.paths.strays.is_empty());
+    let doc = &m.doc.measurement;
+    check_physics(doc, &truth, first);
+    check_incline(doc, &truth);
+    let inc = doc.incline.as_ref().unwrap();
+    agrees(
+        "incline angle",
+        inc.angle_deg,
+        inc.angle_sigma_deg,
+        scene.incline.as_ref().unwrap().angle_deg,
+    );
+    assert_eq!(inc.last_n + 1, incline_flashes(&truth));
+}
+
+#[test]
+fn at_a_low_flash_rate_the_incline_ends_where_its_line_does() {
+    // The demo at 8 Hz: three images on the incline and a first arc of two before the bounce.
+    // The last incline image once went into the first flight arc (bounce 1 e = 0.8076 against
+    // 0.78, reduced chi-square 47,970).
+    let mut scene = Scene::demo();
+    scene.strobe.rate_hz = 8.0;
+    let (m, truth, first) = measure_scene(&scene, &settings(8.0, 0.04));
+    let in_frame = truth.flashes.iter().filter(|f| f.in_frame).count();
+    assert_eq!(m.paths.paths[0].points.len(), in_frame);
+    let doc = &m.doc.measurement;
+    let incline = doc
+        .phases
+        .iter()
+        .find(|p| p.kind == PhaseKind::Incline)
+        .expect("an incline phase");
+    assert_eq!(incline.last_n + 1, incline_flashes(&truth));
+    for arc in doc.arcs.iter().filter(|a| a.kind == PhaseKind::Flight) {
+        assert!(arc.first_n > incline.last_n, "a flight arc on the incline");
+    }
+    assert!(!doc.bounces.is_empty());
+    check_physics(doc, &truth, first);
+}
+
+#[test]
+fn at_a_high_flash_rate_the_incline_is_an_incline_and_the_camera_level() {
+    // The demo at 60 Hz: the slow start's images overlap (not all are found; detection is
+    // another issue). Once numbered as consecutive flashes, the incline came out as a floor
+    // phase, g = 9.50 +- 0.07 and a roll of -0.453 deg "corrected" (truth: level).
+    let mut scene = Scene::demo();
+    scene.strobe.rate_hz = 60.0;
+    let (m, truth, first) = measure_scene(&scene, &settings(60.0, 0.04));
+    let doc = &m.doc.measurement;
+    assert_eq!(doc.phases[0].kind, PhaseKind::Incline);
+    let roll = doc.level.roll_deg.unwrap();
+    let roll_sigma = doc.level.roll_sigma_deg.unwrap();
+    assert!(
+        roll.abs() <= 3.0 * roll_sigma,
+        "roll {roll} +- {roll_sigma}"
+    );
+    check_physics(doc, &truth, first);
+}
+
+#[test]
+fn throws_are_measured_exactly() {
+    // Thrown up and sideways (vx != 0, vy > 0), both ways across the frame.
+    for (x_m, vx_mps, vy_mps, rate_hz) in [(0.1, 0.5, 2.0, 20.0), (0.9, -0.3, 1.5, 30.0)] {
+        let mut drop = DropScene::drifting();
+        drop.x_m = x_m;
+        drop.y_m = 0.35;
+        drop.vx_mps = Some(vx_mps);
+        drop.rate_hz = rate_hz;
+        let toml = drop.toml().replace(
+            &format!("vx_mps = {vx_mps:?}\n"),
+            &format!("vx_mps = {vx_mps:?}\nvy_mps = {vy_mps:?}\n"),
+        );
+        let scene = Scene::from_toml(&toml, Path::new("throw.toml")).unwrap();
+        let (m, truth, first) = measure_scene(&scene, &settings(rate_hz, 0.04));
+        let in_frame = truth.flashes.iter().filter(|f| f.in_frame).count();
+        assert_eq!(m.paths.paths[0].points.len(), in_frame);
+        assert!(m.doc.measurement.bounces.len() >= 2);
+        check_physics(&m.doc.measurement, &truth, first);
+    }
+}
+
+#[test]
+fn missing_images_are_counted_from_the_physics() {
+    // Images taken out of the spots a photo gave (a flash that did not fire, an image hidden
+    // by something in front of it): the path lists exactly those flashes as missing and keeps
+    // every later flash's index, on the incline, in flight and next to a bounce, and the
+    // physics stays right.
+    let dir = common::tempdir();
+    let scene = Scene::demo();
+    let (photo, truth) = shoot(&scene, dir.path(), "demo.png");
+    let img = load(&photo, &LoadOptions::default()).unwrap();
+    let settings = settings(25.0, 0.04);
+    let report = find_spots(&img, None, &settings.spots, None).unwrap();
+    for removed in [[4usize, 11], [17, 30], [6, 14]] {
+        let mut spots = report.clone();
+        spots.spots.retain(|s| {
+            removed.iter().all(|&n| {
+                let f = &truth.flashes[n];
+                (s.x_px - f.x_px).hypot(s.y_px - f.y_px) > 0.5 * f.r_px
+            })
+        });
+        let path = &order_path(&spots.spots, &PathOptions::default()).paths[0];
+        let first = check_path(path, &truth);
+        for n in removed {
+            assert!(path.missing.contains(&(n - first)), "flash {n} missing");
+        }
+        let m = measure_spots(&photo, spots, &settings).unwrap();
+        check_physics(&m.doc.measurement, &truth, first);
+        check_incline(&m.doc.measurement, &truth);
+    }
+}
