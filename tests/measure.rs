@@ -337,3 +337,47 @@ fn one_more_true_image_at_an_apex_keeps_the_drop_test_interval() {
         truth.interval_s
     );
 }
+
+#[test]
+fn failed_self_checks_and_unmeasured_bands_give_their_exit_status() {
+    // The demo's ball is solid; measured as a thin shell it rolls faster than a shell can
+    // (standard rigid-body rolling, a = g sin(theta) / (1 + k)): a failed check, exit status 4,
+    // and the rig calls the photo doubtful. A drop test has no launch, so a launch-speed band is
+    // not measured: exit status 3.
+    let dir = common::tempdir();
+    let (demo, _) = shoot(&Scene::demo(), dir.path(), "demo.png");
+    let demo = demo.to_str().unwrap();
+    let common_args = ["--rate", "25", "--ball-diameter", "0.04"];
+    let right = common::beadline(&[&["measure", demo][..], &common_args].concat(), dir.path());
+    assert_eq!(right.status.code(), Some(0), "{right:?}");
+    let args = [&["measure", demo, "--ball", "shell"][..], &common_args].concat();
+    let shell = common::beadline(&args, dir.path());
+    assert_eq!(shell.status.code(), Some(4), "{shell:?}");
+    let text = String::from_utf8_lossy(&shell.stdout);
+    assert!(text.contains("FAIL incline_rolling"), "{text}");
+    let args = [&["rig", demo, "--ball", "shell"][..], &common_args].concat();
+    let rig = common::beadline(&args, dir.path());
+    assert_eq!(rig.status.code(), Some(4), "{rig:?}");
+    assert!(String::from_utf8_lossy(&rig.stdout).contains("\"status\":\"doubtful\""));
+
+    let (drop, _) = shoot(
+        &DropScene::tennis(0.75, 1.0, 0.067).scene(),
+        dir.path(),
+        "drop.png",
+    );
+    let drop = drop.to_str().unwrap();
+    let args = [
+        "measure",
+        drop,
+        "--rate",
+        "30",
+        "--scale",
+        "290",
+        "--ball-diameter",
+        "0.067",
+        "--accept",
+        "launch_speed_mps=1..2",
+    ];
+    let unmeasured = common::beadline(&args, dir.path());
+    assert_eq!(unmeasured.status.code(), Some(3), "{unmeasured:?}");
+}

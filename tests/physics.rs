@@ -5,6 +5,7 @@ mod common;
 use beadline::calibrate::{Calibration, Distortion, homography_dlt};
 use beadline::core::ball::Build;
 use beadline::physics::bands::{Band, Outcome};
+use beadline::physics::checks::CheckOutcome;
 use beadline::physics::fit::{CovarianceScaling, FitOptions, polynomial_fit};
 use beadline::physics::{MeasureOptions, Measurement, Quantity, TimedPoint, Unknown, measure};
 use beadline::synth::camera::Projection;
@@ -506,4 +507,131 @@ fn quadratic_drag_is_recovered_when_asked() {
         "drag: {:.4} +- {:.4} per m (truth 0.1)",
         d.drag_per_m, d.drag_sigma_per_m
     );
+}
+
+// ---------------------------------------------------------------------------------------------
+// Self-checks
+
+#[test]
+fn chi_square_points_match_the_handbook_table() {
+    // Upper-tail 0.001 critical values of chi-square, NIST/SEMATECH e-Handbook of Statistical
+    // Methods, section 1.3.6.7.4 (values from memory of that table). Wilson-Hilferty is within
+    // 3.5 % at 1 and 2 degrees of freedom and within 1 % from 5 on.
+    use beadline::physics::checks::chi_square_999;
+    for (dof, table, tolerance) in [
+        (1, 10.828, 0.035),
+        (2, 13.816, 0.035),
+        (5, 20.515, 0.015),
+        (10, 29.588, 0.01),
+        (20, 45.315, 0.01),
+        (50, 86.661, 0.01),
+        (100, 149.449, 0.01),
+    ] {
+        let got = chi_square_999(dof);
+        assert!(
+            (got - table).abs() / table < tolerance,
+            "{dof} dof: {got} vs {table}"
+        );
+    }
+}
+
+fn not_passed(m: &Measurement) -> Vec<String> {
+    m.checks
+        .iter()
+        .filter(|c| c.outcome != CheckOutcome::Pass)
+        .map(|c| format!("{} {:?}: {}", c.check, c.outcome, c.detail))
+        .collect()
+}
+
+fn failed(m: &Measurement, name: &str) -> bool {
+    m.checks
+        .iter()
+        .any(|c| c.check == name && c.outcome == CheckOutcome::Fail)
+}
+
+#[test]
+fn right_measurements_pass_every_check() {
+    // Rendered truth with honest 0.05 px noise: a right measurement must not cry wolf. Three
+    // shots (incline and bounces, a drop with drift, a tennis-style drop) over 4 noise draws.
+    let mut demo = Scene::demo();
+    demo.strobe.exposure_s = 2.0;
+    demo.camera.px_per_m = 700.0;
+    let scenes = [
+        demo,
+        DropScene::wide(1.0, 0.8, 30.0, 700.0).scene(),
+        DropScene::tennis(0.75, 1.0, 0.065).scene(),
+    ];
+    for scene in &scenes {
+        for seed in 1..=4 {
+            let s = shot(scene, &level_cal(scene), seed);
+            let m = measure(&s.points, scene.ball.radius_m(), &options(scene)).unwrap();
+            assert!(m.checks.len() >= 5, "{} checks", m.checks.len());
+            let bad = not_passed(&m);
+            assert!(
+                bad.is_empty(),
+                "seed {seed}, {} bounces, roll {:?} +- {:?}, floor {:?}: {bad:#?}",
+                m.bounces.len(),
+                m.level.roll_deg,
+                m.level.roll_sigma_deg,
+                m.floor
+            );
+            assert!(!m.doubtful());
+        }
+    }
+}
+
+#[test]
+fn a_wrong_image_on_an_arc_fails_the_arc_fit() {
+    // One flight image 3 px off its place (a stray blob taken for the ball).
+    let mut scene = Scene::demo();
+    scene.strobe.exposure_s = 2.0;
+    scene.camera.px_per_m = 700.0;
+    let mut s = shot(&scene, &level_cal(&scene), 3);
+    let k = s.points.len() * 2 / 3;
+    s.points[k].y_m += 3.0 / 700.0;
+    let m = measure(&s.points, scene.ball.radius_m(), &options(&scene)).unwrap();
+    assert!(failed(&m, "arc_fit"), "{:#?}", not_passed(&m));
+    assert!(m.doubtful());
+}
+
+#[test]
+fn an_uncounted_missing_flash_is_caught() {
+    // A flash with no image in the middle of the path, and the ordering did not notice: every
+    // later image is numbered one flash early. The times then lie, and some check must fail.
+    let scene = DropScene::wide(1.0, 0.8, 30.0, 700.0).scene();
+    let s = shot(&scene, &level_cal(&scene), 4);
+    let k = s.points.len() / 2;
+    let dt = scene.strobe.interval_s();
+    let pts: Vec<TimedPoint> = s
+        .points
+        .iter()
+        .enumerate()
+        .filter(|(i, _)| *i != k)
+        .map(|(i, p)| {
+            let n = if i > k { p.n - 1 } else { p.n };
+            TimedPoint {
+                n,
+                t_s: n as f64 * dt,
+                ..*p
+            }
+        })
+        .collect();
+    let m = measure(&pts, scene.ball.radius_m(), &options(&scene)).unwrap();
+    assert!(m.doubtful(), "{:#?}", not_passed(&m));
+}
+
+#[test]
+fn a_wrong_ball_build_fails_the_rolling_check() {
+    // The demo's ball is solid (k = 2/5); measured as a thin shell (k = 2/3) it rolls faster
+    // than a shell can: a negative rolling loss (standard rigid-body rolling, a = g sin / (1+k)).
+    let mut scene = Scene::demo();
+    scene.strobe.exposure_s = 2.0;
+    scene.camera.px_per_m = 700.0;
+    let s = shot(&scene, &level_cal(&scene), 5);
+    let mut o = options(&scene);
+    o.build = Build::Shell;
+    let m = measure(&s.points, scene.ball.radius_m(), &o).unwrap();
+    assert!(failed(&m, "incline_rolling"), "{:#?}", not_passed(&m));
+    let right = measure(&s.points, scene.ball.radius_m(), &options(&scene)).unwrap();
+    assert!(!failed(&right, "incline_rolling"));
 }

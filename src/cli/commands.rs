@@ -138,15 +138,12 @@ pub(crate) fn write_measure(
     emit(out, &text)
 }
 
-/// Exit status 3 when a result lies outside an acceptance band, else 0.
+/// Exit status 4 when a self-check failed (the numbers are not to be trusted), else 3 when a
+/// result lies outside an acceptance band or a band's quantity was not measured, else 0.
 pub(crate) fn verdict_status(doc: &beadline::report::measure::MeasureDoc) -> ExitCode {
-    use beadline::physics::bands::Outcome;
-    if doc
-        .measurement
-        .verdicts
-        .iter()
-        .any(|v| v.outcome == Outcome::Fail)
-    {
+    if doc.measurement.doubtful() {
+        ExitCode::from(4)
+    } else if doc.measurement.out_of_band() {
         ExitCode::from(3)
     } else {
         ExitCode::SUCCESS

@@ -11,7 +11,7 @@
 //! contact level by each parabola, e ~ T_after / T_before (T = 2 v / g); both hold exactly in
 //! vacuum.
 
-use super::fit::{block_diagonal, poly_slope, poly_value, propagate_sigma};
+use super::fit::{block_diagonal, gradient, poly_slope, poly_value, propagate_sigma};
 use super::flight::ArcFit;
 use serde::Serialize;
 
@@ -54,6 +54,16 @@ pub struct Bounce {
     pub flight_time_after_s: f64,
     /// Cross-check flight_time_after / flight_time_before.
     pub restitution_from_flight_times: Option<f64>,
+    /// `restitution_from_apex - restitution` in 1-sigmas of that difference (both from the same
+    /// two arcs, so their correlation is propagated).
+    pub apex_check_z: Option<f64>,
+    /// `restitution_from_flight_times - restitution` in 1-sigmas of that difference.
+    pub flight_time_check_z: Option<f64>,
+    /// Time the arc after leaves the contact level minus the time the arc before reaches it,
+    /// seconds: zero for an instant bounce, a flash interval or more when a flash was miscounted.
+    pub contact_gap_s: f64,
+    /// Its 1-sigma, seconds.
+    pub contact_gap_sigma_s: f64,
 }
 
 /// Roots of c0 + c1 t + c2 t^2 = level (discriminant clamped at zero), smaller first.
@@ -88,28 +98,51 @@ fn parameters(pre: &ArcFit, post: &ArcFit) -> (Vec<f64>, nalgebra::DMatrix<f64>)
     (p, covariance)
 }
 
-/// Where the two arcs cross near the gap between them: (time, centre height, its 1-sigma).
-pub(crate) fn contact_height(
-    pre: &ArcFit,
-    post: &ArcFit,
-    t_gap: (f64, f64),
-) -> Option<(f64, f64, f64)> {
-    let (p, covariance) = parameters(pre, post);
+/// Where two arcs cross near the gap between them: the contact of a bounce.
+pub(crate) struct Contact {
+    /// Centre x at the crossing, metres (the arc before's).
+    pub x_m: f64,
+    /// Centre height at the crossing, metres.
+    pub y_m: f64,
+    /// Gradient of the height with respect to the arc before's y coefficients.
+    pub d_pre_y: nalgebra::DVector<f64>,
+    /// Gradient of the height with respect to the arc after's y coefficients.
+    pub d_post_y: nalgebra::DVector<f64>,
+    /// The arc after's y covariance.
+    pub post_covariance: nalgebra::DMatrix<f64>,
+}
+
+/// Where the two arcs cross near the gap `t_gap` between them (None when they do not cross
+/// there).
+pub(crate) fn contact_height(pre: &ArcFit, post: &ArcFit, t_gap: (f64, f64)) -> Option<Contact> {
     let mid = 0.5 * (t_gap.0 + t_gap.1);
+    // p = [pre y (3), post y (3)]
     let cross = move |p: &[f64]| {
-        let d = [p[2] - p[7], p[3] - p[8], p[4] - p[9]];
+        let d = [p[0] - p[3], p[1] - p[4], p[2] - p[5]];
         let (r1, r2) = crossings(&d, 0.0);
         let t = if (r1 - mid).abs() < (r2 - mid).abs() {
             r1
         } else {
             r2
         };
-        (t, poly_value(&p[2..5], t))
+        (t, poly_value(&p[0..3], t))
     };
+    let mut p = pre.y.coefficients.clone();
+    p.extend_from_slice(&post.y.coefficients);
+    let covariance = block_diagonal(&[&pre.y.covariance, &post.y.covariance]);
     let (t, y) = cross(&p);
-    let sigma = propagate_sigma(|p| cross(p).1, &p, &covariance);
     let window = (t_gap.1 - t_gap.0).abs() + 1e-9;
-    (t.is_finite() && y.is_finite() && (t - mid).abs() <= window).then_some((t, y, sigma))
+    if !(t.is_finite() && y.is_finite() && (t - mid).abs() <= window) {
+        return None;
+    }
+    let g = gradient(|p| cross(p).1, &p, &covariance);
+    Some(Contact {
+        x_m: pre.x.value(t),
+        y_m: y,
+        d_pre_y: g.rows(0, 3).into_owned(),
+        d_post_y: g.rows(3, 3).into_owned(),
+        post_covariance: post.y.covariance.clone(),
+    })
 }
 
 /// Measure the bounce between `pre` and `post` for a contact level `level_m` (floor + radius)
@@ -148,6 +181,28 @@ pub(crate) fn measure_bounce(
         duration(&post.y.coefficients),
     );
     let ratio = |p: &[f64]| p[6] / p[1];
+    let level = |p: &[f64]| p[10];
+    let apex_e = |p: &[f64]| {
+        let h = |c: &[f64]| c[0] - c[1] * c[1] / (4.0 * c[2]) - level(p);
+        (h(&p[7..10]) / h(&p[2..5])).sqrt()
+    };
+    let times_e = |p: &[f64]| {
+        let d = |c: &[f64]| {
+            let (a, b) = crossings(c, level(p));
+            b - a
+        };
+        d(&p[7..10]) / d(&p[2..5])
+    };
+    let z = |check: &dyn Fn(&[f64]) -> f64| {
+        let diff = |p: &[f64]| check(p) - e(p);
+        let sigma = propagate_sigma(diff, &p, &covariance);
+        let z = diff(&p) / sigma;
+        z.is_finite().then_some(z)
+    };
+    let gap = |p: &[f64]| {
+        let (t_in, t_out, _, _) = state(p);
+        t_out - t_in
+    };
     let sideways = v_in[0].abs() > 1e-3 * v_in[1].abs().max(1e-9);
     Bounce {
         t_s: 0.5 * (t_in + t_out),
@@ -169,5 +224,11 @@ pub(crate) fn measure_bounce(
         flight_time_before_s: t_before,
         flight_time_after_s: t_after,
         restitution_from_flight_times: (t_before > 0.0).then(|| t_after / t_before),
+        apex_check_z: (h_before > 0.0 && h_after > 0.0)
+            .then(|| z(&apex_e))
+            .flatten(),
+        flight_time_check_z: (t_before > 0.0).then(|| z(&times_e)).flatten(),
+        contact_gap_s: t_out - t_in,
+        contact_gap_sigma_s: propagate_sigma(gap, &p, &covariance),
     }
 }

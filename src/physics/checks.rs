@@ -43,3 +43,591 @@ pub fn worst(checks: &[Check]) -> CheckOutcome {
         .max()
         .unwrap_or(CheckOutcome::Pass)
 }
+
+use super::{ArcResult, Measurement, PhaseKind, Unknown};
+
+/// Reduced chi-square above which a fit fails outright: residuals five times the centre sigmas
+/// (common practice, no source: a point from another phase or a wrong image, not noise).
+const FAIL_REDUCED_CHI_SQUARE: f64 = 25.0;
+
+/// Standard normal quantile of the one-sided 99.9 % level (3.0902; any normal table).
+const Z_999: f64 = 3.090_232;
+
+/// Cross-check disagreement, in sigmas of the difference, above which a check warns and fails.
+const WARN_Z: f64 = 3.0;
+const FAIL_Z: f64 = 5.0;
+
+/// Earth's normal gravity at sea level runs from 9.7803 m/s^2 at the equator to 9.8322 m/s^2 at
+/// the poles (WGS 84 normal gravity formula, from memory); the band adds a margin for altitude
+/// and local anomalies.
+const GRAVITY_BAND_MPS2: (f64, f64) = (9.76, 9.84);
+
+/// Upper 99.9 % point of the chi-square distribution with `dof` degrees of freedom, by the
+/// Wilson-Hilferty cube-root approximation (Wilson & Hilferty 1931).
+pub fn chi_square_999(dof: usize) -> f64 {
+    let k = dof.max(1) as f64;
+    let c = 2.0 / (9.0 * k);
+    k * (1.0 - c + Z_999 * c.sqrt()).powi(3)
+}
+
+/// Reduced chi-square up to which a fit passes even above its 99.9 % point: residuals up to
+/// twice the centre sigmas only widen the fit's uncertainties by that Birge ratio (every fit's
+/// covariance is scaled so), as sub-pixel centre sigmas are trusted to a factor 2 (common
+/// practice, no source).
+const PASS_REDUCED_CHI_SQUARE: f64 = 4.0;
+
+/// The largest reduced chi-square that passes with `dof` degrees of freedom.
+fn pass_limit(dof: usize) -> f64 {
+    (chi_square_999(dof) / dof.max(1) as f64).max(PASS_REDUCED_CHI_SQUARE)
+}
+
+/// Pass up to the 99.9 % point (or residuals twice the sigmas), warn up to residuals five times
+/// the sigmas, fail beyond.
+fn chi_square_outcome(chi_square: f64, dof: usize) -> CheckOutcome {
+    if !chi_square.is_finite() {
+        CheckOutcome::Fail
+    } else if dof == 0
+        || chi_square <= chi_square_999(dof).max(PASS_REDUCED_CHI_SQUARE * dof as f64)
+    {
+        CheckOutcome::Pass
+    } else if chi_square / dof as f64 <= FAIL_REDUCED_CHI_SQUARE {
+        CheckOutcome::Warn
+    } else {
+        CheckOutcome::Fail
+    }
+}
+
+fn check(
+    name: &'static str,
+    outcome: CheckOutcome,
+    value: f64,
+    expected: String,
+    detail: String,
+) -> Check {
+    Check {
+        check: name,
+        outcome,
+        value: value.is_finite().then_some(value),
+        expected,
+        detail,
+    }
+}
+
+/// What the physics stage can check by itself, in the order of the path.
+pub(crate) fn physics_checks(m: &Measurement, unknown: Unknown, fit_drag: bool) -> Vec<Check> {
+    let mut out = Vec::new();
+    if let Some(i) = &m.incline {
+        out.extend(incline_checks(i));
+    }
+    if let Some(l) = &m.launch {
+        let outcome = chi_square_outcome(l.position_gap_chi_square, 2);
+        out.push(check(
+            "launch_continuity",
+            outcome,
+            l.position_gap_chi_square,
+            format!(
+                "chi-square <= {:.1} (2 degrees of freedom)",
+                chi_square_999(2)
+            ),
+            format!(
+                "the incline and the first arc meet {:.1} mm apart at the launch{}",
+                l.position_gap_m * 1e3,
+                advice(
+                    outcome,
+                    "a flash may be miscounted between the incline and the flight"
+                )
+            ),
+        ));
+    }
+    out.extend(m.arcs.iter().map(arc_check));
+    out.extend(arc_agreement(&m.arcs, fit_drag));
+    out.extend(floor_checks(m));
+    out.extend(bounce_checks(m, fit_drag));
+    if unknown == Unknown::Gravity {
+        out.push(gravity_check(m.gravity_mps2.value, m.gravity_mps2.sigma));
+    }
+    out
+}
+
+/// ", <what to do>" for a check that did not pass, else nothing.
+fn advice(outcome: CheckOutcome, what: &str) -> String {
+    match outcome {
+        CheckOutcome::Pass => String::new(),
+        _ => format!(": {what}; check the overlay"),
+    }
+}
+
+fn arc_check(a: &ArcResult) -> Check {
+    let outcome = chi_square_outcome(a.reduced_chi_square * a.dof as f64, a.dof);
+    let kind = if a.kind == PhaseKind::Flight {
+        "flight arc"
+    } else {
+        "floor run"
+    };
+    let what = match outcome {
+        _ if a.reduced_chi_square <= 1.0 => String::new(),
+        CheckOutcome::Pass | CheckOutcome::Warn => format!(
+            "; its uncertainties are widened by the Birge ratio {:.1}",
+            a.reduced_chi_square.sqrt()
+        ),
+        CheckOutcome::Fail => advice(
+            outcome,
+            "it does not follow one parabola (a point of another phase, a wrong image on the \
+             path, a miscounted flash, air drag, or motion out of the plane)",
+        ),
+    };
+    check(
+        "arc_fit",
+        outcome,
+        a.reduced_chi_square,
+        format!(
+            "reduced chi-square <= {:.2} ({} degrees of freedom)",
+            pass_limit(a.dof),
+            a.dof
+        ),
+        format!(
+            "{kind} n {}..{}: residuals {:.1} x the centre sigmas{what}",
+            a.first_n,
+            a.last_n,
+            a.reduced_chi_square.max(0.0).sqrt()
+        ),
+    )
+}
+
+fn incline_checks(i: &super::incline::InclineResult) -> Vec<Check> {
+    let dof_line = i.points.saturating_sub(2);
+    let dof_along = i.points.saturating_sub(3);
+    let worst_fit = chi_square_outcome(
+        i.straightness_reduced_chi_square * dof_line as f64,
+        dof_line,
+    )
+    .max(chi_square_outcome(
+        i.along_reduced_chi_square * dof_along as f64,
+        dof_along,
+    ));
+    let fit = check(
+        "incline_fit",
+        worst_fit,
+        i.straightness_reduced_chi_square
+            .max(i.along_reduced_chi_square),
+        format!(
+            "reduced chi-square <= {:.2} across and {:.2} along the slope",
+            pass_limit(dof_line),
+            pass_limit(dof_along)
+        ),
+        format!(
+            "incline n {}..{}: {:.2} mm RMS off a straight line, constant-acceleration fit \
+             reduced chi-square {:.2}{}",
+            i.first_n,
+            i.last_n,
+            i.straightness_rms_m * 1e3,
+            i.along_reduced_chi_square,
+            advice(
+                worst_fit,
+                "the points are not one straight roll at constant acceleration (a flight image \
+                 counted as rolling, or a miscounted flash)"
+            )
+        ),
+    );
+    let (loss, sigma) = (i.rolling_loss, i.rolling_loss_sigma.max(0.0));
+    let margin = (3.0 * sigma).max(0.02);
+    let outcome = if !loss.is_finite() || loss < -margin || loss > 1.0 + margin {
+        CheckOutcome::Fail
+    } else {
+        CheckOutcome::Pass
+    };
+    let rolling = check(
+        "incline_rolling",
+        outcome,
+        loss,
+        format!("rolling loss between 0 and 1 (within {margin:.3})"),
+        format!(
+            "slope {:.2} deg from the line, acceleration {:.4} m/s^2 against {:.4} for ideal \
+             rolling{}",
+            i.angle_deg,
+            i.accel_mps2,
+            i.ideal_accel_mps2,
+            advice(
+                outcome,
+                "the acceleration does not fit the slope angle for this ball build (check --ball \
+                 and the scale; a sliding ball also goes faster than rolling)"
+            )
+        ),
+    );
+    vec![fit, rolling]
+}
+
+/// Every flight arc of 4 or more points should show the same vertical acceleration.
+fn arc_agreement(arcs: &[ArcResult], fit_drag: bool) -> Option<Check> {
+    let flying: Vec<&ArcResult> = arcs
+        .iter()
+        .filter(|a| a.kind == PhaseKind::Flight && a.points >= 4 && a.accel_y_sigma_mps2 > 0.0)
+        .collect();
+    if flying.len() < 2 {
+        return None;
+    }
+    let w: Vec<f64> = flying
+        .iter()
+        .map(|a| a.accel_y_sigma_mps2.powi(-2))
+        .collect();
+    let sw: f64 = w.iter().sum();
+    let mean = flying
+        .iter()
+        .zip(&w)
+        .map(|(a, w)| a.accel_y_mps2 * w)
+        .sum::<f64>()
+        / sw;
+    let chi2: f64 = flying
+        .iter()
+        .zip(&w)
+        .map(|(a, w)| (a.accel_y_mps2 - mean).powi(2) * w)
+        .sum();
+    let dof = flying.len() - 1;
+    let mut outcome = chi_square_outcome(chi2, dof);
+    if fit_drag {
+        outcome = outcome.min(CheckOutcome::Warn);
+    }
+    let spread = flying
+        .iter()
+        .map(|a| a.accel_y_mps2)
+        .fold((f64::INFINITY, f64::NEG_INFINITY), |(lo, hi), v| {
+            (lo.min(v), hi.max(v))
+        });
+    Some(check(
+        "arc_agreement",
+        outcome,
+        chi2 / dof as f64,
+        format!(
+            "reduced chi-square <= {:.2} ({} arcs)",
+            pass_limit(dof),
+            flying.len()
+        ),
+        format!(
+            "the flight arcs' vertical accelerations run from {:.4} to {:.4} m/s^2{}",
+            spread.0,
+            spread.1,
+            advice(
+                outcome,
+                "they should be one gravity (air drag, a miscounted flash, or a scale that \
+                 changes across the photo: give --plane)"
+            )
+        ),
+    ))
+}
+
+fn gravity_check(g: f64, sigma: f64) -> Check {
+    let (lo, hi) = GRAVITY_BAND_MPS2;
+    let outside = (lo - g).max(g - hi).max(0.0);
+    let outcome = if !g.is_finite() || outside > 3.0 * sigma.max(0.0) {
+        CheckOutcome::Fail
+    } else {
+        CheckOutcome::Pass
+    };
+    check(
+        "gravity_plausible",
+        outcome,
+        g,
+        format!("{lo}..{hi} m/s^2 within 3 sigma (Earth's surface)"),
+        format!(
+            "gravity estimated from the arcs: {g:.4} +- {sigma:.4} m/s^2{}",
+            advice(
+                outcome,
+                "the scale, the flash rate or the path is wrong (on a tilted plane of motion, give \
+                 its gravity with --gravity and estimate the interval)"
+            )
+        ),
+    )
+}
+
+/// The floor: found when the path bounces, its contacts at one height.
+fn floor_checks(m: &Measurement) -> Vec<Check> {
+    let flights = m
+        .arcs
+        .iter()
+        .filter(|a| a.kind == PhaseKind::Flight)
+        .count();
+    let mut out = Vec::new();
+    if flights >= 2 || !m.bounces.is_empty() {
+        let found = m.floor.y_m.is_finite() && m.floor.sigma_m.is_finite();
+        let outcome = if found {
+            CheckOutcome::Pass
+        } else {
+            CheckOutcome::Fail
+        };
+        out.push(check(
+            "floor_found",
+            outcome,
+            m.floor.y_m,
+            "a finite floor height when the path has two or more flight arcs".into(),
+            format!(
+                "{} flight arcs, floor {}{}",
+                flights,
+                m.floor.source,
+                advice(
+                    outcome,
+                    "no bounce could be measured between the arcs (too few images near a \
+                     contact, or arcs that do not meet)"
+                )
+            ),
+        ));
+    }
+    if let Some(red) = m.floor.contacts_reduced_chi_square {
+        let dof = m.floor.contacts - 1;
+        let outcome = chi_square_outcome(red * dof as f64, dof);
+        out.push(check(
+            "floor_contacts",
+            outcome,
+            red,
+            format!(
+                "reduced chi-square <= {:.2} ({} contacts)",
+                pass_limit(dof),
+                m.floor.contacts
+            ),
+            format!(
+                "the bounce contacts lie on one floor line within {:.1} x their sigmas{}",
+                red.max(0.0).sqrt(),
+                advice(
+                    outcome,
+                    "the contacts are not at one height (a tilted floor, a miscounted flash at a \
+                     bounce, or a camera roll not corrected)"
+                )
+            ),
+        ));
+    }
+    out
+}
+
+/// Per bounce: the three restitution estimates agree, the two arcs meet at the contact in time,
+/// and each arc has points to spare.
+fn bounce_checks(m: &Measurement, fit_drag: bool) -> Vec<Check> {
+    let dt = m.flash_interval_s.value;
+    let mut out = Vec::new();
+    for (k, b) in m.bounces.iter().enumerate() {
+        let z = [b.apex_check_z, b.flight_time_check_z]
+            .into_iter()
+            .flatten()
+            .map(f64::abs)
+            .fold(f64::NAN, f64::max);
+        let mut outcome = if !z.is_finite() {
+            CheckOutcome::Warn
+        } else if z <= WARN_Z {
+            CheckOutcome::Pass
+        } else if z <= FAIL_Z {
+            CheckOutcome::Warn
+        } else {
+            CheckOutcome::Fail
+        };
+        if fit_drag {
+            outcome = outcome.min(CheckOutcome::Warn);
+        }
+        let show = |v: Option<f64>| v.map_or("none".to_string(), |v| format!("{v:.4}"));
+        out.push(check(
+            "restitution_agreement",
+            outcome,
+            z,
+            format!("apex and flight-time estimates within {WARN_Z} sigma of e"),
+            format!(
+                "bounce {}: e = {:.4} +- {:.4} from velocities, {} from apex heights, {} from \
+                 flight times{}",
+                k + 1,
+                b.restitution,
+                b.restitution_sigma,
+                show(b.restitution_from_apex),
+                show(b.restitution_from_flight_times),
+                advice(
+                    outcome,
+                    "the arcs around this bounce do not tell one story (air drag, spin, a wrong \
+                     image or flash count in an arc)"
+                )
+            ),
+        ));
+        out.push(contact_check(k, b, dt));
+    }
+    out.extend(coverage_checks(m));
+    out
+}
+
+/// The arc before a bounce reaches the contact level when the arc after leaves it.
+fn contact_check(k: usize, b: &super::bounce::Bounce, dt: f64) -> Check {
+    let excess = b.contact_gap_s.abs() - 3.0 * b.contact_gap_sigma_s.max(0.0);
+    let outcome = if !excess.is_finite() {
+        CheckOutcome::Warn
+    } else if excess <= 0.1 * dt {
+        CheckOutcome::Pass
+    } else if excess <= 0.4 * dt {
+        CheckOutcome::Warn
+    } else {
+        CheckOutcome::Fail
+    };
+    check(
+        "bounce_timing",
+        outcome,
+        b.contact_gap_s / dt,
+        "|gap| <= 3 sigma + 0.1 flash interval".into(),
+        format!(
+            "bounce {}: the arcs reach and leave the contact level {:.2} +- {:.2} flash \
+             intervals apart{}",
+            k + 1,
+            b.contact_gap_s / dt,
+            b.contact_gap_sigma_s / dt,
+            advice(
+                outcome,
+                "a flash may be missing or miscounted at this bounce"
+            )
+        ),
+    )
+}
+
+/// Arcs next to a bounce need 4 or more points: 3 points fit a parabola exactly and leave
+/// nothing to check it with.
+fn coverage_checks(m: &Measurement) -> Vec<Check> {
+    let bounce_ns: Vec<(usize, usize)> = m
+        .phases
+        .iter()
+        .filter(|p| p.kind == PhaseKind::Bounce)
+        .map(|p| (p.first_n, p.last_n))
+        .collect();
+    let mut out = Vec::new();
+    for (k, (before_n, after_n)) in bounce_ns.iter().enumerate() {
+        let points = |n: usize| {
+            m.arcs
+                .iter()
+                .find(|a| a.first_n <= n && n <= a.last_n)
+                .map_or(0, |a| a.points)
+        };
+        let fewest = points(*before_n).min(points(*after_n));
+        let outcome = if fewest >= 4 {
+            CheckOutcome::Pass
+        } else {
+            CheckOutcome::Warn
+        };
+        out.push(check(
+            "bounce_coverage",
+            outcome,
+            fewest as f64,
+            "4 or more images on each side of a bounce".into(),
+            format!(
+                "bounce {}: {} images on its shorter side{}",
+                k + 1,
+                fewest,
+                advice(
+                    outcome,
+                    "3 images fit a parabola exactly, so nothing checks this bounce (use a higher \
+                     flash rate)"
+                )
+            ),
+        ));
+    }
+    out
+}
+
+/// Every image found is on the path or a stray with a reason; images on other paths are
+/// unexplained (a second ball, or the ordering split the ball's path).
+pub fn images_accounted(found: usize, on_path: usize, strays: usize, on_others: usize) -> Check {
+    let outcome = if on_path + strays + on_others != found {
+        CheckOutcome::Fail
+    } else if on_others > 0 {
+        CheckOutcome::Warn
+    } else {
+        CheckOutcome::Pass
+    };
+    check(
+        "images_accounted",
+        outcome,
+        on_others as f64,
+        "every image on the path or a stray with a reason".into(),
+        format!(
+            "{found} images: {on_path} on the path, {strays} strays, {on_others} on other paths{}",
+            advice(
+                outcome,
+                "images off the path may be the ball's own (a split path: give --start) or a \
+                 second ball"
+            )
+        ),
+    )
+}
+
+/// Relative change of the ball's size along the path above which it moves in depth (common
+/// practice, no source: 3 %, beyond the radius noise of a well-lit ball), and above which the
+/// distances along the path are off by several per cent (10 %): warn, fail.
+const DEPTH_CHANGE: f64 = 0.03;
+const DEPTH_CHANGE_FAIL: f64 = 0.10;
+
+/// The ball's size in the plane of motion should not change along the path: a trend means
+/// motion in depth, which the in-plane model cannot follow. `flash_n` and `r_m` are the path's flash indexes
+/// and image radii in metres (pixels over the local scale).
+pub fn radius_trend(flash_n: &[f64], r_m: &[f64]) -> Option<Check> {
+    let n = flash_n.len();
+    if n < 6 || r_m.len() != n {
+        return None;
+    }
+    let line = super::fit::polynomial_fit(
+        flash_n,
+        r_m,
+        None,
+        1,
+        &super::fit::FitOptions {
+            covariance: super::fit::CovarianceScaling::ReducedChiSquare,
+        },
+    )
+    .ok()?;
+    let mean = r_m.iter().sum::<f64>() / n as f64;
+    let span = flash_n[n - 1] - flash_n[0];
+    let change = line.coefficients[1] * span / mean;
+    let z = line.coefficients[1] / line.sigma(1);
+    let outcome = if change.abs() > DEPTH_CHANGE_FAIL && z.abs() > 5.0 {
+        CheckOutcome::Fail
+    } else if change.abs() > DEPTH_CHANGE && z.abs() > 5.0 {
+        CheckOutcome::Warn
+    } else {
+        CheckOutcome::Pass
+    };
+    Some(check(
+        "radius_trend",
+        outcome,
+        change,
+        format!(
+            "size change along the path within {:.0} %",
+            DEPTH_CHANGE * 100.0
+        ),
+        format!(
+            "the ball's image {} by {:.1} % from first to last image{}",
+            if change >= 0.0 { "grows" } else { "shrinks" },
+            change.abs() * 100.0,
+            advice(
+                outcome,
+                "the ball moves towards or away from the camera, so distances in the plane are \
+                 off; aim the shot square to the motion"
+            )
+        ),
+    ))
+}
+
+/// Tolerance of the ball-size cross-check (common practice, no source: an edge fit's radius may
+/// sit a few tenths of a pixel off on a small ball).
+const SIZE_TOLERANCE: f64 = 0.06;
+
+/// The ball's diameter measured through the scale against the diameter given.
+pub fn ball_size(measured_m: f64, given_m: f64) -> Check {
+    let ratio = measured_m / given_m;
+    let outcome = if ratio.is_finite() && (ratio - 1.0).abs() <= SIZE_TOLERANCE {
+        CheckOutcome::Pass
+    } else {
+        CheckOutcome::Warn
+    };
+    check(
+        "ball_size",
+        outcome,
+        ratio,
+        format!(
+            "within {:.0} % of the diameter given",
+            SIZE_TOLERANCE * 100.0
+        ),
+        format!(
+            "the ball measures {:.2} mm through the scale, {:.2} mm given{}",
+            measured_m * 1e3,
+            given_m * 1e3,
+            advice(outcome, "the scale or the ball's diameter is wrong")
+        ),
+    )
+}

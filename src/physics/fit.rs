@@ -454,16 +454,32 @@ pub fn levenberg_marquardt<F: FnMut(&[f64]) -> Vec<f64>>(
 }
 
 /// 1-sigma uncertainty of f(p) by first-order propagation, sqrt(g^T C g), with the gradient g
-/// taken by central differences. Returns NaN when f is not finite near p.
+/// taken by central differences ([`gradient`]). Returns NaN when f is not finite near p.
 pub fn propagate_sigma<F: Fn(&[f64]) -> f64>(f: F, p: &[f64], covariance: &DMatrix<f64>) -> f64 {
-    let n = p.len();
-    if covariance.shape() != (n, n) {
+    if covariance.shape() != (p.len(), p.len()) {
         return f64::NAN;
     }
+    let g = gradient(f, p, covariance);
+    let v = (g.transpose() * covariance * &g)[(0, 0)];
+    if v.is_finite() {
+        v.max(0.0).sqrt()
+    } else {
+        f64::NAN
+    }
+}
+
+/// Gradient of f at p by central differences, each step a thousandth of the parameter's 1-sigma
+/// from `covariance` (or a relative 1e-7 where that sigma is zero).
+pub fn gradient<F: Fn(&[f64]) -> f64>(f: F, p: &[f64], covariance: &DMatrix<f64>) -> DVector<f64> {
+    let n = p.len();
     let mut q = p.to_vec();
     let mut g = DVector::zeros(n);
     for k in 0..n {
-        let sd = covariance[(k, k)].max(0.0).sqrt();
+        let sd = if k < covariance.nrows() && k < covariance.ncols() {
+            covariance[(k, k)].max(0.0).sqrt()
+        } else {
+            0.0
+        };
         let h = if sd > 0.0 {
             1e-3 * sd
         } else {
@@ -476,12 +492,7 @@ pub fn propagate_sigma<F: Fn(&[f64]) -> f64>(f: F, p: &[f64], covariance: &DMatr
         q[k] = p[k];
         g[k] = (up - down) / (2.0 * h);
     }
-    let v = (g.transpose() * covariance * &g)[(0, 0)];
-    if v.is_finite() {
-        v.max(0.0).sqrt()
-    } else {
-        f64::NAN
-    }
+    g
 }
 
 /// Block-diagonal covariance of independent parameter groups.

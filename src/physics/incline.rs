@@ -51,6 +51,7 @@ pub(crate) struct InclineFit {
     angle_rad: f64,
     angle_sigma_rad: f64,
     straightness_rms_m: f64,
+    straightness_chi_square: f64,
 }
 
 /// Fit the incline on `points[range]`.
@@ -107,6 +108,7 @@ pub(crate) fn fit_incline(
         angle_rad: (-u[1]).clamp(-1.0, 1.0).asin(),
         angle_sigma_rad: (mean_var * inflate / spread.max(1e-300)).sqrt(),
         straightness_rms_m: (perp.iter().map(|d| d * d).sum::<f64>() / n).sqrt(),
+        straightness_chi_square: chi_perp,
     })
 }
 
@@ -131,6 +133,11 @@ pub struct Launch {
     pub angle_deg: f64,
     /// Its 1-sigma, degrees.
     pub angle_sigma_deg: f64,
+    /// Distance between the incline's and the arc's positions at the launch time, metres (zero
+    /// when both phases meet; a miscounted flash between them shows here).
+    pub position_gap_m: f64,
+    /// Chi-square of that gap (x and y, each in its propagated 1-sigma; 2 degrees of freedom).
+    pub position_gap_chi_square: f64,
 }
 
 /// Launch time from the parameter vector [incline x (3), incline y (3), arc x (2), arc y (3)].
@@ -178,6 +185,18 @@ pub(crate) fn launch(points: &[TimedPoint], inc: &InclineFit, arc: &ArcFit) -> L
         let v = velocity(p).1;
         v[1].atan2(v[0]).to_degrees()
     };
+    let gap = move |p: &[f64], axis: usize| {
+        let t = launch_time(p, bounds);
+        let (inc, arc) = if axis == 0 {
+            (&p[0..3], &p[6..8])
+        } else {
+            (&p[3..6], &p[8..11])
+        };
+        poly_value(inc, t) - poly_value(arc, t)
+    };
+    let (gap_x, gap_y) = (gap(&p, 0), gap(&p, 1));
+    let sigma_x = propagate_sigma(|p| gap(p, 0), &p, &covariance);
+    let sigma_y = propagate_sigma(|p| gap(p, 1), &p, &covariance);
     Launch {
         t_s: t,
         t_sigma_s: propagate_sigma(|p| velocity(p).0, &p, &covariance),
@@ -188,6 +207,8 @@ pub(crate) fn launch(points: &[TimedPoint], inc: &InclineFit, arc: &ArcFit) -> L
         speed_sigma_mps: propagate_sigma(speed, &p, &covariance),
         angle_deg: v[1].atan2(v[0]).to_degrees(),
         angle_sigma_deg: propagate_sigma(angle, &p, &covariance),
+        position_gap_m: gap_x.hypot(gap_y),
+        position_gap_chi_square: (gap_x / sigma_x).powi(2) + (gap_y / sigma_y).powi(2),
     }
 }
 
@@ -204,6 +225,12 @@ pub struct InclineResult {
     pub angle_sigma_deg: f64,
     /// Root-mean-square distance of the points from a straight line, metres.
     pub straightness_rms_m: f64,
+    /// Chi-square of those distances per degree of freedom (points - 2), in the points' sigmas.
+    pub straightness_reduced_chi_square: f64,
+    /// Chi-square per degree of freedom of the constant-acceleration fit along the slope.
+    pub along_reduced_chi_square: f64,
+    /// Points on the incline.
+    pub points: usize,
     /// Measured acceleration along the slope, m/s^2.
     pub accel_mps2: f64,
     /// Its 1-sigma, m/s^2.
@@ -258,6 +285,10 @@ pub(crate) fn incline_result(
         angle_deg: inc.angle_rad.to_degrees(),
         angle_sigma_deg: inc.angle_sigma_rad.to_degrees(),
         straightness_rms_m: inc.straightness_rms_m,
+        straightness_reduced_chi_square: inc.straightness_chi_square
+            / (inc.range.len().saturating_sub(2).max(1)) as f64,
+        along_reduced_chi_square: inc.along.chi_square / inc.along.dof.max(1) as f64,
+        points: inc.range.len(),
         accel_mps2: accel,
         accel_sigma_mps2: 2.0 * inc.along.sigma(2),
         end_speed_mps: end_speed,

@@ -37,6 +37,7 @@ use calibration::Calibration;
 use fit::{CovarianceScaling, FitOptions, polynomial_fit};
 use flight::{ArcFit, DragFit};
 use incline::{InclineResult, Launch};
+use nalgebra::{DMatrix, DVector};
 use phases::Segmentation;
 use serde::{Deserialize, Serialize};
 use std::ops::Range;
@@ -206,6 +207,10 @@ pub struct ArcResult {
     pub rms_residual_m: f64,
     /// Chi-square per degree of freedom of the vacuum model.
     pub reduced_chi_square: f64,
+    /// Points in the arc.
+    pub points: usize,
+    /// Degrees of freedom of the vacuum model (x linear and y quadratic in t: 2 points - 5).
+    pub dof: usize,
 }
 
 /// Camera roll estimated from the direction of gravity.
@@ -228,6 +233,10 @@ pub struct FloorLine {
     pub sigma_m: f64,
     /// "given" or "contact heights of N bounces".
     pub source: String,
+    /// Bounce contacts the height was estimated from (0 when given or not found).
+    pub contacts: usize,
+    /// Scatter of the contact heights: chi-square per degree of freedom (None under 2 contacts).
+    pub contacts_reduced_chi_square: Option<f64>,
 }
 
 /// A linear trend of restitution against normal impact speed, e = intercept + slope v.
@@ -278,6 +287,20 @@ pub struct Measurement {
     pub verdicts: Vec<Verdict>,
     /// Self-checks of the measurement (see [`checks`]).
     pub checks: Vec<checks::Check>,
+}
+
+impl Measurement {
+    /// An acceptance band failed, or its quantity was not measured.
+    pub fn out_of_band(&self) -> bool {
+        self.verdicts
+            .iter()
+            .any(|v| v.outcome != bands::Outcome::Pass)
+    }
+
+    /// A self-check failed: the numbers are printed but not to be trusted.
+    pub fn doubtful(&self) -> bool {
+        checks::worst(&self.checks) == checks::CheckOutcome::Fail
+    }
 }
 
 /// `e`, from the stage `what` of the measurement, as a physics error of the photo.
@@ -386,7 +409,11 @@ pub fn measure(
     };
     let (mut phases_out, arcs_out) = arc_phases(&pts, &seg);
     let pairs = bounce_pairs(&seg);
-    let floor = floor_line(&pts, &pairs, radius_m, options.floor_y_m);
+    let roll_sigma_rad = match (level.corrected, level.roll_sigma_deg) {
+        (true, Some(s)) => s.to_radians(),
+        _ => 0.0,
+    };
+    let floor = floor_line(&pts, &pairs, radius_m, options.floor_y_m, roll_sigma_rad);
     let (bounces, bounce_phases) = measure_bounces(&pts, &seg, &pairs, &floor, radius_m, &units);
     phases_out.extend(bounce_phases);
     phases_out.sort_by(|a, b| a.t_start_s.total_cmp(&b.t_start_s));
@@ -433,6 +460,7 @@ pub fn measure(
         checks: Vec::new(),
     };
     m.verdicts = options.bands.iter().map(|b| b.judge(&m)).collect();
+    m.checks = checks::physics_checks(&m, options.unknown, options.fit_drag);
     Ok(m)
 }
 
@@ -535,6 +563,8 @@ fn arc_phases(pts: &[TimedPoint], seg: &Segmentation) -> (Vec<PhaseSpan>, Vec<Ar
                 rms_residual_m: (0.5 * (f.x.rms_residual.powi(2) + f.y.rms_residual.powi(2)))
                     .sqrt(),
                 reduced_chi_square: f.chi_square() / (f.x.dof + f.y.dof).max(1) as f64,
+                points: r.len(),
+                dof: f.x.dof + f.y.dof,
             });
         }
     }
@@ -562,49 +592,83 @@ fn floor_line(
     pairs: &[(usize, &ArcFit, &ArcFit)],
     radius_m: f64,
     given_y_m: Option<f64>,
+    roll_sigma_rad: f64,
 ) -> FloorLine {
     if let Some(y) = given_y_m {
         return FloorLine {
             y_m: y,
             sigma_m: 0.0,
             source: "given".into(),
+            contacts: 0,
+            contacts_reduced_chi_square: None,
         };
     }
-    let contacts: Vec<(f64, f64, f64)> = pairs
+    let contacts: Vec<(usize, &ArcFit, bounce::Contact)> = pairs
         .iter()
-        .filter_map(|(_, a, b)| {
+        .filter_map(|(k, a, b)| {
             let gap = (pts[a.range.end - 1].t_s, pts[b.range.start].t_s);
-            bounce::contact_height(a, b, gap)
+            bounce::contact_height(a, b, gap).map(|c| (*k, *a, c))
         })
         .collect();
-    let w: Vec<f64> = contacts
-        .iter()
-        .map(|c| 1.0 / c.2.max(1e-12).powi(2))
-        .collect();
-    let sw: f64 = w.iter().sum();
-    if contacts.is_empty() || sw.is_nan() || sw <= 0.0 {
-        return FloorLine {
+    match weighted_contacts(&contacts, roll_sigma_rad) {
+        Some((mean, variance, reduced)) => FloorLine {
+            y_m: mean - radius_m,
+            sigma_m: (variance * reduced.unwrap_or(1.0).max(1.0)).sqrt(),
+            source: format!("contact heights of {} bounces", contacts.len()),
+            contacts: contacts.len(),
+            contacts_reduced_chi_square: reduced,
+        },
+        None => FloorLine {
             y_m: f64::NAN,
             sigma_m: f64::NAN,
             source: "no bounce: not estimated".into(),
-        };
+            contacts: 0,
+            contacts_reduced_chi_square: None,
+        },
     }
-    let mean = contacts.iter().zip(&w).map(|(c, w)| c.1 * w).sum::<f64>() / sw;
-    let chi2: f64 = contacts
-        .iter()
-        .zip(&w)
-        .map(|(c, w)| (c.1 - mean).powi(2) * w)
-        .sum();
-    let inflate = if contacts.len() > 1 {
-        (chi2 / (contacts.len() - 1) as f64).max(1.0)
-    } else {
-        1.0
-    };
-    FloorLine {
-        y_m: mean - radius_m,
-        sigma_m: (inflate / sw).sqrt(),
-        source: format!("contact heights of {} bounces", contacts.len()),
+}
+
+/// The generalised least-squares mean of the contact heights, its variance and the reduced
+/// chi-square of the heights about it (None under 2 contacts). Consecutive bounces share the arc
+/// between them, so their heights are correlated: the covariance of every pair that shares an
+/// arc is propagated through that arc's y covariance (the arc after bounce k is the one before
+/// bounce k + 1 when their arc indexes follow). The frame was rotated by a roll known to
+/// `roll_sigma_rad`: a rotation error d moves a height at x by d x, for every contact alike.
+fn weighted_contacts(
+    contacts: &[(usize, &ArcFit, bounce::Contact)],
+    roll_sigma_rad: f64,
+) -> Option<(f64, f64, Option<f64>)> {
+    let n = contacts.len();
+    if n == 0 {
+        return None;
     }
+    let mut cov = DMatrix::<f64>::zeros(n, n);
+    let quadratic =
+        |a: &DVector<f64>, m: &DMatrix<f64>, b: &DVector<f64>| (a.transpose() * m * b)[(0, 0)];
+    for (i, (k, pre, c)) in contacts.iter().enumerate() {
+        cov[(i, i)] = quadratic(&c.d_pre_y, &pre.y.covariance, &c.d_pre_y)
+            + quadratic(&c.d_post_y, &c.post_covariance, &c.d_post_y);
+        if let Some((k_next, shared, next)) = contacts.get(i + 1)
+            && *k_next == k + 1
+        {
+            let v = quadratic(&c.d_post_y, &shared.y.covariance, &next.d_pre_y);
+            cov[(i, i + 1)] = v;
+            cov[(i + 1, i)] = v;
+        }
+    }
+    let x = DVector::from_iterator(n, contacts.iter().map(|c| c.2.x_m));
+    cov += &x * x.transpose() * roll_sigma_rad.powi(2);
+    let inv = cov.try_inverse()?;
+    let ones = DVector::from_element(n, 1.0);
+    let h = DVector::from_iterator(n, contacts.iter().map(|c| c.2.y_m));
+    let info = (ones.transpose() * &inv * &ones)[(0, 0)];
+    if !(info.is_finite() && info > 0.0) {
+        return None;
+    }
+    let mean = (ones.transpose() * &inv * &h)[(0, 0)] / info;
+    let r = h - ones * mean;
+    let chi2 = (r.transpose() * &inv * &r)[(0, 0)];
+    Some((mean, 1.0 / info, (n > 1).then(|| chi2 / (n - 1) as f64)))
 }
 
 /// Every bounce between the arc `pairs` of `seg` against the `floor` (none when the floor is

@@ -1,6 +1,7 @@
 //! The document of `beadline measure`: the timed path in pixels and metres, and the physics.
 
 use super::csv_rows;
+use crate::physics::checks::{self, Check, CheckOutcome};
 use crate::physics::{Measurement, Quantity};
 use crate::track::Stray;
 use serde::Serialize;
@@ -58,6 +59,41 @@ fn quantity(q: &Quantity, unit: &str) -> String {
     } else {
         format!("unknown ({})", q.source)
     }
+}
+
+/// The checks that did not pass, worst first, one line each; a last line saying whether the
+/// numbers can be trusted.
+fn checks_text(checks: &[Check]) -> String {
+    let mut shown: Vec<&Check> = checks
+        .iter()
+        .filter(|c| c.outcome != CheckOutcome::Pass)
+        .collect();
+    shown.sort_by_key(|c| std::cmp::Reverse(c.outcome));
+    let mut s = String::new();
+    for c in &shown {
+        let word = if c.outcome == CheckOutcome::Fail {
+            "FAIL"
+        } else {
+            "warn"
+        };
+        s += &format!(
+            "  {word} {}: {} (expected {})\n",
+            c.check, c.detail, c.expected
+        );
+    }
+    s += &match checks::worst(checks) {
+        CheckOutcome::Pass => format!("  checks         all {} passed\n", checks.len()),
+        CheckOutcome::Warn => format!(
+            "  checks         {} of {} warn: read the numbers they name with care\n",
+            shown.len(),
+            checks.len()
+        ),
+        CheckOutcome::Fail => {
+            "  checks         FAILED: the numbers above are not to be trusted (exit status 4)\n"
+                .to_string()
+        }
+    };
+    s
 }
 
 impl MeasureDoc {
@@ -144,7 +180,7 @@ impl MeasureDoc {
                 v.band.quantity, v.band.min, v.band.max, v.outcome, v.note
             );
         }
-        s
+        s + &checks_text(&m.checks)
     }
 
     /// CSV of the path.

@@ -25,7 +25,6 @@ use semaphore::Semaphore;
 use sink::{ResultSink, Torn, open_append};
 
 use crate::error::Result;
-use crate::physics::bands::Outcome;
 use crate::pipeline::MeasureSettings;
 use crate::report::measure::MeasureDoc;
 use rayon::prelude::*;
@@ -55,8 +54,11 @@ pub struct RigOptions {
 pub enum Status {
     /// Measured, and every acceptance band passed or none was given.
     Ok,
-    /// Measured, and a result lies outside an acceptance band.
+    /// Measured, and a result lies outside an acceptance band (or a band's quantity was not
+    /// measured).
     OutOfBand,
+    /// Measured, but a self-check failed: the numbers are not to be trusted.
+    Doubtful,
     /// The photo could not be read or measured.
     Error,
 }
@@ -67,6 +69,7 @@ impl Status {
         match self {
             Status::Ok => "ok",
             Status::OutOfBand => "out_of_band",
+            Status::Doubtful => "doubtful",
             Status::Error => "error",
         }
     }
@@ -127,19 +130,16 @@ pub fn measure_one(path: &Path, options: &RigOptions, permits: &Semaphore) -> Ph
     });
     match outcome {
         Ok(m) => {
-            let failed = m
-                .doc
-                .measurement
-                .verdicts
-                .iter()
-                .any(|v| v.outcome == Outcome::Fail);
+            let status = if m.doc.measurement.doubtful() {
+                Status::Doubtful
+            } else if m.doc.measurement.out_of_band() {
+                Status::OutOfBand
+            } else {
+                Status::Ok
+            };
             PhotoResult {
                 file,
-                status: if failed {
-                    Status::OutOfBand
-                } else {
-                    Status::Ok
-                },
+                status,
                 error: None,
                 doc: Some(m.doc),
             }
@@ -185,10 +185,13 @@ pub fn run_batch(
 }
 
 /// The exit status of a run: 0 all measured and within bands, 2 some photo could not be read or
-/// measured, 3 some result outside an acceptance band (2 wins over 3).
+/// measured, 4 some photo doubtful (a self-check failed), 3 some result outside an acceptance
+/// band (2 wins over 4, 4 over 3).
 pub fn exit_status(results: &[PhotoResult]) -> u8 {
     if results.iter().any(|r| r.status == Status::Error) {
         2
+    } else if results.iter().any(|r| r.status == Status::Doubtful) {
+        4
     } else if results.iter().any(|r| r.status == Status::OutOfBand) {
         3
     } else {

@@ -1,0 +1,35 @@
+//! A real strobe photograph (testimages/bouncing-ball-25hz-960.jpg, CC BY-SA 3.0, provenance in
+//! its README): no exact truth, so the test checks what can be checked.
+
+mod common;
+
+use beadline::physics::checks::CheckOutcome;
+use beadline::pipeline::{MeasureSettings, measure_photo};
+use std::path::Path;
+
+#[test]
+fn a_ball_moving_in_depth_is_not_measured_silently() {
+    // By eye the ball's image shrinks from about 42 px to about 30 px radius from left to right
+    // (testimages README): motion in depth, which the in-plane model cannot follow. The
+    // measurement must flag it: the radius trend fails (over 10 %), and the photo is doubtful.
+    let photo = Path::new(env!("CARGO_MANIFEST_DIR")).join("testimages/bouncing-ball-25hz-960.jpg");
+    let settings = MeasureSettings {
+        rate_hz: Some(25.0),
+        ..Default::default()
+    };
+    let m = measure_photo(&photo, &settings).expect("the photo is measured");
+    let checks = &m.doc.measurement.checks;
+    let trend = checks
+        .iter()
+        .find(|c| c.check == "radius_trend")
+        .expect("a radius-trend check");
+    assert_eq!(trend.outcome, CheckOutcome::Fail, "{trend:?}");
+    let shrink = -trend.value.unwrap();
+    assert!((0.15..0.40).contains(&shrink), "shrinks by {shrink}");
+    assert!(m.doc.measurement.doubtful(), "{checks:#?}");
+    let out = common::beadline(
+        &["measure", photo.to_str().unwrap(), "--rate", "25"],
+        Path::new(env!("CARGO_MANIFEST_DIR")),
+    );
+    assert_eq!(out.status.code(), Some(4), "{out:?}");
+}
