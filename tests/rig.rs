@@ -232,6 +232,11 @@ fn exit_statuses_and_parseable_outputs() {
     for row in &rows {
         assert_eq!(&row[col("status")], "ok");
         assert_eq!(&row[col("verdict")], "pass");
+        assert_eq!(
+            &row[col("checks")],
+            "",
+            "a right measurement passes every check"
+        );
         let e: f64 = row[col("restitution")].parse().unwrap();
         assert!((0.7..0.85).contains(&e), "{e}");
         let dt: f64 = row[col("flash_interval_s")].parse().unwrap();

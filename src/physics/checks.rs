@@ -20,6 +20,17 @@ pub enum CheckOutcome {
     Fail,
 }
 
+impl CheckOutcome {
+    /// The outcome's name, as in the documents.
+    pub fn name(self) -> &'static str {
+        match self {
+            CheckOutcome::Pass => "pass",
+            CheckOutcome::Warn => "warn",
+            CheckOutcome::Fail => "fail",
+        }
+    }
+}
+
 /// One self-check.
 #[derive(Debug, Clone, PartialEq, Serialize)]
 pub struct Check {

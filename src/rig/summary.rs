@@ -3,6 +3,7 @@
 use super::*;
 use crate::error::{Error, Result};
 use crate::physics::bands::Outcome;
+use crate::physics::checks::CheckOutcome;
 use serde::Serialize;
 
 /// One row of the summary CSV.
@@ -10,7 +11,7 @@ use serde::Serialize;
 pub struct SummaryRow {
     /// The photo.
     pub file: String,
-    /// ok, out_of_band or error.
+    /// ok, out_of_band, doubtful or error.
     pub status: &'static str,
     /// Restitution of the first bounce.
     pub restitution: Option<f64>,
@@ -24,6 +25,8 @@ pub struct SummaryRow {
     pub flash_interval_s: Option<f64>,
     /// Acceptance verdict: pass, fail, not_measured, or empty without bands.
     pub verdict: &'static str,
+    /// The self-checks that did not pass, `name:warn` or `name:fail`, separated by `;`.
+    pub checks: String,
     /// The error message (status error).
     pub error: String,
 }
@@ -59,6 +62,14 @@ impl SummaryRow {
             gravity_mps2: m.and_then(|m| finite(m.gravity_mps2.value)),
             flash_interval_s: m.and_then(|m| finite(m.flash_interval_s.value)),
             verdict,
+            checks: m.map_or(String::new(), |m| {
+                m.checks
+                    .iter()
+                    .filter(|c| c.outcome != CheckOutcome::Pass)
+                    .map(|c| format!("{}:{}", c.check, c.outcome.name()))
+                    .collect::<Vec<_>>()
+                    .join(";")
+            }),
             error: r.error.clone().unwrap_or_default(),
         }
     }
@@ -81,6 +92,7 @@ pub fn summary_csv(results: &[PhotoResult]) -> Result<String> {
             "gravity_mps2",
             "flash_interval_s",
             "verdict",
+            "checks",
             "error",
         ])
         .map_err(err)?;
