@@ -624,7 +624,10 @@ impl Shot {
             sc.strobe.rate_hz, self.r_px, sc.floor.restitution
         );
         if sc.floor.restitution_slope_s_per_m != 0.0 {
-            d.push_str(&format!(" {:+.3} s/m", sc.floor.restitution_slope_s_per_m));
+            d.push_str(&format!(
+                " {:+.3} s/m x v_in",
+                sc.floor.restitution_slope_s_per_m
+            ));
         }
         d.push_str(&match self.format {
             Format::Jpeg(q) => format!(", jpeg q{q}"),
