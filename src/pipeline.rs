@@ -64,6 +64,12 @@ pub struct MeasureSettings {
 /// practice, no source; the sweep bench checks that the scale's interval then covers the truth).
 const RADIUS_SYSTEMATIC_PX: f64 = 0.05;
 
+/// 1-sigma added in quadrature to every centre's own, pixels: what a centre's noise-based sigma
+/// leaves out and does not average out over one image (JPEG blocks, the sensor's pixel
+/// response, the lit limb's model). Common practice, no source; the sweep bench
+/// (bench/SWEEP_RESULTS.md) counts how often the truth then falls inside 2 sigma.
+const CENTRE_FLOOR_PX: f64 = 0.03;
+
 /// Why the ball-diameter scale cannot be used.
 const NEEDED_FOR_BALL_SCALE: &str = "needed to use the ball as the ruler";
 
@@ -315,7 +321,7 @@ fn measure_validated(
                 t_s: p.n as f64 * dt,
                 x_m,
                 y_m,
-                sigma_m: calibration.sigma_m(p.x_px, p.y_px, p.sigma_px.max(1e-4)),
+                sigma_m: calibration.sigma_m(p.x_px, p.y_px, p.sigma_px.hypot(CENTRE_FLOOR_PX)),
             }
         })
         .collect();

@@ -48,9 +48,6 @@ fn table(scored: &[Scored]) -> String {
 }
 
 #[test]
-#[ignore = "5 silently wrong values with the checks of main at 5d0f851: seeds 3 and 10 (a drop whose slow \
-            start is taken for an incline: launch and incline reported, no check), seed 3 gravity \
-            9.672 +- 0.044; see bench/SWEEP_RESULTS.md"]
 fn sweep_slice_is_never_silently_wrong() {
     let scored: Vec<Scored> = (FIRST_SEED..FIRST_SEED + COUNT)
         .into_par_iter()
@@ -61,6 +58,13 @@ fn sweep_slice_is_never_silently_wrong() {
         })
         .collect();
     println!("{}", table(&scored));
+    // Not vacuous: a good share of the slice's values (missed and refused ones included) are
+    // measured and right against the truth; 28 of 67 when this was written (the full sweep's
+    // shares are in bench/SWEEP_RESULTS.md), so a third is the floor.
+    let all: Vec<&score::Value> = scored.iter().flat_map(|x| &x.values).collect();
+    let right = all.iter().filter(|v| v.class == Class::Right).count();
+    println!("{right} of {} values right", all.len());
+    assert!(3 * right >= all.len(), "{right} of {} values right", all.len());
     let silent: Vec<String> = scored
         .iter()
         .flat_map(|x| {

@@ -462,6 +462,8 @@ pub fn measure(
     };
     m.verdicts = options.bands.iter().map(|b| b.judge(&m)).collect();
     m.checks = checks::physics_checks(&m, options.unknown, options.fit_drag);
+    m.checks
+        .extend(checks::above_floor(&pts, &m.floor, radius_m));
     Ok(m)
 }
 
