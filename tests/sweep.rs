@@ -64,7 +64,11 @@ fn sweep_slice_is_never_silently_wrong() {
     let all: Vec<&score::Value> = scored.iter().flat_map(|x| &x.values).collect();
     let right = all.iter().filter(|v| v.class == Class::Right).count();
     println!("{right} of {} values right", all.len());
-    assert!(3 * right >= all.len(), "{right} of {} values right", all.len());
+    assert!(
+        3 * right >= all.len(),
+        "{right} of {} values right",
+        all.len()
+    );
     let silent: Vec<String> = scored
         .iter()
         .flat_map(|x| {

@@ -116,22 +116,31 @@ pub struct Launch {
     pub position_gap_m: f64,
     /// Chi-square of that gap (x and y, each in its propagated 1-sigma; 2 degrees of freedom).
     pub position_gap_chi_square: f64,
+    /// How far outside the span between the incline's last image and the arc's first the
+    /// velocities agree best, in 1-sigmas of that time (0 inside): the launch time is then held
+    /// at the span's end, and an image is probably in the wrong phase.
+    pub outside_span_z: f64,
 }
 
 /// Launch time from the parameter vector [incline x (3), incline y (3), arc x (2), arc y (3)].
 fn launch_time(p: &[f64], bounds: (f64, f64)) -> f64 {
+    let t = unclamped_launch_time(p, bounds);
+    if t.is_finite() {
+        t.clamp(bounds.0, bounds.1)
+    } else {
+        0.5 * (bounds.0 + bounds.1)
+    }
+}
+
+/// Where the two phases' velocities agree best, before it is held between the phases' images.
+fn unclamped_launch_time(p: &[f64], bounds: (f64, f64)) -> f64 {
     let bx = p[1] - p[7];
     let gx = 2.0 * p[2];
     let by = p[4] - p[9];
     let gy = 2.0 * (p[5] - p[10]);
     let den = gx * gx + gy * gy;
-    let t = if den > 0.0 {
+    if den > 0.0 {
         -(bx * gx + by * gy) / den
-    } else {
-        0.5 * (bounds.0 + bounds.1)
-    };
-    if t.is_finite() {
-        t.clamp(bounds.0, bounds.1)
     } else {
         0.5 * (bounds.0 + bounds.1)
     }
@@ -187,6 +196,12 @@ pub(crate) fn launch(points: &[TimedPoint], inc: &InclineFit, arc: &ArcFit) -> L
         angle_sigma_deg: propagate_sigma(angle, &p, &covariance),
         position_gap_m: gap_x.hypot(gap_y),
         position_gap_chi_square: (gap_x / sigma_x).powi(2) + (gap_y / sigma_y).powi(2),
+        outside_span_z: {
+            let raw = |p: &[f64]| unclamped_launch_time(p, bounds);
+            let t_raw = raw(&p);
+            let outside = (bounds.0 - t_raw).max(t_raw - bounds.1).max(0.0);
+            outside / propagate_sigma(raw, &p, &covariance)
+        },
     }
 }
 
