@@ -77,6 +77,10 @@ const RESTITUTION_TOLERANCE: f64 = 0.005;
 /// and local anomalies.
 const GRAVITY_BAND_MPS2: (f64, f64) = (9.76, 9.84);
 
+/// Relative 1-sigma above which an estimated gravity says little: a path that leaves it this
+/// loose is too short or too disordered to check anything against (common practice, no source).
+const GRAVITY_LOOSE: f64 = 0.05;
+
 /// Upper 99.9 % point of the chi-square distribution with `dof` degrees of freedom, by the
 /// Wilson-Hilferty cube-root approximation (Wilson & Hilferty 1931).
 pub fn chi_square_999(dof: usize) -> f64 {
@@ -338,6 +342,8 @@ fn gravity_check(g: f64, sigma: f64) -> Check {
     let outside = (lo - g).max(g - hi).max(0.0);
     let outcome = if !g.is_finite() || outside > 3.0 * sigma.max(0.0) {
         CheckOutcome::Fail
+    } else if sigma.is_nan() || sigma > GRAVITY_LOOSE * g {
+        CheckOutcome::Warn
     } else {
         CheckOutcome::Pass
     };
@@ -345,14 +351,23 @@ fn gravity_check(g: f64, sigma: f64) -> Check {
         "gravity_plausible",
         outcome,
         g,
-        format!("{lo}..{hi} m/s^2 within 3 sigma (Earth's surface)"),
+        format!(
+            "{lo}..{hi} m/s^2 within 3 sigma (Earth's surface), 1-sigma under {:.0} %",
+            GRAVITY_LOOSE * 100.0
+        ),
         format!(
             "gravity estimated from the arcs: {g:.4} +- {sigma:.4} m/s^2{}",
-            advice(
-                outcome,
-                "the scale, the flash rate or the path is wrong (on a tilted plane of motion, give \
-                 its gravity with --gravity and estimate the interval)"
-            )
+            match outcome {
+                CheckOutcome::Warn => advice(
+                    outcome,
+                    "the arcs hold too few images, or too disordered ones, to pin gravity down"
+                ),
+                _ => advice(
+                    outcome,
+                    "the scale, the flash rate or the path is wrong (on a tilted plane of motion, \
+                     give its gravity with --gravity and estimate the interval)"
+                ),
+            }
         ),
     )
 }
