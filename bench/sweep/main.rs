@@ -2,11 +2,12 @@
 //! exact truth, measured as a user would and scored, in one run.
 //!
 //! `cargo bench --bench sweep -- [--count 300] [--seed S] [--out bench/SWEEP_RESULTS.md]
-//! [--keep DIR] [--small]`: draws `count` shots from seeds S, S+1, ... ([`shots`]), renders and
+//! [--keep DIR] [--csv FILE] [--small]`: draws `count` shots from seeds S, S+1, ... ([`shots`]), renders and
 //! measures them in parallel (rayon) and scores every value ([`score`]); writes the report
 //! (settings, per quantity right / flagged / silently wrong / refused / missed, coverage of the
 //! 2-sigma intervals, false warnings, the list of wrong values, run time and machine). `--keep`
-//! keeps each shot's photo, plate, plane file, scene, truth and measurement in `DIR/SEED/`.
+//! keeps each shot's photo, plate, plane file, scene, truth and measurement in `DIR/SEED/`; `--csv`
+//! writes one row per scored value.
 
 mod score;
 mod shots;
@@ -23,6 +24,7 @@ struct Args {
     seed: u64,
     out: PathBuf,
     keep: Option<PathBuf>,
+    csv: Option<PathBuf>,
     small: bool,
 }
 
@@ -32,6 +34,7 @@ fn parse_args() -> Result<Args, String> {
         seed: 1,
         out: PathBuf::from("bench/SWEEP_RESULTS.md"),
         keep: None,
+        csv: None,
         small: false,
     };
     let mut it = std::env::args().skip(1);
@@ -42,6 +45,7 @@ fn parse_args() -> Result<Args, String> {
             "--seed" => a.seed = value()?.parse().map_err(|e| format!("--seed: {e}"))?,
             "--out" => a.out = PathBuf::from(value()?),
             "--keep" => a.keep = Some(PathBuf::from(value()?)),
+            "--csv" => a.csv = Some(PathBuf::from(value()?)),
             "--small" => a.small = true,
             "--bench" => {}
             other => return Err(format!("unknown argument {other}")),
@@ -72,7 +76,7 @@ fn main() {
         Ok(a) => a,
         Err(e) => {
             eprintln!(
-                "{e}\nusage: cargo bench --bench sweep -- [--count N] [--seed S] [--out FILE] [--keep DIR] [--small]"
+                "{e}\nusage: cargo bench --bench sweep -- [--count N] [--seed S] [--out FILE] [--keep DIR] [--csv FILE] [--small]"
             );
             std::process::exit(2);
         }
@@ -100,10 +104,39 @@ fn main() {
     }
     let text = report(&scored, &args, seconds);
     print!("{text}");
-    if let Err(e) = write(&args.out, &text) {
-        eprintln!("{e}");
-        std::process::exit(1);
+    let csv = args.csv.as_ref().map(|p| (p, values_csv(&scored)));
+    for (path, text) in std::iter::once((&args.out, text)).chain(csv) {
+        if let Err(e) = write(path, &text) {
+            eprintln!("{e}");
+            std::process::exit(1);
+        }
     }
+}
+
+/// One row per scored value: seed, shot, quantity, label, truth, measured, sigma, class, the
+/// photo's worst check and its refusal.
+fn values_csv(scored: &[Scored]) -> String {
+    let mut s = String::from("seed,shot,quantity,label,truth,measured,sigma,class,worst,error\n");
+    let quote = |t: &str| format!("\"{}\"", t.replace('"', "'"));
+    for p in scored {
+        for v in &p.values {
+            let _ = writeln!(
+                s,
+                "{},{},{},{},{},{},{},{:?},{},{}",
+                p.seed,
+                quote(&p.description),
+                quote(v.quantity.name()),
+                quote(&v.label),
+                v.truth,
+                v.measured,
+                v.sigma,
+                v.class,
+                p.worst.name(),
+                quote(p.error.as_deref().unwrap_or("")),
+            );
+        }
+    }
+    s
 }
 
 fn write(path: &Path, text: &str) -> Result<(), String> {
@@ -133,6 +166,7 @@ struct Tally {
     silent: usize,
     refused: usize,
     missed: usize,
+    unseen: usize,
     covered: usize,
     measured: usize,
 }
@@ -145,6 +179,7 @@ impl Tally {
             Class::Silent => self.silent += 1,
             Class::Refused => self.refused += 1,
             Class::Missed => self.missed += 1,
+            Class::Unseen => self.unseen += 1,
         }
         if let Some(c) = v.covered() {
             self.measured += 1;
@@ -165,7 +200,7 @@ impl Tally {
             }
         };
         format!(
-            "| {name} | {} | {} ({}) | {} | {} | {} | {} | {} ({} of {}) |\n",
+            "| {name} | {} | {} ({}) | {} | {} | {} | {} | {} ({} of {}) | {} |\n",
             self.total(),
             self.right,
             pct(self.right, self.total()),
@@ -175,7 +210,8 @@ impl Tally {
             self.missed,
             pct(self.covered, self.measured),
             self.covered,
-            self.measured
+            self.measured,
+            self.unseen
         )
     }
 }
@@ -213,7 +249,7 @@ fn report(scored: &[Scored], args: &Args, seconds: f64) -> String {
     }
     s.push_str(
         "\n## Values\n\n| quantity | values | right | flagged | silently wrong | refused | missed | \
-         truth within 2 sigma |\n|---|---|---|---|---|---|---|---|\n",
+         truth within 2 sigma | not shown |\n|---|---|---|---|---|---|---|---|---|\n",
     );
     s.push_str(&rows);
     s.push_str(&all.row("**all**"));
@@ -249,7 +285,7 @@ fn photo_summary(s: &mut String, scored: &[Scored]) {
          failed; {} with at least one silently wrong value.\n- False warnings (every value \
          right and none missed, yet a check warned or failed): {}{}.\n- {} photos with part of \
          the path out of the frame ({} of {} images not wholly inside); {} truth bounces inside the \
-         exposure left out of scope (under 3 in-frame images on a side).",
+         exposure left out of scope (under 3 resolvable images on a side).",
         scored.len(),
         refused,
         warned,
@@ -356,8 +392,12 @@ With `--fit-drag` the camera is level or has a plane file, as the README asks. G
 Scoring (`bench/sweep/score.rs`): right = |measured - truth| <= max(3 sigma, 1 % of truth); \
 flagged = wrong but a check of the photo warned or failed; silently wrong = wrong and every check \
 passed; refused = `measure` returned an error (every value of the photo in scope); missed = in \
-scope but not reported. In scope: a bounce with at least 3 in-frame images on each side, the \
-incline acceleration with 3 in-frame images on the incline, the launch also with 3 in the first \
-arc, gravity always. Bounces are matched to the truth by time (the path laid on the truth flashes \
+scope but not reported. In scope: a bounce with at least 3 resolvable images on each side, the \
+incline acceleration with 3 resolvable images on the incline, the launch also with 3 in the first \
+arc, gravity with 4 in some arc. Resolvable: wholly in the frame and no other image of the \
+exposure (any phase: a drop's rise passes over its fall) within the planner's spacing limit of \
+0.5 diameter (`synth::plan::RESOLVABLE`): nearer images merge into one blob, which is issue 17's \
+work. A value out of scope and not reported is counted apart (\"not shown\") and not in the \
+totals; a value out of scope that is reported is scored like any other. Bounces are matched to the truth by time (the path laid on the truth flashes \
 by pixel position); a measured bounce with no truth bounce is wrong, and so is an incline found in \
 a scene without one. Coverage: the truth within measured +- 2 sigma, over the measured values.\n";

@@ -8,9 +8,12 @@
 //! below) but the measurement did not report it. A measured bounce with no truth bounce near its
 //! time is wrong (truth NaN).
 //!
-//! In scope: a truth bounce with at least 3 in-frame flight images on each side (the fewest a
-//! parabola fit takes), a launch and an incline acceleration with at least 3 in-frame images on
-//! the incline (and 3 in the first arc for the launch), gravity always. Times: the path's t = 0
+//! In scope: a truth bounce with at least 3 resolvable flight images on each side (the fewest a
+//! parabola fit takes), a launch and an incline acceleration with at least 3 resolvable images on
+//! the incline (and 3 in the first arc for the launch), gravity with 4 in some arc. Resolvable:
+//! in the frame and at least the planner's spacing (half a diameter) from every other image of
+//! the exposure. A value out of scope that `measure` reports is scored all the same; one it does
+//! not report is [`Class::Unseen`] and left out of the totals. Times: the path's t = 0
 //! is its first image; the path is laid on the truth flashes by the index offset that puts its
 //! pixel centres nearest the truth's, and that offset maps bounce times to truth times.
 
@@ -68,6 +71,9 @@ pub enum Class {
     Refused,
     /// In the photo but not reported.
     Missed,
+    /// Not reported, and the photo does not show it (its images merge: under the planner's
+    /// resolvable spacing); not counted.
+    Unseen,
 }
 
 /// One scored value.
@@ -176,21 +182,33 @@ pub fn run(shot: &Shot, dir: &Path, keep: bool) -> Result<Scored, String> {
     Ok(scored)
 }
 
-/// In-frame flight images of arc `arc` in the truth.
-fn arc_images(truth: &Truth, arc: usize) -> usize {
-    truth
-        .flashes
-        .iter()
-        .filter(|f| f.in_frame && f.phase == Phase::Flight && f.arc == arc)
-        .count()
+/// The planner's spacing rule (`synth::plan::RESOLVABLE`): an image whose centre is nearer than
+/// this many diameters to another image's centre merges with it.
+const MIN_SPACING_DIAMETERS: f64 = beadline::synth::plan::RESOLVABLE.min_spacing_diameters;
+
+/// Per flash: the image is wholly in the frame and no other image of the exposure (any phase)
+/// lies within the planner's resolvable spacing of it.
+fn resolvable(truth: &Truth) -> Vec<bool> {
+    let f = &truth.flashes;
+    f.iter()
+        .enumerate()
+        .map(|(i, a)| {
+            let min_d = 2.0 * MIN_SPACING_DIAMETERS * a.r_px;
+            a.in_frame
+                && f.iter()
+                    .enumerate()
+                    .all(|(j, b)| j == i || (a.x_px - b.x_px).hypot(a.y_px - b.y_px) >= min_d)
+        })
+        .collect()
 }
 
-/// In-frame images on the incline.
-fn incline_images(truth: &Truth) -> usize {
+/// Resolvable images of one phase (flight arc `arc`, or the incline).
+fn count(truth: &Truth, ok: &[bool], phase: Phase, arc: usize) -> usize {
     truth
         .flashes
         .iter()
-        .filter(|f| f.in_frame && f.phase == Phase::Incline)
+        .zip(ok)
+        .filter(|(f, ok)| **ok && f.phase == phase && (phase != Phase::Flight || f.arc == arc))
         .count()
 }
 
@@ -215,34 +233,46 @@ fn flash_offset(truth: &Truth, m: &Measured) -> Option<usize> {
         .map(|(k, _)| k)
 }
 
-/// The truth values the photo shows: (quantity, label, truth).
-fn in_scope(truth: &Truth) -> (Vec<(Quantity, String, f64)>, Vec<usize>, usize) {
+/// A truth value and whether the photo shows it: (quantity, label, truth, shown).
+type Scope = (Quantity, String, f64, bool);
+
+/// The truth values and whether the photo shows them: (quantity, label, truth, in scope), the
+/// truth bounces in scope and the count of truth bounces out of scope.
+fn in_scope(truth: &Truth) -> (Vec<Scope>, Vec<usize>, usize) {
+    let ok = resolvable(truth);
+    let arc = |j: usize| count(truth, &ok, Phase::Flight, j);
     let t_first = truth.flashes.first().map_or(0.0, |f| f.t_s);
     let t_last = truth.flashes.last().map_or(0.0, |f| f.t_s);
-    let mut out = vec![(Quantity::Gravity, "g".to_string(), truth.gravity_mps2)];
+    let arcs = truth.bounces.len() + 1;
+    let gravity_shown = (0..arcs).any(|j| arc(j) >= 4);
+    let mut out = vec![(
+        Quantity::Gravity,
+        "g".to_string(),
+        truth.gravity_mps2,
+        gravity_shown,
+    )];
     let mut bounces = Vec::new();
     let mut out_of_scope = 0;
     for (j, b) in truth.bounces.iter().enumerate() {
         if b.t_s <= t_first || b.t_s >= t_last {
             continue;
         }
-        if arc_images(truth, j) >= 3 && arc_images(truth, j + 1) >= 3 {
+        if arc(j) >= 3 && arc(j + 1) >= 3 {
             bounces.push(j);
         } else {
             out_of_scope += 1;
         }
     }
-    if let Some(a) = truth.incline_accel_mps2
-        && incline_images(truth) >= 3
-    {
-        out.push((Quantity::InclineAccel, "incline".into(), a));
-        if arc_images(truth, 0) >= 3 {
-            out.push((
-                Quantity::LaunchSpeed,
-                "launch".into(),
-                truth.launch.speed_mps,
-            ));
-        }
+    if let Some(a) = truth.incline_accel_mps2 {
+        let shown = count(truth, &ok, Phase::Incline, 0) >= 3;
+        out.push((Quantity::InclineAccel, "incline".into(), a, shown));
+        let speed = truth.launch.speed_mps;
+        out.push((
+            Quantity::LaunchSpeed,
+            "launch".into(),
+            speed,
+            shown && arc(0) >= 3,
+        ));
     }
     (out, bounces, out_of_scope)
 }
@@ -250,6 +280,8 @@ fn in_scope(truth: &Truth) -> (Vec<(Quantity, String, f64)>, Vec<usize>, usize) 
 /// Score a measurement (or a refusal) of `shot` against its `truth`.
 pub fn score(shot: &Shot, truth: &Truth, result: Result<Measured, String>) -> Scored {
     let (scope, bounces, out_of_scope) = in_scope(truth);
+    let t_first = truth.flashes.first().map_or(0.0, |f| f.t_s);
+    let t_last = truth.flashes.last().map_or(0.0, |f| f.t_s);
     let mut scored = Scored {
         seed: shot.seed,
         description: shot.describe(),
@@ -266,8 +298,9 @@ pub fn score(shot: &Shot, truth: &Truth, result: Result<Measured, String>) -> Sc
         Ok(m) => m,
         Err(e) => {
             scored.error = Some(e);
-            for (q, label, t) in scope {
-                scored.values.push(unmeasured(q, label, t, Class::Refused));
+            for (q, label, t, shown) in scope {
+                let class = if shown { Class::Refused } else { Class::Unseen };
+                scored.values.push(unmeasured(q, label, t, class));
             }
             for j in bounces {
                 let label = format!("bounce {}", j + 1);
@@ -297,21 +330,23 @@ pub fn score(shot: &Shot, truth: &Truth, result: Result<Measured, String>) -> Sc
             Class::Silent
         }
     };
-    let mut push = |q: Quantity, label: String, truth: f64, measured: Option<(f64, f64)>| {
-        let v = match measured {
-            Some((mv, s)) => Value {
-                quantity: q,
-                label,
-                truth,
-                measured: mv,
-                sigma: s,
-                class: classify(mv, truth, s),
-            },
-            None => unmeasured(q, label, truth, Class::Missed),
+    let mut push =
+        |q: Quantity, label: String, truth: f64, measured: Option<(f64, f64)>, shown: bool| {
+            let v = match measured {
+                Some((mv, s)) => Value {
+                    quantity: q,
+                    label,
+                    truth,
+                    measured: mv,
+                    sigma: s,
+                    class: classify(mv, truth, s),
+                },
+                None if !shown => unmeasured(q, label, truth, Class::Unseen),
+                None => unmeasured(q, label, truth, Class::Missed),
+            };
+            scored.values.push(v);
         };
-        scored.values.push(v);
-    };
-    for (q, label, t) in scope {
+    for (q, label, t, shown) in scope {
         let measured = match q {
             Quantity::Gravity => Some((ms.gravity_mps2.value, ms.gravity_mps2.sigma)),
             Quantity::InclineAccel => ms
@@ -321,7 +356,7 @@ pub fn score(shot: &Shot, truth: &Truth, result: Result<Measured, String>) -> Sc
             Quantity::LaunchSpeed => ms.launch.as_ref().map(|l| (l.speed_mps, l.speed_sigma_mps)),
             Quantity::Restitution => None,
         };
-        push(q, label, t, measured);
+        push(q, label, t, measured, shown);
     }
     // An incline or a launch where the scene has none is wrong.
     if truth.incline_accel_mps2.is_none() {
@@ -332,6 +367,7 @@ pub fn score(shot: &Shot, truth: &Truth, result: Result<Measured, String>) -> Sc
                 "no incline".into(),
                 f64::NAN,
                 Some(v),
+                true,
             );
         }
         if let Some(l) = &ms.launch {
@@ -341,6 +377,7 @@ pub fn score(shot: &Shot, truth: &Truth, result: Result<Measured, String>) -> Sc
                 "no incline".into(),
                 f64::NAN,
                 Some(v),
+                true,
             );
         }
     }
@@ -361,6 +398,7 @@ pub fn score(shot: &Shot, truth: &Truth, result: Result<Measured, String>) -> Sc
                     format!("bounce {}", j + 1),
                     truth.bounces[j].restitution,
                     v,
+                    true,
                 );
             }
             None => push(
@@ -368,13 +406,16 @@ pub fn score(shot: &Shot, truth: &Truth, result: Result<Measured, String>) -> Sc
                 format!("bounce at {:.3} s (none in truth)", b.t_s),
                 f64::NAN,
                 v,
+                true,
             ),
         }
     }
-    for j in bounces {
-        if !matched[j] {
-            let t = truth.bounces[j].restitution;
-            push(Quantity::Restitution, format!("bounce {}", j + 1), t, None);
+    for (j, b) in truth.bounces.iter().enumerate() {
+        let inside = b.t_s > t_first && b.t_s < t_last;
+        if inside && !matched[j] {
+            let shown = bounces.contains(&j);
+            let label = format!("bounce {}", j + 1);
+            push(Quantity::Restitution, label, b.restitution, None, shown);
         }
     }
     scored
