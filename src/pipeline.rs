@@ -275,6 +275,26 @@ fn image_checks(
     out
 }
 
+/// How far the ball falls from rest in one flash, pixels (half of g dt^2 s with the nominal
+/// gravity), when the flash rate and a uniform scale are known before the path is ordered: a
+/// given scale, or the ball's diameter over the spots' median radius. The path's in-line
+/// search takes it as the curvature of every arc (a plane file's scale varies: None).
+fn fall_hint(report: &SpotReport, settings: &MeasureSettings) -> Option<f64> {
+    let dt = 1.0 / settings.rate_hz?;
+    let from_ball = || {
+        let d = settings.ball_diameter_m?;
+        let r = crate::core::stats::finite_median(report.spots.iter().map(|s| s.r_px).collect())?;
+        Some(r / (d / 2.0))
+    };
+    let px_per_m = match &settings.scale {
+        Some(ScaleSource::PxPerM(s)) => Some(*s),
+        Some(ScaleSource::BallDiameter) | None => from_ball(),
+        _ => None,
+    }?;
+    let c = 0.5 * crate::core::units::STANDARD_GRAVITY_MPS2 * dt * dt * px_per_m;
+    (c.is_finite() && c > 0.0).then_some(c)
+}
+
 /// [`measure_spots`] with settings already validated.
 ///
 /// The physics runs twice: once on the path in the calibration's world frame, which gives the
@@ -291,7 +311,9 @@ fn measure_validated(
     if found < 2 {
         return Err(Error::track(photo_path, TrackError::TooFewImages { found }));
     }
-    let paths = track::order_path(&report.spots, &settings.path);
+    let mut path_options = settings.path.clone();
+    path_options.fall_px_per_flash2 = fall_hint(&report, settings);
+    let paths = track::order_path(&report.spots, &path_options);
     let Some(best) = paths.paths.first() else {
         return Err(Error::track(photo_path, TrackError::NoPath { found }));
     };

@@ -291,6 +291,7 @@ fn small_and_broken_inputs_do_not_panic() {
             x_px: f64::NAN,
             y_px: 0.0,
         }),
+        fall_px_per_flash2: Some(f64::NEG_INFINITY),
     };
     let mut rng = ChaCha8Rng::seed_from_u64(8);
     let mut spots: Vec<Spot> = (0..10_000)

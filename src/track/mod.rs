@@ -75,6 +75,7 @@
 //! assert_eq!(result.paths[0].points[0].spot_index, 1);
 //! ```
 
+mod inline;
 mod moves;
 mod predict;
 mod seeds;
@@ -123,6 +124,9 @@ pub struct PathOptions {
     pub max_paths: usize,
     /// Where the ball starts, pixels: the spot nearest to it begins its path.
     pub start: Option<PixelPoint>,
+    /// How far the ball falls from rest in one flash, pixels (half of g dt^2 times the scale),
+    /// when known: the curvature every arc of an in-line path must have.
+    pub fall_px_per_flash2: Option<f64>,
 }
 
 impl Default for PathOptions {
@@ -135,6 +139,7 @@ impl Default for PathOptions {
             min_restitution: 0.3,
             max_paths: 2,
             start: None,
+            fall_px_per_flash2: None,
         }
     }
 }
@@ -261,6 +266,15 @@ fn valid_spots(spots: &[Spot]) -> (Vec<Spot>, Vec<usize>, Vec<Stray>) {
 fn build_chains(finder: &mut Finder<'_>) -> (Vec<Chain>, Vec<usize>) {
     let mut chains = Vec::new();
     let mut short_chain = Vec::new();
+    let fall = finder.limits.fall_px_per_flash2;
+    if let Some(chain) =
+        inline::in_line_chain(finder.items, &finder.taken, finder.limits.min_points, fall)
+    {
+        for node in &chain.nodes {
+            finder.taken[node.item] = true;
+        }
+        chains.push(chain);
+    }
     while chains.len() < finder.limits.max_paths {
         let Some(chain) = finder.best_chain() else {
             break;
@@ -324,6 +338,7 @@ struct Limits {
     radius_tolerance: f64,
     min_restitution: f64,
     max_paths: usize,
+    fall_px_per_flash2: Option<f64>,
 }
 
 impl Limits {
@@ -353,6 +368,9 @@ impl Limits {
             radius_tolerance: tolerance,
             min_restitution: restitution,
             max_paths: options.max_paths.min(MAX_PATHS_LIMIT),
+            fall_px_per_flash2: options
+                .fall_px_per_flash2
+                .filter(|c| c.is_finite() && *c > 0.0),
         }
     }
 }
