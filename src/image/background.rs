@@ -368,7 +368,9 @@ pub fn from_plate(photo: &Photo, plate: &Photo, options: &BackgroundOptions) -> 
         .step_by(7)
         .map(|i| photo.at(i % w, i / w) - plate.at(i % w, i / w))
         .collect();
-    let polarity = options.polarity.unwrap_or_else(|| detect_polarity(&resid));
+    let polarity = options
+        .polarity
+        .unwrap_or_else(|| plate_polarity(photo, plate, &resid));
     let sigma = robust_sigma(&mut resid).max(1e-6);
     Background {
         kind: Kind::Plate(plate.clone()),
@@ -379,6 +381,17 @@ pub fn from_plate(photo: &Photo, plate: &Photo, options: &BackgroundOptions) -> 
 
 /// Polarity from the tails of the residuals: the ball makes one tail long.
 fn detect_polarity(resid: &[f32]) -> Polarity {
+    let (up, down) = tails(resid);
+    if down > up {
+        Polarity::Dark
+    } else {
+        Polarity::Bright
+    }
+}
+
+/// The weight of the upper and the lower tail of `resid` beyond 5 robust sigmas of its median
+/// (the sum of the distances in sigmas).
+fn tails(resid: &[f32]) -> (f64, f64) {
     let mut v = resid.to_vec();
     let med = median_f32(&mut v);
     let sigma = robust_sigma(&mut v).max(1e-6);
@@ -391,7 +404,40 @@ fn detect_polarity(resid: &[f32]) -> Polarity {
             down -= d as f64;
         }
     }
-    if down > up {
+    (up, down)
+}
+
+/// Side of the blocks over which [`plate_polarity`] also averages the residual, pixels.
+const POLARITY_BLOCK_PX: usize = 4;
+
+/// Polarity of the ball against its clean plate: the tails of the sampled pixel residuals
+/// `pixel_resid` and of the residual's means over [`POLARITY_BLOCK_PX`] square blocks, summed.
+/// A dark ball's images on a bright backdrop dim it by only about 1/N for N flashes: a few
+/// quantisation steps, which no single pixel shows beyond 5 sigmas while a block mean, its noise
+/// averaged down by the block side, does (the images are at least 6 px in radius).
+fn plate_polarity(photo: &Photo, plate: &Photo, pixel_resid: &[f32]) -> Polarity {
+    let b = POLARITY_BLOCK_PX;
+    let (bw, bh) = (photo.width / b, photo.height / b);
+    let block_resid: Vec<f32> = (0..bw * bh)
+        .into_par_iter()
+        .map(|i| {
+            let (x0, y0) = ((i % bw) * b, (i / bw) * b);
+            let mut sum = 0f32;
+            for y in y0..y0 + b {
+                for x in x0..x0 + b {
+                    sum += photo.at(x, y) - plate.at(x, y);
+                }
+            }
+            sum / (b * b) as f32
+        })
+        .collect();
+    let (up_px, down_px) = tails(pixel_resid);
+    let (up_block, down_block) = if block_resid.len() >= 16 {
+        tails(&block_resid)
+    } else {
+        (0.0, 0.0)
+    };
+    if down_px + down_block > up_px + up_block {
         Polarity::Dark
     } else {
         Polarity::Bright
