@@ -442,3 +442,49 @@ pub(crate) fn arc_chi_square(points: &[TimedPoint], range: Range<usize>, gravity
     };
     levenberg_marquardt(f, &start, &options).map_or(f64::INFINITY, |fit| fit.chi_square)
 }
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    /// A model of one arc with the state `s0` at t = 0, no drag and gravity held at `g`.
+    fn vacuum_model(s0: State, g: f64) -> DragModel {
+        DragModel {
+            summary: DragFit {
+                drag_per_m: 0.0,
+                drag_sigma_per_m: 0.0,
+                gravity_mps2: g,
+                gravity_sigma_mps2: 0.0,
+                arcs: 1,
+                reduced_chi_square: 0.0,
+                dof: 0,
+            },
+            ranges: vec![0..4],
+            arc_chi_square: vec![(0.0, 3)],
+            params: vec![s0[0], s0[1], s0[2], s0[3], 0.0],
+            covariance: DMatrix::identity(5, 5) * 1e-8,
+            refs: vec![0.0],
+            held_gravity: Some(g),
+        }
+    }
+
+    #[test]
+    fn the_contact_level_is_reached_where_free_fall_says() {
+        // Without drag the model is free fall: from rest at height h the ball falls to the level
+        // L in t = sqrt(2 (h - L) / g) at speed g t (constant-acceleration kinematics).
+        let g = 9.81;
+        let m = vacuum_model([0.0, 1.0, 0.5, 0.0], g);
+        let (t, s) = m.reach_level(&m.params, 0, 0.02, 5.0).unwrap();
+        let t_true = (2.0 * 0.98 / g).sqrt();
+        assert!((t - t_true).abs() < 1e-9, "{t} vs {t_true}");
+        assert!((s[3] + g * t_true).abs() < 1e-8, "vy {}", s[3]);
+        assert!((s[0] - 0.5 * t_true).abs() < 1e-9, "x {}", s[0]);
+        // Backwards in time the same ball rose through the level, as fast, as long before.
+        let (t, s) = m.reach_level(&m.params, 0, 0.02, -5.0).unwrap();
+        assert!((t + t_true).abs() < 1e-9, "{t}");
+        assert!((s[3] - g * t_true).abs() < 1e-8, "vy {}", s[3]);
+        // Not reached within the time allowed, or started below the level: none.
+        assert!(m.reach_level(&m.params, 0, 0.02, 0.1).is_none());
+        assert!(m.reach_level(&m.params, 0, 1.5, 5.0).is_none());
+    }
+}

@@ -14,8 +14,10 @@
 //! c, whose value -2c = g_apparent ties gravity, flash interval and scale (a length scale s and
 //! time scale dt enter as g dt^2 s / 2 in pixels per flash^2), so given any two the third is
 //! estimated and the path rescaled (module `calibration`); then fit each arc ([`flight`]), the
-//! bounces ([`bounce`]), the incline and the launch ([`incline`]), the optional drag model
-//! ([`flight`], [`dynamics`]), and check acceptance [`bands`].
+//! optional drag model ([`drag`], [`dynamics`]), the floor and the bounces ([`bounce`]), the
+//! incline and the launch ([`incline`]), and check acceptance [`bands`]. When drag is fitted, the
+//! drag model gives what drag biases in the vacuum fits: the phase boundaries, the floor, each
+//! bounce's restitution, the estimated gravity and the launch velocity.
 
 pub mod bands;
 pub mod bounce;
@@ -397,8 +399,9 @@ fn validate(points: &[TimedPoint], radius_m: f64, options: &MeasureOptions) -> R
 /// its flight arcs; level the path (unless the camera is declared level or drag is fitted) and
 /// segment it again; estimate the calibration unknown from the levelled flight arcs and rescale
 /// the path; segment the calibrated path with the calibrated gravity for the final phases and
-/// arcs; then the floor and the bounces, the restitution trend, the incline and the launch, the
-/// optional drag fit and the acceptance verdicts.
+/// arcs; then the optional drag fit (its gravity the headline one when gravity is estimated),
+/// the floor and the bounces, the restitution trend, the incline and the launch and the
+/// acceptance verdicts.
 pub fn measure(
     points: &[TimedPoint],
     radius_m: f64,

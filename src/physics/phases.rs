@@ -13,6 +13,9 @@
 //! split between a constant-acceleration straight-line segment (x and y quadratic in t) and a
 //! flight arc, keeping the best; the incline is accepted only when it lowers the chi-square by more
 //! than 25 against one flight arc for the whole segment and its acceleration is below 0.8 g.
+//! With drag fitted, a flight's chi-square is the smaller of the parabola's and a one-arc drag
+//! fit's (gravity held, its own drag coefficient): drag's residuals on a parabola would
+//! otherwise move the boundaries to shed them.
 
 use super::TimedPoint;
 use super::fit::{CovarianceScaling, FitOptions, polynomial_fit};
