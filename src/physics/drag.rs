@@ -459,7 +459,7 @@ mod tests {
                 reduced_chi_square: 0.0,
                 dof: 0,
             },
-            ranges: vec![0..4],
+            ranges: std::iter::once(0..4).collect(),
             arc_chi_square: vec![(0.0, 3)],
             params: vec![s0[0], s0[1], s0[2], s0[3], 0.0],
             covariance: DMatrix::identity(5, 5) * 1e-8,
