@@ -19,8 +19,9 @@ use super::TimedPoint;
 use super::bounce::Bounce;
 use super::dynamics::{QuadraticDrag, SpeedNorm, State};
 use super::fit::{CovarianceScaling, LmOptions, block_diagonal, levenberg_marquardt};
-use super::fit::{gradient, propagate_sigma};
+use super::fit::{PolyFit, gradient, poly_slope, poly_value, propagate_sigma};
 use super::flight::ArcFit;
+use super::incline::Launch;
 use crate::error::Result;
 use nalgebra::DMatrix;
 use serde::Serialize;
@@ -345,43 +346,44 @@ impl DragModel {
         })
     }
 
-    /// The launch time: where the incline's velocity (`incline(t)`: velocity and acceleration)
-    /// and arc `k`'s model velocity agree best, by Newton steps on their difference from `t0_s`,
-    /// held within `bounds` (the incline's last image and the arc's first).
-    pub fn launch_time(
+    /// The launch off the incline `inc` into arc `k`: the time where the incline's velocity
+    /// and the model's agree best (Newton steps on their difference from the vacuum launch's
+    /// time, held within `bounds`: the incline's last image and the arc's first), the model's
+    /// position and velocity there, the gap between the incline's position and the model's,
+    /// each 1-sigma propagated from the incline's fits and the drag fit together.
+    pub fn launch(
         &self,
         k: usize,
-        incline: impl Fn(f64) -> ([f64; 2], [f64; 2]),
+        inc: (&PolyFit, &PolyFit),
         bounds: (f64, f64),
-        t0_s: f64,
-    ) -> f64 {
-        let dynamics = self.dynamics(&self.params);
-        let mut t = t0_s;
-        for _ in 0..NEWTON_STEPS {
-            let s = self.state_at(&self.params, k, t);
-            let a = dynamics.accel([s[2], s[3]]);
-            let (v, b) = incline(t);
-            let dv = [v[0] - s[2], v[1] - s[3]];
-            let da = [b[0] - a[0], b[1] - a[1]];
-            let den = da[0] * da[0] + da[1] * da[1];
-            let next = t - (dv[0] * da[0] + dv[1] * da[1]) / den;
-            if !next.is_finite() {
-                break;
+        vacuum: &Launch,
+    ) -> Launch {
+        let mut q = inc.0.coefficients.clone();
+        q.extend_from_slice(&inc.1.coefficients);
+        q.extend_from_slice(&self.params);
+        let cov = block_diagonal(&[&inc.0.covariance, &inc.1.covariance, &self.covariance]);
+        let t0 = vacuum.t_s;
+        let (lo, hi) = (bounds.0.min(bounds.1), bounds.0.max(bounds.1));
+        let raw = |q: &[f64]| {
+            let (p, dynamics) = (&q[6..], self.dynamics(&q[6..]));
+            let mut t = t0;
+            for _ in 0..NEWTON_STEPS {
+                let s = self.state_at(p, k, t);
+                let a = dynamics.accel([s[2], s[3]]);
+                let dv = [
+                    poly_slope(&q[0..3], t) - s[2],
+                    poly_slope(&q[3..6], t) - s[3],
+                ];
+                let da = [2.0 * q[2] - a[0], 2.0 * q[5] - a[1]];
+                t -= (dv[0] * da[0] + dv[1] * da[1]) / (da[0] * da[0] + da[1] * da[1]);
             }
-            t = next.clamp(bounds.0.min(bounds.1), bounds.0.max(bounds.1));
-        }
-        t
-    }
-
-    /// The state of arc `k` at time `t_s` (1-sigma `t_sigma_s`, independent of the fit), with
-    /// the 1-sigma of its speed and of its direction (degrees).
-    pub fn velocity_at(&self, k: usize, t_s: f64, t_sigma_s: f64) -> (State, f64, f64) {
-        let np = self.params.len();
-        let mut q = self.params.clone();
-        q.push(t_s);
-        let t_var = DMatrix::from_element(1, 1, t_sigma_s.max(0.0).powi(2));
-        let cov = block_diagonal(&[&self.covariance, &t_var]);
-        let state = |q: &[f64]| self.state_at(&q[..np], k, q[np]);
+            t
+        };
+        let time = |q: &[f64]| {
+            let t = raw(q);
+            if t.is_finite() { t.clamp(lo, hi) } else { t0 }
+        };
+        let state = |q: &[f64]| self.state_at(&q[6..], k, time(q));
         let speed = |q: &[f64]| {
             let s = state(q);
             s[2].hypot(s[3])
@@ -390,11 +392,34 @@ impl DragModel {
             let s = state(q);
             s[3].atan2(s[2]).to_degrees()
         };
-        (
-            state(&q),
-            propagate_sigma(speed, &q, &cov),
-            propagate_sigma(angle, &q, &cov),
-        )
+        let gap = |q: &[f64], axis: usize| {
+            let t = time(q);
+            poly_value(&q[3 * axis..3 * axis + 3], t) - self.state_at(&q[6..], k, t)[axis]
+        };
+        let (t, s) = (time(&q), state(&q));
+        let (gap_x, gap_y) = (gap(&q, 0), gap(&q, 1));
+        let sigma_x = propagate_sigma(|q| gap(q, 0), &q, &cov);
+        let sigma_y = propagate_sigma(|q| gap(q, 1), &q, &cov);
+        let t_raw = raw(&q);
+        let outside = (lo - t_raw).max(t_raw - hi).max(0.0);
+        Launch {
+            t_s: t,
+            t_sigma_s: propagate_sigma(time, &q, &cov),
+            x_m: s[0],
+            y_m: s[1],
+            velocity_mps: [s[2], s[3]],
+            speed_mps: s[2].hypot(s[3]),
+            speed_sigma_mps: propagate_sigma(speed, &q, &cov),
+            angle_deg: s[3].atan2(s[2]).to_degrees(),
+            angle_sigma_deg: propagate_sigma(angle, &q, &cov),
+            position_gap_m: gap_x.hypot(gap_y),
+            position_gap_chi_square: (gap_x / sigma_x).powi(2) + (gap_y / sigma_y).powi(2),
+            outside_span_z: if outside > 0.0 {
+                outside / propagate_sigma(raw, &q, &cov)
+            } else {
+                0.0
+            },
+        }
     }
 }
 

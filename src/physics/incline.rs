@@ -91,13 +91,9 @@ pub(crate) fn fit_incline(
 }
 
 impl InclineFit {
-    /// The incline's velocity (x, y) and acceleration at time `t_s`, m/s and m/s^2.
-    pub fn motion_at(&self, t_s: f64) -> ([f64; 2], [f64; 2]) {
-        let (x, y) = (&self.x.coefficients, &self.y.coefficients);
-        (
-            [poly_slope(x, t_s), poly_slope(y, t_s)],
-            [2.0 * x[2], 2.0 * y[2]],
-        )
+    /// The fits of x(t) and y(t) over the incline (parabolas).
+    pub fn position_fits(&self) -> (&PolyFit, &PolyFit) {
+        (&self.x, &self.y)
     }
 }
 

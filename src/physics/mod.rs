@@ -424,12 +424,7 @@ pub fn measure(
         None => None,
     };
     let model = if options.fit_drag {
-        let flying: Vec<ArcFit> = seg.flight_fits().cloned().collect();
-        let held = (options.unknown != Unknown::Gravity).then_some(g);
-        Some(
-            drag::fit_drag(&pts, &flying, held, g, options.covariance)
-                .map_err(|e| fail(options, "drag fit", e))?,
-        )
+        Some(fit_drag_model(&pts, &seg, g, options)?)
     } else {
         None
     };
@@ -491,6 +486,31 @@ pub fn measure(
     m.checks
         .extend(checks::above_floor(&pts, &m.floor, radius_m));
     Ok(m)
+}
+
+/// The drag model of the flight arcs of `seg` (gravity held at `g` unless it is estimated):
+/// over every fitted flight arc of 3 points or more, so that a short arc's bounce is measured
+/// with drag too (its 4 state parameters from 6 coordinates, the common ones from the rest); when
+/// that fit fails, over the arcs of 4 points or more (those the calibration used).
+fn fit_drag_model(
+    pts: &[TimedPoint],
+    seg: &Segmentation,
+    g: f64,
+    options: &MeasureOptions,
+) -> Result<DragModel> {
+    let held = (options.unknown != Unknown::Gravity).then_some(g);
+    let every: Vec<ArcFit> = seg
+        .fits
+        .iter()
+        .filter_map(|(f, flying)| f.as_ref().filter(|_| *flying))
+        .cloned()
+        .collect();
+    drag::fit_drag(pts, &every, held, g, options.covariance)
+        .or_else(|_| {
+            let long: Vec<ArcFit> = seg.flight_fits().cloned().collect();
+            drag::fit_drag(pts, &long, held, g, options.covariance)
+        })
+        .map_err(|e| fail(options, "drag fit", e))
 }
 
 /// Level the path: segment `pts` as given with the nominal gravity, estimate the camera roll
@@ -717,15 +737,7 @@ fn launch_and_incline(
                 && let Some(j) = d.arc_of(&arc.range)
             {
                 let bounds = (pts[inc.range.end - 1].t_s, pts[arc.range.start].t_s);
-                l.t_s = d.launch_time(j, |t| inc.motion_at(t), bounds, l.t_s);
-                let (s, speed_sigma, angle_sigma) = d.velocity_at(j, l.t_s, l.t_sigma_s);
-                l.x_m = s[0];
-                l.y_m = s[1];
-                l.velocity_mps = [s[2], s[3]];
-                l.speed_mps = s[2].hypot(s[3]);
-                l.speed_sigma_mps = speed_sigma;
-                l.angle_deg = s[3].atan2(s[2]).to_degrees();
-                l.angle_sigma_deg = angle_sigma;
+                l = d.launch(j, inc.position_fits(), bounds, &l);
             }
             l.speed_sigma_mps = units.widen(l.speed_mps, l.speed_sigma_mps, 1.0);
             let mut r = incline::incline_result(pts, inc, l.t_s, gravity.value, gravity.sigma, k);
