@@ -96,13 +96,13 @@ pub fn chi_square_999(dof: usize) -> f64 {
 const PASS_REDUCED_CHI_SQUARE: f64 = 4.0;
 
 /// The largest reduced chi-square that passes with `dof` degrees of freedom.
-fn pass_limit(dof: usize) -> f64 {
+pub(super) fn pass_limit(dof: usize) -> f64 {
     (chi_square_999(dof) / dof.max(1) as f64).max(PASS_REDUCED_CHI_SQUARE)
 }
 
 /// Pass up to the 99.9 % point (or residuals twice the sigmas), warn up to residuals five times
 /// the sigmas, fail beyond.
-fn chi_square_outcome(chi_square: f64, dof: usize) -> CheckOutcome {
+pub(super) fn chi_square_outcome(chi_square: f64, dof: usize) -> CheckOutcome {
     if !chi_square.is_finite() {
         CheckOutcome::Fail
     } else if dof == 0
@@ -116,7 +116,7 @@ fn chi_square_outcome(chi_square: f64, dof: usize) -> CheckOutcome {
     }
 }
 
-fn check(
+pub(super) fn check(
     name: &'static str,
     outcome: CheckOutcome,
     value: f64,
@@ -163,7 +163,7 @@ pub(crate) fn physics_checks(m: &Measurement, unknown: Unknown, fit_drag: bool) 
     }
     out.extend(m.arcs.iter().map(arc_check));
     out.extend(match &m.drag {
-        Some(d) => Some(drag_agreement(d)),
+        Some(d) => Some(super::drag_checks::drag_agreement(d)),
         None => arc_agreement(&m.arcs),
     });
     out.extend(floor_checks(m));
@@ -175,7 +175,7 @@ pub(crate) fn physics_checks(m: &Measurement, unknown: Unknown, fit_drag: bool) 
 }
 
 /// ", <what to do>" for a check that did not pass, else nothing.
-fn advice(outcome: CheckOutcome, what: &str) -> String {
+pub(super) fn advice(outcome: CheckOutcome, what: &str) -> String {
     match outcome {
         CheckOutcome::Pass => String::new(),
         _ => format!(": {what}; check the overlay"),
@@ -286,35 +286,6 @@ fn incline_checks(i: &super::incline::InclineResult) -> Vec<Check> {
         ),
     );
     vec![fit, rolling]
-}
-
-/// With drag fitted, the flight arcs agree when one gravity and one drag coefficient fit them
-/// all: the joint drag fit's chi-square.
-fn drag_agreement(d: &super::drag::DragFit) -> Check {
-    let outcome = chi_square_outcome(d.reduced_chi_square * d.dof as f64, d.dof);
-    check(
-        "arc_agreement",
-        outcome,
-        d.reduced_chi_square,
-        format!(
-            "reduced chi-square <= {:.2} ({} arcs, one gravity and one drag coefficient)",
-            pass_limit(d.dof),
-            d.arcs
-        ),
-        format!(
-            "the drag model fits the {} flight arcs with residuals {:.1} x the centre sigmas \
-             (gravity {:.4} m/s^2, drag {:.4} per m){}",
-            d.arcs,
-            d.reduced_chi_square.max(0.0).sqrt(),
-            d.gravity_mps2,
-            d.drag_per_m,
-            advice(
-                outcome,
-                "the arcs are not one ball in one air (a miscounted flash, a wrong image on the \
-                 path, spin, or a scale that changes across the photo: give --plane)"
-            )
-        ),
-    )
 }
 
 /// Every flight arc of 4 or more points should show the same vertical acceleration.
@@ -472,7 +443,7 @@ fn bounce_checks(m: &Measurement, fit_drag: bool) -> Vec<Check> {
     let mut out = Vec::new();
     for (k, b) in m.bounces.iter().enumerate() {
         out.push(match b.drag_model {
-            Some(fit) => model_agreement(k, b, fit),
+            Some(fit) => super::drag_checks::model_agreement(k, b, fit),
             None => vacuum_agreement(k, b, fit_drag),
         });
         out.push(contact_check(k, b, dt));
@@ -480,38 +451,6 @@ fn bounce_checks(m: &Measurement, fit_drag: bool) -> Vec<Check> {
     }
     out.extend(coverage_checks(m));
     out
-}
-
-/// A bounce measured with the drag model: its apex and flight-time cross-checks hold in vacuum
-/// only, so the bounce is judged on the model's fit of its two arcs (one gravity and one drag
-/// coefficient for both: what the vacuum cross-checks test in vacuum).
-fn model_agreement(k: usize, b: &super::bounce::Bounce, fit: super::bounce::ModelFit) -> Check {
-    let outcome = chi_square_outcome(fit.chi_square, fit.dof);
-    let reduced = fit.chi_square / fit.dof.max(1) as f64;
-    check(
-        "restitution_agreement",
-        outcome,
-        reduced,
-        format!(
-            "the drag model fits both arcs: reduced chi-square <= {:.2} ({} degrees of freedom)",
-            pass_limit(fit.dof),
-            fit.dof
-        ),
-        format!(
-            "bounce {}: e = {:.4} +- {:.4} from the drag model's velocities at the contact; the \
-             apex and flight-time cross-checks hold in vacuum only and are not made: the model \
-             fits the two arcs with residuals {:.1} x the centre sigmas{}",
-            k + 1,
-            b.restitution,
-            b.restitution_sigma,
-            reduced.max(0.0).sqrt(),
-            advice(
-                outcome,
-                "the arcs around this bounce do not tell one story (spin, a wrong image or flash \
-                 count in an arc)"
-            )
-        ),
-    )
 }
 
 /// A vacuum bounce: the restitution from velocities against the apex and flight-time estimates.

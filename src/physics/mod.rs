@@ -24,6 +24,7 @@ pub mod bounce;
 mod calibration;
 pub mod checks;
 pub mod drag;
+mod drag_checks;
 pub mod dynamics;
 pub mod fit;
 pub mod flight;
@@ -489,9 +490,11 @@ pub fn measure(
 }
 
 /// The drag model of the flight arcs of `seg` (gravity held at `g` unless it is estimated):
-/// over every fitted flight arc of 3 points or more, so that a short arc's bounce is measured
-/// with drag too (its 4 state parameters from 6 coordinates, the common ones from the rest); when
-/// that fit fails, over the arcs of 4 points or more (those the calibration used).
+/// over the flight arcs of 4 points or more (those the calibration used) and, when it leaves the
+/// common drag and gravity where they were (within 3 sigma), also over the fitted flight arcs of
+/// 3 points, so that a short arc's bounce is measured with drag too (its 4 state parameters from
+/// its 6 coordinates). A short arc that pulls the common parameters is not the ball's free
+/// flight (a point of another phase), and is left to the vacuum fits.
 fn fit_drag_model(
     pts: &[TimedPoint],
     seg: &Segmentation,
@@ -499,18 +502,27 @@ fn fit_drag_model(
     options: &MeasureOptions,
 ) -> Result<DragModel> {
     let held = (options.unknown != Unknown::Gravity).then_some(g);
+    let long: Vec<ArcFit> = seg.flight_fits().cloned().collect();
+    let model = drag::fit_drag(pts, &long, held, g, options.covariance)
+        .map_err(|e| fail(options, "drag fit", e))?;
     let every: Vec<ArcFit> = seg
         .fits
         .iter()
         .filter_map(|(f, flying)| f.as_ref().filter(|_| *flying))
         .cloned()
         .collect();
-    drag::fit_drag(pts, &every, held, g, options.covariance)
-        .or_else(|_| {
-            let long: Vec<ArcFit> = seg.flight_fits().cloned().collect();
-            drag::fit_drag(pts, &long, held, g, options.covariance)
-        })
-        .map_err(|e| fail(options, "drag fit", e))
+    if every.len() == long.len() {
+        return Ok(model);
+    }
+    let agrees = |m: &DragModel| {
+        let (a, b) = (&model.summary, &m.summary);
+        (a.drag_per_m - b.drag_per_m).abs() <= 3.0 * a.drag_sigma_per_m
+            && (a.gravity_mps2 - b.gravity_mps2).abs() <= 3.0 * a.gravity_sigma_mps2
+    };
+    Ok(drag::fit_drag(pts, &every, held, g, options.covariance)
+        .ok()
+        .filter(agrees)
+        .unwrap_or(model))
 }
 
 /// Level the path: segment `pts` as given with the nominal gravity, estimate the camera roll
