@@ -186,8 +186,8 @@ pub(super) fn advice(outcome: CheckOutcome, what: &str) -> String {
 /// the vacuum parabola's.
 fn arc_check(a: &ArcResult) -> Check {
     let (reduced, dof, model) = match (a.drag_reduced_chi_square, a.drag_dof) {
-        (Some(r), Some(dof)) => (r, dof, "the drag model"),
-        _ => (a.reduced_chi_square, a.dof, "a parabola"),
+        (Some(r), Some(dof)) => (r, dof, " from the drag model"),
+        _ => (a.reduced_chi_square, a.dof, ""),
     };
     let outcome = chi_square_outcome(reduced * dof as f64, dof);
     let kind = if a.kind == PhaseKind::Flight {
@@ -217,7 +217,7 @@ fn arc_check(a: &ArcResult) -> Check {
             dof
         ),
         format!(
-            "{kind} n {}..{}: residuals from {model} {:.1} x the centre sigmas{what}",
+            "{kind} n {}..{}: residuals{model} {:.1} x the centre sigmas{what}",
             a.first_n,
             a.last_n,
             reduced.max(0.0).sqrt()
