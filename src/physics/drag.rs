@@ -1,7 +1,7 @@
 //! The quadratic-drag model of the flight arcs and the results it drives when drag is fitted.
 //!
 //! Goes in: the timed path (metres, seconds), its fitted flight arcs (the vacuum fits start the
-//! search) and, when gravity is not estimated, the gravity to hold. Comes out: a [`DragModel`]:
+//! search) and, when gravity is not estimated, the gravity to hold. Comes out: a `DragModel`:
 //! the joint fit of a = (0, -g) - D |v| v ([`super::dynamics`], RK4) with per arc the state at
 //! its mean time, a common D and (when estimated) a common g, their covariance, the chi-square of
 //! every arc; and from it the contacts of the bounces (where two arcs' trajectories meet, and
