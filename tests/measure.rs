@@ -513,3 +513,90 @@ fn without_a_bounce_the_height_origin_is_the_lowest_image_and_says_so() {
     common::assert_path_in_truth_frame(&m.doc, &truth, [first.x_m, lowest - 0.02], 0.0);
     assert!(m.doc.text().contains("not the floor"));
 }
+
+/// Measure `scene` (drag in it) with `--fit-drag` as a user would (rate, scale and ball given),
+/// and hold every bounce's restitution, the gravity and (with an incline) the launch speed to
+/// the renderer's truth within max(3 sigma, 1 %), with no self-check failing.
+fn drag_fitted_results_hold_to_the_truth(scene: &Scene, name: &str) {
+    let dir = common::tempdir();
+    let (photo, truth) = shoot(scene, dir.path(), name);
+    let mut settings = MeasureSettings {
+        rate_hz: Some(scene.strobe.rate_hz),
+        scale: Some(ScaleSource::PxPerM(scene.camera.px_per_m)),
+        ball_diameter_m: Some(scene.ball.diameter_m),
+        ..Default::default()
+    };
+    settings.physics.fit_drag = true;
+    let m = measure_photo(&photo, &settings).unwrap();
+    let doc = &m.doc.measurement;
+    let within = |v: f64, sigma: f64, t: f64| (v - t).abs() <= (3.0 * sigma).max(0.01 * t.abs());
+    let failed: Vec<_> = doc
+        .checks
+        .iter()
+        .filter(|c| c.outcome == beadline::physics::checks::CheckOutcome::Fail)
+        .collect();
+    assert!(failed.is_empty(), "{name}: failed checks {failed:#?}");
+    assert!(
+        doc.bounces.len() >= 2,
+        "{name}: {} bounces",
+        doc.bounces.len()
+    );
+    for b in &doc.bounces {
+        let t = truth
+            .bounces
+            .iter()
+            .min_by(|x, y| (x.x_m - b.x_m).abs().total_cmp(&(y.x_m - b.x_m).abs()))
+            .unwrap();
+        eprintln!(
+            "{name}: e {:.4} +- {:.4} (truth {:.4})",
+            b.restitution, b.restitution_sigma, t.restitution
+        );
+        assert!(b.drag_model.is_some(), "{name}: a vacuum bounce");
+        assert!(
+            within(b.restitution, b.restitution_sigma, t.restitution),
+            "{name}: e {} +- {} vs {}",
+            b.restitution,
+            b.restitution_sigma,
+            t.restitution
+        );
+    }
+    let g = &doc.gravity_mps2;
+    eprintln!(
+        "{name}: g {:.4} +- {:.4} (truth {})",
+        g.value, g.sigma, truth.gravity_mps2
+    );
+    assert!(
+        within(g.value, g.sigma, truth.gravity_mps2),
+        "{name}: g {} +- {}",
+        g.value,
+        g.sigma
+    );
+    if let Some(l) = &doc.launch {
+        eprintln!(
+            "{name}: launch {:.4} +- {:.4} (truth {:.4})",
+            l.speed_mps, l.speed_sigma_mps, truth.launch.speed_mps
+        );
+        assert!(within(
+            l.speed_mps,
+            l.speed_sigma_mps,
+            truth.launch.speed_mps
+        ));
+    }
+}
+
+#[test]
+fn with_drag_fitted_the_drag_model_gives_restitution_gravity_and_launch() {
+    // Quadratic drag a = -D |v| v in the renderer (synth::sim, RK4): about 10 % of g at the
+    // fastest image of the demo's incline-and-bounces shot, and about 24 % on a drop from 0.8 m.
+    let mut demo = Scene::demo();
+    demo.flight.drag_per_m = 0.1;
+    drag_fitted_results_hold_to_the_truth(&demo, "demo-drag.png");
+    // The drop drifts 0.8 m/s sideways: drag slows the drift, and a slower one piles the
+    // images up at the apexes (they merge, which is not this test's matter).
+    let mut drift = DropScene::drifting();
+    drift.x_m = -0.1;
+    drift.vx_mps = Some(0.8);
+    let mut drop = drift.scene();
+    drop.flight.drag_per_m = 0.15;
+    drag_fitted_results_hold_to_the_truth(&drop, "drop-drag.png");
+}

@@ -64,6 +64,21 @@ pub struct Bounce {
     pub contact_gap_s: f64,
     /// Its 1-sigma, seconds.
     pub contact_gap_sigma_s: f64,
+    /// When drag is fitted: the bounce comes from the drag model (velocities where each arc's
+    /// model trajectory reaches the contact level), and this is that model's fit over the two
+    /// arcs. The apex and flight-time cross-checks, which hold in vacuum only, are then left
+    /// out. Absent for a vacuum bounce.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub drag_model: Option<ModelFit>,
+}
+
+/// The chi-square of a model over the centres it was fitted to.
+#[derive(Debug, Clone, Copy, PartialEq, Serialize)]
+pub struct ModelFit {
+    /// Sum of squared weighted residuals.
+    pub chi_square: f64,
+    /// Degrees of freedom.
+    pub dof: usize,
 }
 
 /// Roots of c0 + c1 t + c2 t^2 = level (discriminant clamped at zero), smaller first.
@@ -230,5 +245,6 @@ pub(crate) fn measure_bounce(
         flight_time_check_z: (t_before > 0.0).then(|| z(&times_e)).flatten(),
         contact_gap_s: t_out - t_in,
         contact_gap_sigma_s: propagate_sigma(gap, &p, &covariance),
+        drag_model: None,
     }
 }

@@ -96,13 +96,13 @@ pub fn chi_square_999(dof: usize) -> f64 {
 const PASS_REDUCED_CHI_SQUARE: f64 = 4.0;
 
 /// The largest reduced chi-square that passes with `dof` degrees of freedom.
-fn pass_limit(dof: usize) -> f64 {
+pub(super) fn pass_limit(dof: usize) -> f64 {
     (chi_square_999(dof) / dof.max(1) as f64).max(PASS_REDUCED_CHI_SQUARE)
 }
 
 /// Pass up to the 99.9 % point (or residuals twice the sigmas), warn up to residuals five times
 /// the sigmas, fail beyond.
-fn chi_square_outcome(chi_square: f64, dof: usize) -> CheckOutcome {
+pub(super) fn chi_square_outcome(chi_square: f64, dof: usize) -> CheckOutcome {
     if !chi_square.is_finite() {
         CheckOutcome::Fail
     } else if dof == 0
@@ -116,7 +116,7 @@ fn chi_square_outcome(chi_square: f64, dof: usize) -> CheckOutcome {
     }
 }
 
-fn check(
+pub(super) fn check(
     name: &'static str,
     outcome: CheckOutcome,
     value: f64,
@@ -162,7 +162,10 @@ pub(crate) fn physics_checks(m: &Measurement, unknown: Unknown, fit_drag: bool) 
         ));
     }
     out.extend(m.arcs.iter().map(arc_check));
-    out.extend(arc_agreement(&m.arcs, fit_drag));
+    out.extend(match &m.drag {
+        Some(d) => Some(super::drag_checks::drag_agreement(d)),
+        None => arc_agreement(&m.arcs),
+    });
     out.extend(floor_checks(m));
     out.extend(bounce_checks(m, fit_drag));
     if unknown == Unknown::Gravity {
@@ -172,25 +175,31 @@ pub(crate) fn physics_checks(m: &Measurement, unknown: Unknown, fit_drag: bool) 
 }
 
 /// ", <what to do>" for a check that did not pass, else nothing.
-fn advice(outcome: CheckOutcome, what: &str) -> String {
+pub(super) fn advice(outcome: CheckOutcome, what: &str) -> String {
     match outcome {
         CheckOutcome::Pass => String::new(),
         _ => format!(": {what}; check the overlay"),
     }
 }
 
+/// An arc's fit: with drag fitted over it, the drag model's residuals on the arc; otherwise
+/// the vacuum parabola's.
 fn arc_check(a: &ArcResult) -> Check {
-    let outcome = chi_square_outcome(a.reduced_chi_square * a.dof as f64, a.dof);
+    let (reduced, dof, model) = match (a.drag_reduced_chi_square, a.drag_dof) {
+        (Some(r), Some(dof)) => (r, dof, " from the drag model"),
+        _ => (a.reduced_chi_square, a.dof, ""),
+    };
+    let outcome = chi_square_outcome(reduced * dof as f64, dof);
     let kind = if a.kind == PhaseKind::Flight {
         "flight arc"
     } else {
         "floor run"
     };
     let what = match outcome {
-        _ if a.reduced_chi_square <= 1.0 => String::new(),
+        _ if reduced <= 1.0 => String::new(),
         CheckOutcome::Pass | CheckOutcome::Warn => format!(
             "; its uncertainties are widened by the Birge ratio {:.1}",
-            a.reduced_chi_square.sqrt()
+            reduced.sqrt()
         ),
         CheckOutcome::Fail => advice(
             outcome,
@@ -201,17 +210,17 @@ fn arc_check(a: &ArcResult) -> Check {
     check(
         "arc_fit",
         outcome,
-        a.reduced_chi_square,
+        reduced,
         format!(
             "reduced chi-square <= {:.2} ({} degrees of freedom)",
-            pass_limit(a.dof),
-            a.dof
+            pass_limit(dof),
+            dof
         ),
         format!(
-            "{kind} n {}..{}: residuals {:.1} x the centre sigmas{what}",
+            "{kind} n {}..{}: residuals{model} {:.1} x the centre sigmas{what}",
             a.first_n,
             a.last_n,
-            a.reduced_chi_square.max(0.0).sqrt()
+            reduced.max(0.0).sqrt()
         ),
     )
 }
@@ -280,7 +289,7 @@ fn incline_checks(i: &super::incline::InclineResult) -> Vec<Check> {
 }
 
 /// Every flight arc of 4 or more points should show the same vertical acceleration.
-fn arc_agreement(arcs: &[ArcResult], fit_drag: bool) -> Option<Check> {
+fn arc_agreement(arcs: &[ArcResult]) -> Option<Check> {
     let flying: Vec<&ArcResult> = arcs
         .iter()
         .filter(|a| a.kind == PhaseKind::Flight && a.points >= 4 && a.accel_y_sigma_mps2 > 0.0)
@@ -305,10 +314,7 @@ fn arc_agreement(arcs: &[ArcResult], fit_drag: bool) -> Option<Check> {
         .map(|(a, w)| (a.accel_y_mps2 - mean).powi(2) * w)
         .sum();
     let dof = flying.len() - 1;
-    let mut outcome = chi_square_outcome(chi2, dof);
-    if fit_drag {
-        outcome = outcome.min(CheckOutcome::Warn);
-    }
+    let outcome = chi_square_outcome(chi2, dof);
     let spread = flying
         .iter()
         .map(|a| a.accel_y_mps2)
@@ -436,56 +442,70 @@ fn bounce_checks(m: &Measurement, fit_drag: bool) -> Vec<Check> {
     let dt = m.flash_interval_s.value;
     let mut out = Vec::new();
     for (k, b) in m.bounces.iter().enumerate() {
-        let z = [b.apex_check_z, b.flight_time_check_z]
-            .into_iter()
-            .flatten()
-            .map(f64::abs)
-            .fold(f64::NAN, f64::max);
-        let spread = [b.restitution_from_apex, b.restitution_from_flight_times]
-            .into_iter()
-            .flatten()
-            .map(|v| (v - b.restitution).abs())
-            .fold(0.0, f64::max);
-        let mut outcome = if !z.is_finite() {
-            CheckOutcome::Warn
-        } else if z > FAIL_Z && spread > 2.0 * RESTITUTION_TOLERANCE {
-            CheckOutcome::Fail
-        } else if z > WARN_Z && spread > RESTITUTION_TOLERANCE {
-            CheckOutcome::Warn
-        } else {
-            CheckOutcome::Pass
-        };
-        if fit_drag {
-            outcome = outcome.min(CheckOutcome::Warn);
-        }
-        let show = |v: Option<f64>| v.map_or("none".to_string(), |v| format!("{v:.4}"));
-        out.push(check(
-            "restitution_agreement",
-            outcome,
-            z,
-            format!(
-                "apex and flight-time estimates within {WARN_Z} sigma or {RESTITUTION_TOLERANCE} of e"
-            ),
-            format!(
-                "bounce {}: e = {:.4} +- {:.4} from velocities, {} from apex heights, {} from \
-                 flight times{}",
-                k + 1,
-                b.restitution,
-                b.restitution_sigma,
-                show(b.restitution_from_apex),
-                show(b.restitution_from_flight_times),
-                advice(
-                    outcome,
-                    "the arcs around this bounce do not tell one story (air drag, spin, a wrong \
-                     image or flash count in an arc)"
-                )
-            ),
-        ));
+        out.push(match b.drag_model {
+            Some(fit) => super::drag_checks::model_agreement(k, b, fit),
+            None => vacuum_agreement(k, b, fit_drag),
+        });
         out.push(contact_check(k, b, dt));
         out.push(restitution_range(k, b));
     }
     out.extend(coverage_checks(m));
     out
+}
+
+/// A vacuum bounce: the restitution from velocities against the apex and flight-time estimates.
+/// With drag fitted, such a bounce (an arc outside the drag fit) is biased: at least a warning.
+fn vacuum_agreement(k: usize, b: &super::bounce::Bounce, fit_drag: bool) -> Check {
+    let z = [b.apex_check_z, b.flight_time_check_z]
+        .into_iter()
+        .flatten()
+        .map(f64::abs)
+        .fold(f64::NAN, f64::max);
+    let spread = [b.restitution_from_apex, b.restitution_from_flight_times]
+        .into_iter()
+        .flatten()
+        .map(|v| (v - b.restitution).abs())
+        .fold(0.0, f64::max);
+    let mut outcome = if !z.is_finite() {
+        CheckOutcome::Warn
+    } else if z > FAIL_Z && spread > 2.0 * RESTITUTION_TOLERANCE {
+        CheckOutcome::Fail
+    } else if z > WARN_Z && spread > RESTITUTION_TOLERANCE {
+        CheckOutcome::Warn
+    } else {
+        CheckOutcome::Pass
+    };
+    if fit_drag {
+        outcome = outcome.max(CheckOutcome::Warn);
+    }
+    let show = |v: Option<f64>| v.map_or("none".to_string(), |v| format!("{v:.4}"));
+    check(
+        "restitution_agreement",
+        outcome,
+        z,
+        format!(
+            "apex and flight-time estimates within {WARN_Z} sigma or {RESTITUTION_TOLERANCE} of e"
+        ),
+        format!(
+            "bounce {}: e = {:.4} +- {:.4} from velocities, {} from apex heights, {} from \
+             flight times{}",
+            k + 1,
+            b.restitution,
+            b.restitution_sigma,
+            show(b.restitution_from_apex),
+            show(b.restitution_from_flight_times),
+            advice(
+                outcome,
+                if fit_drag {
+                    "drag is fitted, but an arc of this bounce is outside the drag fit (too \
+                     few images), so the bounce is measured in vacuum"
+                } else {
+                    "the arcs around this bounce do not tell one story (air drag, spin, a \
+                     wrong image or flash count in an arc)"
+                }
+            )
+        ),
+    )
 }
 
 /// A passive ball rebounds slower than it hits: 0 <= e <= 1 within 3 sigma.

@@ -90,6 +90,13 @@ pub(crate) fn fit_incline(
     })
 }
 
+impl InclineFit {
+    /// The fits of x(t) and y(t) over the incline (parabolas).
+    pub fn position_fits(&self) -> (&PolyFit, &PolyFit) {
+        (&self.x, &self.y)
+    }
+}
+
 /// The ball leaving the incline.
 #[derive(Debug, Clone, Serialize)]
 pub struct Launch {

@@ -14,16 +14,21 @@
 //! c, whose value -2c = g_apparent ties gravity, flash interval and scale (a length scale s and
 //! time scale dt enter as g dt^2 s / 2 in pixels per flash^2), so given any two the third is
 //! estimated and the path rescaled (module `calibration`); then fit each arc ([`flight`]), the
-//! bounces ([`bounce`]), the incline and the launch ([`incline`]), the optional drag model
-//! ([`flight`], [`dynamics`]), and check acceptance [`bands`].
+//! optional drag model ([`drag`], [`dynamics`]), the floor and the bounces ([`bounce`]), the
+//! incline and the launch ([`incline`]), and check acceptance [`bands`]. When drag is fitted, the
+//! drag model gives what drag biases in the vacuum fits: the phase boundaries, the floor, each
+//! bounce's restitution, the estimated gravity and the launch velocity.
 
 pub mod bands;
 pub mod bounce;
 mod calibration;
 pub mod checks;
+pub mod drag;
+mod drag_checks;
 pub mod dynamics;
 pub mod fit;
 pub mod flight;
+mod floor;
 pub mod frame;
 pub mod incline;
 pub mod phases;
@@ -35,10 +40,11 @@ use crate::error::{Error, PhysicsError, Result};
 use bands::{Band, Verdict};
 use bounce::Bounce;
 use calibration::Calibration;
+use drag::{DragFit, DragModel};
 use fit::{CovarianceScaling, FitOptions, polynomial_fit};
-use flight::{ArcFit, DragFit};
+use flight::ArcFit;
+use floor::{Contacts, floor_line};
 use incline::{InclineResult, Launch};
-use nalgebra::{DMatrix, DVector};
 use phases::Segmentation;
 use serde::{Deserialize, Serialize};
 use std::ops::Range;
@@ -212,6 +218,14 @@ pub struct ArcResult {
     pub points: usize,
     /// Degrees of freedom of the vacuum model (x linear and y quadratic in t: 2 points - 5).
     pub dof: usize,
+    /// When drag is fitted and the arc is in the fit: the drag model's chi-square per degree of
+    /// freedom over this arc (the arc's fit is judged on it). Absent otherwise.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub drag_reduced_chi_square: Option<f64>,
+    /// Its degrees of freedom (2 points - 5: the arc's state and its share of the common
+    /// parameters).
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub drag_dof: Option<usize>,
 }
 
 /// Camera roll estimated from the direction of gravity.
@@ -386,8 +400,9 @@ fn validate(points: &[TimedPoint], radius_m: f64, options: &MeasureOptions) -> R
 /// its flight arcs; level the path (unless the camera is declared level or drag is fitted) and
 /// segment it again; estimate the calibration unknown from the levelled flight arcs and rescale
 /// the path; segment the calibrated path with the calibrated gravity for the final phases and
-/// arcs; then the floor and the bounces, the restitution trend, the incline and the launch, the
-/// optional drag fit and the acceptance verdicts.
+/// arcs; then the optional drag fit (its gravity the headline one when gravity is estimated),
+/// the floor and the bounces, the restitution trend, the incline and the launch and the
+/// acceptance verdicts.
 pub fn measure(
     points: &[TimedPoint],
     radius_m: f64,
@@ -400,7 +415,8 @@ pub fn measure(
     let g = calibration.gravity.value;
     let units = UnitSigmas::of(&calibration);
 
-    let seg = Segmentation::new(&pts, g, options.covariance);
+    let drag_gravity = options.fit_drag.then_some(options.gravity.value);
+    let seg = Segmentation::new(&pts, g, drag_gravity, options.covariance);
     let incline_fit = match &seg.segments.incline {
         Some(r) => Some(
             incline::fit_incline(&pts, r.clone(), options.covariance)
@@ -408,14 +424,29 @@ pub fn measure(
         ),
         None => None,
     };
-    let (mut phases_out, arcs_out) = arc_phases(&pts, &seg);
+    let model = if options.fit_drag {
+        Some(fit_drag_model(&pts, &seg, g, options)?)
+    } else {
+        None
+    };
+    let mut calibration = calibration;
+    if let (Some(d), Unknown::Gravity) = (&model, options.unknown) {
+        // The vacuum arcs' common curvature is biased by drag: the model's gravity is the one.
+        calibration.gravity = d.gravity(&units);
+    }
+    let (mut phases_out, arcs_out) = arc_phases(&pts, &seg, model.as_ref());
     let pairs = bounce_pairs(&seg);
     let roll_sigma_rad = match (level.corrected, level.roll_sigma_deg) {
         (true, Some(s)) => s.to_radians(),
         _ => 0.0,
     };
-    let floor = floor_line(&pts, &pairs, radius_m, options.floor_y_m, roll_sigma_rad);
-    let (bounces, bounce_phases) = measure_bounces(&pts, &seg, &pairs, &floor, radius_m, &units);
+    let contacts = Contacts {
+        pairs: &pairs,
+        model: model.as_ref(),
+        roll_sigma_rad,
+    };
+    let floor = floor_line(&pts, &contacts, radius_m, options.floor_y_m);
+    let (bounces, bounce_phases) = measure_bounces(&pts, &seg, &contacts, &floor, radius_m, &units);
     phases_out.extend(bounce_phases);
     phases_out.sort_by(|a, b| a.t_start_s.total_cmp(&b.t_start_s));
     let restitution_trend = restitution_trend(&bounces);
@@ -423,20 +454,11 @@ pub fn measure(
         &pts,
         &seg,
         incline_fit.as_ref(),
-        &calibration,
-        &units,
+        (&calibration, &units),
+        model.as_ref(),
         options,
     );
-    let drag = if options.fit_drag {
-        let flying: Vec<ArcFit> = seg.flight_fits().cloned().collect();
-        let held = (options.unknown != Unknown::Gravity).then_some(g);
-        Some(
-            flight::fit_drag(&pts, &flying, held, g, options.covariance)
-                .map_err(|e| fail(options, "drag fit", e))?,
-        )
-    } else {
-        None
-    };
+    let drag: Option<DragFit> = model.map(|d| d.summary);
 
     let Calibration {
         gravity,
@@ -467,6 +489,42 @@ pub fn measure(
     Ok(m)
 }
 
+/// The drag model of the flight arcs of `seg` (gravity held at `g` unless it is estimated):
+/// over the flight arcs of 4 points or more (those the calibration used) and, when it leaves the
+/// common drag and gravity where they were (within 3 sigma), also over the fitted flight arcs of
+/// 3 points, so that a short arc's bounce is measured with drag too (its 4 state parameters from
+/// its 6 coordinates). A short arc that pulls the common parameters is not the ball's free
+/// flight (a point of another phase), and is left to the vacuum fits.
+fn fit_drag_model(
+    pts: &[TimedPoint],
+    seg: &Segmentation,
+    g: f64,
+    options: &MeasureOptions,
+) -> Result<DragModel> {
+    let held = (options.unknown != Unknown::Gravity).then_some(g);
+    let long: Vec<ArcFit> = seg.flight_fits().cloned().collect();
+    let model = drag::fit_drag(pts, &long, held, g, options.covariance)
+        .map_err(|e| fail(options, "drag fit", e))?;
+    let every: Vec<ArcFit> = seg
+        .fits
+        .iter()
+        .filter_map(|(f, flying)| f.as_ref().filter(|_| *flying))
+        .cloned()
+        .collect();
+    if every.len() == long.len() {
+        return Ok(model);
+    }
+    let agrees = |m: &DragModel| {
+        let (a, b) = (&model.summary, &m.summary);
+        (a.drag_per_m - b.drag_per_m).abs() <= 3.0 * a.drag_sigma_per_m
+            && (a.gravity_mps2 - b.gravity_mps2).abs() <= 3.0 * a.gravity_sigma_mps2
+    };
+    Ok(drag::fit_drag(pts, &every, held, g, options.covariance)
+        .ok()
+        .filter(agrees)
+        .unwrap_or(model))
+}
+
 /// Level the path: segment `pts` as given with the nominal gravity, estimate the camera roll
 /// from its flight arcs and, unless the camera is declared level or drag is fitted, rotate `pts`
 /// into the level frame and segment it again there.
@@ -479,7 +537,8 @@ fn level_path(
     options: &MeasureOptions,
 ) -> Result<(Level, Vec<Range<usize>>)> {
     let g_hint = options.gravity.value;
-    let flights = Segmentation::new(pts, g_hint, options.covariance).flight_ranges();
+    let drag_gravity = options.fit_drag.then_some(g_hint);
+    let flights = Segmentation::new(pts, g_hint, drag_gravity, options.covariance).flight_ranges();
     if flights.is_empty() {
         return Err(Error::physics(&options.source, PhysicsError::NoFlightArc));
     }
@@ -490,7 +549,8 @@ fn level_path(
     let flights = match (correct_roll, roll) {
         (true, Some((rho, _))) => {
             calibration::level(pts, rho);
-            let levelled = Segmentation::new(pts, g_hint, options.covariance).flight_ranges();
+            let levelled =
+                Segmentation::new(pts, g_hint, drag_gravity, options.covariance).flight_ranges();
             if levelled.is_empty() {
                 return Err(Error::physics(
                     &options.source,
@@ -511,7 +571,7 @@ fn level_path(
 
 /// Relative 1-sigma of the length unit (scale) and the time unit (interval), added in
 /// quadrature to the sigmas of speeds and accelerations.
-struct UnitSigmas {
+pub(crate) struct UnitSigmas {
     rel_len: f64,
     rel_time: f64,
 }
@@ -524,7 +584,7 @@ impl UnitSigmas {
 
     /// The 1-sigma `s` of a value `v` whose unit is length / time^`time_power`, widened by the
     /// units' own uncertainties.
-    fn widen(&self, v: f64, s: f64, time_power: f64) -> f64 {
+    pub(crate) fn widen(&self, v: f64, s: f64, time_power: f64) -> f64 {
         (s * s + (v * self.rel_len).powi(2) + (v * time_power * self.rel_time).powi(2)).sqrt()
     }
 }
@@ -542,7 +602,11 @@ fn span(pts: &[TimedPoint], kind: PhaseKind, r: &Range<usize>) -> PhaseSpan {
 
 /// The phases of the final segmentation `seg` of `pts` (the incline when found, then every arc
 /// as flight or floor) and the result of every fitted arc, both in time order.
-fn arc_phases(pts: &[TimedPoint], seg: &Segmentation) -> (Vec<PhaseSpan>, Vec<ArcResult>) {
+fn arc_phases(
+    pts: &[TimedPoint],
+    seg: &Segmentation,
+    model: Option<&DragModel>,
+) -> (Vec<PhaseSpan>, Vec<ArcResult>) {
     let mut phases_out = Vec::new();
     if let Some(r) = &seg.segments.incline {
         phases_out.push(span(pts, PhaseKind::Incline, r));
@@ -556,6 +620,7 @@ fn arc_phases(pts: &[TimedPoint], seg: &Segmentation) -> (Vec<PhaseSpan>, Vec<Ar
         };
         phases_out.push(span(pts, kind, r));
         if let Some(f) = fit {
+            let in_model = model.and_then(|d| d.arc_of(r).map(|k| d.arc_chi_square[k]));
             arcs_out.push(ArcResult {
                 kind,
                 first_n: pts[r.start].n,
@@ -568,6 +633,8 @@ fn arc_phases(pts: &[TimedPoint], seg: &Segmentation) -> (Vec<PhaseSpan>, Vec<Ar
                 reduced_chi_square: f.chi_square() / (f.x.dof + f.y.dof).max(1) as f64,
                 points: r.len(),
                 dof: f.x.dof + f.y.dof,
+                drag_reduced_chi_square: in_model.map(|(c, dof)| c / dof.max(1) as f64),
+                drag_dof: in_model.map(|(_, dof)| dof),
             });
         }
     }
@@ -587,103 +654,13 @@ fn bounce_pairs(seg: &Segmentation) -> Vec<(usize, &ArcFit, &ArcFit)> {
         .collect()
 }
 
-/// The floor line: the given height, or the weighted mean contact height of the bounce `pairs`
-/// less the radius, its sigma inflated by the scatter of the contacts (reduced chi-square, at
-/// least 1). NaN without a usable contact.
-fn floor_line(
-    pts: &[TimedPoint],
-    pairs: &[(usize, &ArcFit, &ArcFit)],
-    radius_m: f64,
-    given_y_m: Option<f64>,
-    roll_sigma_rad: f64,
-) -> FloorLine {
-    if let Some(y) = given_y_m {
-        return FloorLine {
-            y_m: y,
-            sigma_m: 0.0,
-            source: "given".into(),
-            contacts: 0,
-            contacts_reduced_chi_square: None,
-        };
-    }
-    let contacts: Vec<(usize, &ArcFit, bounce::Contact)> = pairs
-        .iter()
-        .filter_map(|(k, a, b)| {
-            let gap = (pts[a.range.end - 1].t_s, pts[b.range.start].t_s);
-            bounce::contact_height(a, b, gap).map(|c| (*k, *a, c))
-        })
-        .collect();
-    match weighted_contacts(&contacts, roll_sigma_rad) {
-        Some((mean, variance, reduced)) => FloorLine {
-            y_m: mean - radius_m,
-            sigma_m: (variance * reduced.unwrap_or(1.0).max(1.0)).sqrt(),
-            source: format!("contact heights of {} bounces", contacts.len()),
-            contacts: contacts.len(),
-            contacts_reduced_chi_square: reduced,
-        },
-        None => FloorLine {
-            y_m: f64::NAN,
-            sigma_m: f64::NAN,
-            source: "no bounce: not estimated".into(),
-            contacts: 0,
-            contacts_reduced_chi_square: None,
-        },
-    }
-}
-
-/// The generalised least-squares mean of the contact heights, its variance and the reduced
-/// chi-square of the heights about it (None under 2 contacts). Consecutive bounces share the arc
-/// between them, so their heights are correlated: the covariance of every pair that shares an
-/// arc is propagated through that arc's y covariance (the arc after bounce k is the one before
-/// bounce k + 1 when their arc indexes follow). The frame was rotated by a roll known to
-/// `roll_sigma_rad`: a rotation error d tilts the floor line by d, moving the height of a contact
-/// at x by d (x - the contacts' mean x).
-fn weighted_contacts(
-    contacts: &[(usize, &ArcFit, bounce::Contact)],
-    roll_sigma_rad: f64,
-) -> Option<(f64, f64, Option<f64>)> {
-    let n = contacts.len();
-    if n == 0 {
-        return None;
-    }
-    let mut cov = DMatrix::<f64>::zeros(n, n);
-    let quadratic =
-        |a: &DVector<f64>, m: &DMatrix<f64>, b: &DVector<f64>| (a.transpose() * m * b)[(0, 0)];
-    for (i, (k, pre, c)) in contacts.iter().enumerate() {
-        cov[(i, i)] = quadratic(&c.d_pre_y, &pre.y.covariance, &c.d_pre_y)
-            + quadratic(&c.d_post_y, &c.post_covariance, &c.d_post_y);
-        if let Some((k_next, shared, next)) = contacts.get(i + 1)
-            && *k_next == k + 1
-        {
-            let v = quadratic(&c.d_post_y, &shared.y.covariance, &next.d_pre_y);
-            cov[(i, i + 1)] = v;
-            cov[(i + 1, i)] = v;
-        }
-    }
-    // Centred on the contacts: the floor is known best where they are, and the estimate does
-    // not depend on where the frame's origin lies.
-    let mean_x = contacts.iter().map(|c| c.2.x_m).sum::<f64>() / n as f64;
-    let x = DVector::from_iterator(n, contacts.iter().map(|c| c.2.x_m - mean_x));
-    cov += &x * x.transpose() * roll_sigma_rad.powi(2);
-    let inv = cov.try_inverse()?;
-    let ones = DVector::from_element(n, 1.0);
-    let h = DVector::from_iterator(n, contacts.iter().map(|c| c.2.y_m));
-    let info = (ones.transpose() * &inv * &ones)[(0, 0)];
-    if !(info.is_finite() && info > 0.0) {
-        return None;
-    }
-    let mean = (ones.transpose() * &inv * &h)[(0, 0)] / info;
-    let r = h - ones * mean;
-    let chi2 = (r.transpose() * &inv * &r)[(0, 0)];
-    Some((mean, 1.0 / info, (n > 1).then(|| chi2 / (n - 1) as f64)))
-}
-
-/// Every bounce between the arc `pairs` of `seg` against the `floor` (none when the floor is
-/// unknown), the impact speed's sigma widened by the units', with a bounce phase for each.
+/// Every bounce between the arc pairs of `contacts` against the `floor` (none when the floor is
+/// unknown), from the drag model when both arcs are in it, the impact speed's sigma widened by
+/// the units', with a bounce phase for each.
 fn measure_bounces(
     pts: &[TimedPoint],
     seg: &Segmentation,
-    pairs: &[(usize, &ArcFit, &ArcFit)],
+    contacts: &Contacts,
     floor: &FloorLine,
     radius_m: f64,
     units: &UnitSigmas,
@@ -693,8 +670,14 @@ fn measure_bounces(
     if !floor.y_m.is_finite() {
         return (bounces, phases_out);
     }
-    for (k, a, b) in pairs {
-        let mut bo = bounce::measure_bounce(a, b, floor.y_m + radius_m, floor.sigma_m);
+    let level = floor.y_m + radius_m;
+    for (k, a, b) in contacts.pairs {
+        let mut bo = bounce::measure_bounce(a, b, level, floor.sigma_m);
+        if let Some((d, j)) = contacts.in_model(a, b)
+            && let Some(m) = d.bounce(j, level, floor.sigma_m, &bo)
+        {
+            bo = m;
+        }
         bo.impact_normal_speed_sigma_mps = units.widen(
             bo.impact_normal_speed_mps,
             bo.impact_normal_speed_sigma_mps,
@@ -747,13 +730,14 @@ fn restitution_trend(bounces: &[Bounce]) -> Option<RestitutionTrend> {
 
 /// The launch off the incline and the incline against ideal rolling, when the path has an
 /// incline followed by a fitted flight arc; speeds' and the acceleration's sigmas widened by the
-/// units'.
+/// units'. With drag fitted over the first arc, the launch velocity is the drag model's at the
+/// launch time.
 fn launch_and_incline(
     pts: &[TimedPoint],
     seg: &Segmentation,
     incline_fit: Option<&incline::InclineFit>,
-    calibration: &Calibration,
-    units: &UnitSigmas,
+    (calibration, units): (&Calibration, &UnitSigmas),
+    model: Option<&DragModel>,
     options: &MeasureOptions,
 ) -> (Option<Launch>, Option<InclineResult>) {
     let k = inertia_factor(options.build, options.inner_ratio);
@@ -761,6 +745,12 @@ fn launch_and_incline(
     match (incline_fit, seg.fits.first()) {
         (Some(inc), Some((Some(arc), true))) => {
             let mut l = incline::launch(pts, inc, arc);
+            if let Some(d) = model
+                && let Some(j) = d.arc_of(&arc.range)
+            {
+                let bounds = (pts[inc.range.end - 1].t_s, pts[arc.range.start].t_s);
+                l = d.launch(j, inc.position_fits(), bounds, &l);
+            }
             l.speed_sigma_mps = units.widen(l.speed_mps, l.speed_sigma_mps, 1.0);
             let mut r = incline::incline_result(pts, inc, l.t_s, gravity.value, gravity.sigma, k);
             r.accel_sigma_mps2 = units.widen(r.accel_mps2, r.accel_sigma_mps2, 2.0);

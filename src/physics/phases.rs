@@ -13,6 +13,9 @@
 //! split between a constant-acceleration straight-line segment (x and y quadratic in t) and a
 //! flight arc, keeping the best; the incline is accepted only when it lowers the chi-square by more
 //! than 25 against one flight arc for the whole segment and its acceleration is below 0.8 g.
+//! With drag fitted, a flight's chi-square is the smaller of the parabola's and a one-arc drag
+//! fit's (gravity held, its own drag coefficient): drag's residuals on a parabola would
+//! otherwise move the boundaries to shed them.
 
 use super::TimedPoint;
 use super::fit::{CovarianceScaling, FitOptions, polynomial_fit};
@@ -51,9 +54,10 @@ impl Segmentation {
     pub fn new(
         points: &[TimedPoint],
         gravity_mps2: f64,
+        drag_gravity: Option<f64>,
         covariance: CovarianceScaling,
     ) -> Segmentation {
-        let segments = segment(points, gravity_mps2);
+        let segments = segment(points, gravity_mps2, drag_gravity);
         let fits = segments
             .arcs
             .iter()
@@ -100,8 +104,27 @@ fn second_difference(p: &[TimedPoint], i: usize) -> (f64, f64) {
     (acc, sigma)
 }
 
-/// Split the path; `gravity_mps2` is the nominal gravity in the path's units (for thresholds).
-pub(crate) fn segment(points: &[TimedPoint], gravity_mps2: f64) -> Segments {
+/// The chi-square of a flight over `points[range]`: the vacuum parabola's, or with drag fitted
+/// (`drag_gravity`, the gravity to hold) the smaller of it and a drag arc's, so that a boundary
+/// is not moved to shed the residuals that drag leaves on a parabola.
+fn flight_cost(points: &[TimedPoint], range: Range<usize>, drag_gravity: Option<f64>) -> f64 {
+    let vacuum = flight_chi_square(points, range.clone());
+    match drag_gravity {
+        Some(g) if range.len() >= 3 && vacuum > 0.0 => {
+            vacuum.min(super::drag::arc_chi_square(points, range, g))
+        }
+        _ => vacuum,
+    }
+}
+
+/// Split the path; `gravity_mps2` is the nominal gravity in the path's units (for thresholds),
+/// `drag_gravity` the gravity of the drag model when drag is fitted.
+pub(crate) fn segment(
+    points: &[TimedPoint],
+    gravity_mps2: f64,
+    drag_gravity: Option<f64>,
+) -> Segments {
+    let flight_chi_square = |p: &[TimedPoint], r: Range<usize>| flight_cost(p, r, drag_gravity);
     let n = points.len();
     let mut runs: Vec<(usize, usize)> = Vec::new();
     for i in 1..n.saturating_sub(1) {
@@ -115,7 +138,7 @@ pub(crate) fn segment(points: &[TimedPoint], gravity_mps2: f64) -> Segments {
     }
     let (incline, mut start) = match runs.first() {
         None => {
-            let (incline, start, _) = find_incline(points, 0..n, gravity_mps2);
+            let (incline, start, _) = find_incline(points, 0..n, gravity_mps2, drag_gravity);
             (incline, start)
         }
         // The incline and the first bounce together: at a low flash rate the first arc has
@@ -125,7 +148,8 @@ pub(crate) fn segment(points: &[TimedPoint], gravity_mps2: f64) -> Segments {
             let next_core_end = runs.get(1).map_or(n, |r| r.0);
             let mut best: Option<(f64, Option<Range<usize>>, usize)> = None;
             for split in a..=b + 1 {
-                let (incline, start, cost) = find_incline(points, 0..split, gravity_mps2);
+                let (incline, start, cost) =
+                    find_incline(points, 0..split, gravity_mps2, drag_gravity);
                 let cost = cost + flight_chi_square(points, split..next_core_end);
                 if best.as_ref().is_none_or(|b| cost < b.0) {
                     best = Some((cost, incline, start));
@@ -166,7 +190,9 @@ fn find_incline(
     points: &[TimedPoint],
     range: Range<usize>,
     gravity_mps2: f64,
+    drag_gravity: Option<f64>,
 ) -> (Option<Range<usize>>, usize, f64) {
+    let flight_chi_square = |p: &[TimedPoint], r: Range<usize>| flight_cost(p, r, drag_gravity);
     let (s, e) = (range.start, range.end);
     let all_flight = flight_chi_square(points, s..e);
     let mut best: Option<(f64, usize)> = None;
