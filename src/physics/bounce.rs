@@ -248,3 +248,49 @@ pub(crate) fn measure_bounce(
         drag_model: None,
     }
 }
+
+/// The restitution the same two arcs give when the arc after is moved by `shift_s` (one flash
+/// more or fewer counted across the bounce), when that count explains the images as well as
+/// the one on the path: the arcs then still cross between the last image before and the first
+/// image after, the arc before falling and the arc after rising there, below every image of
+/// both (`pre_points`, `post_points`), and at x values that agree within 3 sigma. A ball that
+/// bounces straight up has nothing but the floor to pin its contact time, so both counts can
+/// hold; None when the moved count contradicts the images.
+pub(crate) fn shifted_restitution(
+    pre: &ArcFit,
+    post: &ArcFit,
+    shift_s: f64,
+    pre_points: &[super::TimedPoint],
+    post_points: &[super::TimedPoint],
+) -> Option<f64> {
+    let c = &post.y.coefficients;
+    let moved = [
+        c[0] - c[1] * shift_s + c[2] * shift_s * shift_s,
+        c[1] - 2.0 * c[2] * shift_s,
+        c[2],
+    ];
+    let p = &pre.y.coefficients;
+    let d = [p[0] - moved[0], p[1] - moved[1], p[2] - moved[2]];
+    let (t_last, t_first) = (pre_points.last()?.t_s, post_points.first()?.t_s + shift_s);
+    let (r1, r2) = crossings(&d, 0.0);
+    let t = [r1, r2]
+        .into_iter()
+        .find(|t| t.is_finite() && *t > t_last && *t < t_first)?;
+    let (v_in, v_out) = (poly_slope(p, t), poly_slope(&moved, t));
+    let y = poly_value(p, t);
+    let lowest = pre_points
+        .iter()
+        .chain(post_points)
+        .map(|q| q.y_m - 3.0 * q.sigma_m)
+        .fold(f64::INFINITY, f64::min);
+    let x_pre = pre.x.value(t);
+    let x_post = post.x.value(t - shift_s);
+    let var = |f: &crate::physics::fit::PolyFit, t: f64| {
+        let j = nalgebra::DVector::from_vec(vec![1.0, t]);
+        (j.transpose() * &f.covariance * &j)[(0, 0)]
+    };
+    let x_sigma = (var(&pre.x, t) + var(&post.x, t - shift_s)).sqrt();
+    let consistent =
+        v_in < 0.0 && v_out > 0.0 && y <= lowest && (x_pre - x_post).abs() <= 3.0 * x_sigma;
+    consistent.then(|| -v_out / v_in)
+}

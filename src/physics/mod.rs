@@ -678,6 +678,9 @@ fn measure_bounces(
         {
             bo = m;
         }
+        if bo.drag_model.is_none() {
+            widen_for_flash_count(&mut bo, pts, a, b);
+        }
         bo.impact_normal_speed_sigma_mps = units.widen(
             bo.impact_normal_speed_mps,
             bo.impact_normal_speed_sigma_mps,
@@ -695,6 +698,29 @@ fn measure_bounces(
         bounces.push(bo);
     }
     (bounces, phases_out)
+}
+
+/// Widen a bounce's restitution sigma to cover the restitution of the other flash counts across
+/// it that the images allow as well ([`bounce::shifted_restitution`], one flash either way): a
+/// ball bouncing straight up shows no sideways motion to pin its contact time, and a missed
+/// image at the bottom leaves the count open. The sigma becomes at least the largest difference.
+fn widen_for_flash_count(bo: &mut Bounce, pts: &[TimedPoint], a: &ArcFit, b: &ArcFit) {
+    let (pre, post) = (&pts[a.range.clone()], &pts[b.range.clone()]);
+    let (Some(first), Some(last)) = (pre.first(), post.last()) else {
+        return;
+    };
+    if last.n <= first.n {
+        return;
+    }
+    let interval_s = (last.t_s - first.t_s) / (last.n - first.n) as f64;
+    let spread = [-interval_s, interval_s]
+        .into_iter()
+        .filter_map(|shift| bounce::shifted_restitution(a, b, shift, pre, post))
+        .map(|e| (e - bo.restitution).abs())
+        .fold(0.0, f64::max);
+    if spread > bo.restitution_sigma {
+        bo.restitution_sigma = spread;
+    }
 }
 
 /// Restitution against normal impact speed: a weighted straight line through the bounces
