@@ -26,11 +26,7 @@ fn incline_and_bounces_give_restitution_launch_speed_and_gravity() {
     let doc = &m.doc.measurement;
     assert!(doc.bounces.len() >= 2, "{} bounces", doc.bounces.len());
     for b in &doc.bounces {
-        let t = truth
-            .bounces
-            .iter()
-            .min_by(|x, y| (x.x_m - b.x_m).abs().total_cmp(&(y.x_m - b.x_m).abs()))
-            .unwrap();
+        let t = nearest_truth_bounce(&truth, b.x_m);
         assert!(
             (b.restitution - t.restitution).abs() < 0.01,
             "e {} vs {}",
@@ -542,11 +538,7 @@ fn drag_fitted_results_hold_to_the_truth(scene: &Scene, name: &str) {
         doc.bounces.len()
     );
     for b in &doc.bounces {
-        let t = truth
-            .bounces
-            .iter()
-            .min_by(|x, y| (x.x_m - b.x_m).abs().total_cmp(&(y.x_m - b.x_m).abs()))
-            .unwrap();
+        let t = nearest_truth_bounce(&truth, b.x_m);
         eprintln!(
             "{name}: e {:.4} +- {:.4} (truth {:.4})",
             b.restitution, b.restitution_sigma, t.restitution
@@ -599,4 +591,16 @@ fn with_drag_fitted_the_drag_model_gives_restitution_gravity_and_launch() {
     let mut drop = drift.scene();
     drop.flight.drag_per_m = 0.15;
     drag_fitted_results_hold_to_the_truth(&drop, "drop-drag.png");
+}
+
+/// The truth bounce whose contact x is nearest `x_m`.
+fn nearest_truth_bounce(
+    truth: &beadline::synth::Truth,
+    x_m: f64,
+) -> &beadline::synth::sim::BounceEvent {
+    truth
+        .bounces
+        .iter()
+        .min_by(|x, y| (x.x_m - x_m).abs().total_cmp(&(y.x_m - x_m).abs()))
+        .expect("the truth has bounces")
 }
