@@ -722,11 +722,23 @@ fn recall_against_plate(
     name: &str,
     ext: &str,
 ) -> (usize, usize, usize, beadline::core::light::Polarity) {
+    recall_of_scene(name, ext, true)
+}
+
+/// Resolvable images (in the frame, at least half a diameter from every other image) of the
+/// scene `tests/data/{name}.toml` rendered as `ext`, those found (a spot within half a radius),
+/// the spots on no image, and the polarity found; with the clean plate when `plate`.
+fn recall_of_scene(
+    name: &str,
+    ext: &str,
+    plate: bool,
+) -> (usize, usize, usize, beadline::core::light::Polarity) {
     let path = PathBuf::from(format!("tests/data/{name}.toml"));
     let scene = Scene::from_toml(&std::fs::read_to_string(&path).unwrap(), &path).unwrap();
     let dir = common::tempdir();
     let (img, clean, truth) = photo_and_plate(&scene, dir.path(), ext);
-    let report = find_spots(&img, Some(&clean), &SpotOptions::default(), None).unwrap();
+    let clean = plate.then_some(&clean);
+    let report = find_spots(&img, clean, &SpotOptions::default(), None).unwrap();
     let near = |s: &beadline::detect::Spot, f: &synth::FlashTruth| {
         (s.x_px - f.x_px).hypot(s.y_px - f.y_px) < 0.5 * f.r_px
     };
@@ -764,5 +776,34 @@ fn a_faint_dark_ball_sets_the_polarity_from_its_block_means() {
     assert_eq!(polarity, beadline::core::light::Polarity::Dark);
     assert!(resolvable >= 30, "{resolvable}");
     assert!(found * 10 >= resolvable * 9, "{found} of {resolvable}");
+    assert_eq!(stray, 0);
+}
+
+#[test]
+fn small_images_under_a_tilted_camera_keep_the_photo_s_light() {
+    // Sweep shot 45: an incline and a throw seen by a camera tilted 30 degrees, images of 4.0 px
+    // radius at the top to 7.8 px at the bottom, 8-bit PNG, no glossy floor. The shaded fits of
+    // the images under 5.2 px wandered to lights 75-116 degrees off the photo's, and 13 images
+    // were rejected as lit from elsewhere (22 found), though the photo's own light explains
+    // their pixels as well (Schwarz's criterion): now that is asked before rejecting. The first
+    // four images, 3.5 px on the incline's edge and 1.5 radii apart, are still missed (the
+    // crowded start is another issue's work).
+    let (found, resolvable, stray, _) = recall_of_scene("tilted_small_incline", "png", false);
+    assert!(resolvable >= 30, "{resolvable}");
+    assert!(found + 4 >= resolvable, "{found} of {resolvable}");
+    assert_eq!(stray, 0);
+}
+
+#[test]
+fn a_floor_edge_does_not_bend_the_radius_model() {
+    // Sweep shot 286: a 6.2 px ball over a floor whose edge gives a row of circle candidates of
+    // 6.7 px along y = 1012, and the backdrop's texture more of 4.4 to 11 px. The plane of
+    // radius against position, fitted first through all of them, leaned by 1.4 px over the
+    // height of the photo and held the two images just above the floor at 6.5 and 6.6 px, whose
+    // rims then failed the residual limit (53 of 55 found). Starting from the median, the model
+    // is flat.
+    let (found, resolvable, stray, _) = recall_of_scene("small_ball_floor_edge", "jpg", false);
+    assert!(resolvable >= 50, "{resolvable}");
+    assert_eq!(found, resolvable);
     assert_eq!(stray, 0);
 }

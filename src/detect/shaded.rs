@@ -86,6 +86,31 @@ fn shaded_basis(q: &WindowPixel, p: &[f64; 5], shading: Shading) -> [f64; SHADED
     [coverage, coverage * lambert, coverage * q.backdrop, 1.0]
 }
 
+/// Evidence that a shaded fit's light `fit_uv`, and not `other_uv`, lit the ball image in
+/// `window`: `n ln(RSS_other / RSS_fit)` at the fitted silhouette `c`, less Schwarz's penalty for the two light
+/// parameters (`2 ln n`), `n` the pixels divided by the correlation factor of their residuals
+/// (BIC, Schwarz, Ann. Statist. 6, 1978). Positive: the pixels tell the two lights apart and
+/// prefer the fit's; at or below zero, the other light explains them as well (a small image
+/// whose shading is mostly blur, where the fitted light wanders). None when either residual
+/// cannot be computed.
+pub fn light_evidence(
+    window: &[WindowPixel],
+    c: Circle,
+    fit_uv: [f64; 2],
+    other_uv: [f64; 2],
+) -> Option<f64> {
+    let mut res = Vec::with_capacity(window.len());
+    let p_fit = [c.x_px, c.y_px, c.r_px, fit_uv[0], fit_uv[1]];
+    let rss_fit = shaded_residuals(window, &p_fit, Shading::Lambert, &mut res)?;
+    let n_eff = window.len() as f64 / pixel_correlation_factor(window, &res);
+    let p_other = [c.x_px, c.y_px, c.r_px, other_uv[0], other_uv[1]];
+    let rss_other = shaded_residuals(window, &p_other, Shading::Lambert, &mut res)?;
+    if !(rss_fit > 0.0 && rss_other.is_finite() && n_eff > 1.0) {
+        return None;
+    }
+    Some(n_eff * (rss_other / rss_fit).ln() - 2.0 * n_eff.ln())
+}
+
 /// Residuals of the best linear coefficients for nonlinear parameters `p` (variable projection).
 fn shaded_residuals(
     window: &[WindowPixel],
@@ -507,6 +532,32 @@ pub fn shaded_fit(window: &[WindowPixel], start: Circle) -> Option<ShadedFit> {
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    #[test]
+    fn light_evidence_prefers_the_light_that_lit_the_pixels() {
+        // A sphere lit from upper left (u, v) = (-0.3, -0.4) with noise of 1 % of its contrast
+        // (a fixed pseudo-random sequence). Its own light against the mirror image's
+        // (-0.3, +0.4): the pixels tell them apart. A light wandered to the lower right
+        // (2, 2) against the true one: the true one explains the pixels better, no evidence.
+        let (cx, cy, r) = (20.3, 19.8, 10.0);
+        let mut window = sphere_window(cx, cy, r, [-0.3, -0.4, 1.0]);
+        let mut state = 12345u64;
+        for q in &mut window {
+            state = state
+                .wrapping_mul(6364136223846793005)
+                .wrapping_add(1442695040888963407);
+            q.value += 0.01 * (((state >> 11) as f64 / (1u64 << 53) as f64) - 0.5) * 12f64.sqrt();
+        }
+        let circle = Circle {
+            x_px: cx,
+            y_px: cy,
+            r_px: r,
+        };
+        let own = light_evidence(&window, circle, [-0.3, -0.4], [-0.3, 0.4]).unwrap();
+        assert!(own > 50.0, "{own}");
+        let wandered = light_evidence(&window, circle, [2.0, 2.0], [-0.3, -0.4]).unwrap();
+        assert!(wandered < 0.0, "{wandered}");
+    }
 
     /// A Lambertian sphere under a distant light plus fill, imaged by integrating the irradiance
     /// over each pixel numerically (16 x 16 samples; the fit's model shades at the pixel centre

@@ -11,7 +11,7 @@
 use crate::core::light::Tone;
 use crate::core::stats::{MAD_TO_SIGMA, upper_median};
 use crate::detect::circle::Circle;
-use crate::detect::shaded::{ShadedFit, WindowPixel, shaded_fit};
+use crate::detect::shaded::{ShadedFit, WindowPixel, light_evidence, shaded_fit};
 use crate::detect::{Reason, Rejected, Spot, SpotReport};
 use crate::image::background::Background;
 use crate::image::load::Photo;
@@ -20,7 +20,7 @@ use rayon::prelude::*;
 /// Refine the spots of `report` by their shading (see the module's doc).
 pub fn refine_spots(photo: &Photo, bg: &Background, tone: Tone, report: &mut SpotReport) {
     let shaded = shade_spots(photo, bg, tone, &mut report.spots, report.systematic_px);
-    let shaded = drop_other_lights(report, shaded);
+    let shaded = drop_other_lights(photo, bg, tone, report, shaded);
     correct_edge_fits(report, &shaded);
 }
 
@@ -135,7 +135,13 @@ const LIGHT_AGREE_DEG: f64 = 5.0;
 /// Spots whose shading shows another light than the photo's (the median of its shaded fits'
 /// light directions, when they agree on it) are rejected as `OtherLight`; the shaded fits of the
 /// rest are returned.
-fn drop_other_lights(report: &mut SpotReport, shaded: Vec<Option<Shaded>>) -> Vec<Option<Shaded>> {
+fn drop_other_lights(
+    photo: &Photo,
+    bg: &Background,
+    tone: Tone,
+    report: &mut SpotReport,
+    shaded: Vec<Option<Shaded>>,
+) -> Vec<Option<Shaded>> {
     let lights: Vec<&Shaded> = shaded.iter().flatten().collect();
     if lights.len() < LIGHT_MIN_FITS {
         return shaded;
@@ -159,14 +165,18 @@ fn drop_other_lights(report: &mut SpotReport, shaded: Vec<Option<Shaded>>) -> Ve
     }
     let spots = std::mem::take(&mut report.spots);
     let mut kept = Vec::with_capacity(shaded.len());
-    for (s, f) in spots.into_iter().zip(shaded) {
+    for (s, f) in spots.iter().zip(shaded) {
+        let s = *s;
         if let Some(f) = &f {
             let angle_deg = angle_deg(f);
             // The direction turns by about d(u, v) / (1 + u^2 + v^2) radians.
             let [a, b] = f.light_uv;
             let sigma_deg =
                 (f.light_sigma[0].hypot(f.light_sigma[1]) / (1.0 + a * a + b * b)).to_degrees();
-            if angle_deg > OTHER_LIGHT_DEG && angle_deg > 4.0 * sigma_deg {
+            let other = angle_deg > OTHER_LIGHT_DEG
+                && angle_deg > 4.0 * sigma_deg
+                && lit_otherwise(photo, bg, tone, &spots, &s, f.light_uv, [u, v]);
+            if other {
                 report.rejected.push(Rejected {
                     x_px: s.x_px,
                     y_px: s.y_px,
@@ -181,6 +191,29 @@ fn drop_other_lights(report: &mut SpotReport, shaded: Vec<Option<Shaded>>) -> Ve
         kept.push(f);
     }
     kept
+}
+
+/// The pixels of spot `s` tell its fitted light `fit_uv` apart from the photo's `photo_uv`
+/// ([`light_evidence`] positive). A small image's shading is mostly blur: its fitted light may
+/// wander far from the photo's while the photo's light explains its pixels as well; such an
+/// image is not lit from elsewhere.
+fn lit_otherwise(
+    photo: &Photo,
+    bg: &Background,
+    tone: Tone,
+    spots: &[Spot],
+    s: &Spot,
+    fit_uv: [f64; 2],
+    photo_uv: [f64; 2],
+) -> bool {
+    let circle = Circle {
+        x_px: s.x_px,
+        y_px: s.y_px,
+        r_px: s.r_px,
+    };
+    shade_window(photo, bg, tone, spots, s)
+        .and_then(|window| light_evidence(&window, circle, fit_uv, photo_uv))
+        .is_none_or(|evidence| evidence > 0.0)
 }
 
 /// Fewest shaded fits that measure the photo's edge bias for the others.

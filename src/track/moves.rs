@@ -32,13 +32,14 @@ impl Finder<'_> {
     pub(super) fn moves(&self, walk: &Walk) -> Vec<Move> {
         let mut moves = Vec::new();
         let arc_len = walk.nodes.len() - walk.arc_start;
+        let r_px = self.local_radius(walk);
         for k in 1..=1 + self.limits.max_misses as i64 {
             let Some((p, gate_px)) = self.predict(walk, k) else {
                 break;
             };
             let miss_cost = MISS_COST * (k - 1) as f64;
             for nb in self.tree.within(p[0], p[1], gate_px, BRANCH + 8) {
-                if !self.usable(nb.index) {
+                if !self.usable(nb.index, r_px) {
                     continue;
                 }
                 let r = nb.distance_px / gate_px;
@@ -88,6 +89,7 @@ impl Finder<'_> {
             return;
         }
         let origin = self.pos(last.item);
+        let r_px = self.local_radius(walk);
         for k in 1..=1 + self.limits.max_misses as i64 {
             let kf = k as f64;
             // The implied acceleration may exceed the measured one by the centres' noise.
@@ -101,7 +103,7 @@ impl Finder<'_> {
             let coast = add(origin, scale(v, kf));
             let reach_px = (norm(a) + slack) * kf * kf / 2.0;
             for nb in self.tree.within(coast[0], coast[1], reach_px, WINDOW_QUERY) {
-                if !self.usable(nb.index) {
+                if !self.usable(nb.index, r_px) {
                     continue;
                 }
                 let implied = scale(sub(self.pos(nb.index), coast), 2.0 / (kf * kf));
@@ -153,6 +155,7 @@ impl Finder<'_> {
             }
             let window = Window {
                 origin,
+                r_px: self.local_radius(walk),
                 down,
                 u: span(e * q_u, q_u / e, gate_px),
                 w: [-q_w / e - gate_px, q_w + gate_px],
@@ -187,6 +190,7 @@ impl Finder<'_> {
             let gate_px = self.limits.gate_radii * self.r_ref_px * kf * 2.0 + 3.0 * self.sigma_px;
             let window = Window {
                 origin,
+                r_px: self.local_radius(walk),
                 down,
                 u: span(e * v_u * kf, v_u * kf / e, gate_px),
                 w: [-(v_w + a_px) * kf / e - gate_px, a_px * kf * kf + gate_px],
@@ -225,7 +229,12 @@ impl Finder<'_> {
         {
             let d = sub(self.pos(nb.index), window.origin);
             let (du, dw) = (dot(d, side), dot(d, window.down));
-            if self.usable(nb.index) && du >= u[0] && du <= u[1] && dw >= w[0] && dw <= w[1] {
+            if self.usable(nb.index, window.r_px)
+                && du >= u[0]
+                && du <= u[1]
+                && dw >= w[0]
+                && dw <= w[1]
+            {
                 found.push((nb.index, du));
             }
         }
@@ -297,6 +306,8 @@ impl Finder<'_> {
 #[derive(Debug, Clone, Copy)]
 struct Window {
     origin: [f64; 2],
+    /// The ball's radius where the walk is, pixels.
+    r_px: f64,
     down: [f64; 2],
     u: [f64; 2],
     w: [f64; 2],

@@ -121,9 +121,22 @@ impl Finder<'_> {
         (self.items[item].r_px - r_px).abs() <= self.limits.radius_tolerance * r_px
     }
 
-    /// Spot `item` is free and has the radius of the path being built.
-    pub(super) fn usable(&self, item: usize) -> bool {
-        !self.taken[item] && self.radius_fits(item, self.r_ref_px)
+    /// Spot `item` is free and has the radius `r_px` of the path where the walk is.
+    pub(super) fn usable(&self, item: usize, r_px: f64) -> bool {
+        !self.taken[item] && self.radius_fits(item, r_px)
+    }
+
+    /// The ball's radius where the walk is: the median of its last three images' radii. Under
+    /// a tilted camera the images grow along the path (a third from one end to the other at
+    /// 30 degrees), so each step is compared with its neighbours, not with the seed.
+    pub(super) fn local_radius(&self, walk: &Walk) -> f64 {
+        let from = walk.nodes.len().saturating_sub(3);
+        let mut radii: Vec<f64> = walk.nodes[from..]
+            .iter()
+            .map(|node| self.items[node.item].r_px)
+            .collect();
+        radii.sort_by(f64::total_cmp);
+        radii.get(radii.len() / 2).copied().unwrap_or(self.r_ref_px)
     }
 
     /// Walk forward and backward from a seed; the spots it takes are released afterwards.
