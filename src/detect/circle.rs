@@ -195,21 +195,21 @@ pub struct CircleFit {
 }
 
 /// Angular bins of the rim coverage.
-const BINS: usize = 64;
+pub const RIM_BINS: usize = 64;
 
-/// Rim coverage of `c`: the fraction of [`BINS`] angular bins holding a point of `pts` within
+/// Rim coverage of `c`: the fraction of [`RIM_BINS`] angular bins holding a point of `pts` within
 /// 1 px of the rim.
 pub(crate) fn rim_coverage(c: &Circle, pts: &[[f64; 2]]) -> f64 {
-    let mut bins = [false; BINS];
+    let mut bins = [false; RIM_BINS];
     for q in pts {
         let (dx, dy) = (q[0] - c.x_px, q[1] - c.y_px);
         if (dist(dx, dy) - c.r_px).abs() <= 1.0 {
             let a = dy.atan2(dx) + std::f64::consts::PI;
-            let b = ((a / (2.0 * std::f64::consts::PI)) * BINS as f64) as usize % BINS;
+            let b = ((a / (2.0 * std::f64::consts::PI)) * RIM_BINS as f64) as usize % RIM_BINS;
             bins[b] = true;
         }
     }
-    bins.iter().filter(|b| **b).count() as f64 / BINS as f64
+    bins.iter().filter(|b| **b).count() as f64 / RIM_BINS as f64
 }
 
 /// Variance inflation for residuals correlated along the rim (AR(1) model).

@@ -10,8 +10,8 @@
 //! model so far, starting from the median radius.
 
 use crate::core::stats::MAD_TO_SIGMA;
-use crate::detect::WELL_COVERED;
 use crate::detect::circle::{Circle, CircleFit};
+use crate::detect::well_covered;
 use crate::image::threshold::Blobs;
 use nalgebra::{Matrix3, Vector3};
 
@@ -35,10 +35,33 @@ pub fn auto_radius(blobs: &Blobs) -> Option<(f64, f64)> {
         return None;
     }
     radii.sort_by(f64::total_cmp);
-    let r0 = radii[radii.len() / 2];
+    let r0 = ball_radius(&radii);
     let slack = blobs.block_px as f64;
     Some(((low * r0 - slack).max(3.0), 1.25 * r0 + slack + 1.0))
 }
+
+/// The ball's radius among blob radii sorted increasing: their median, unless blobs over
+/// twice that radius are at least [`BALL_IMAGES_MIN`] and hold [`BIG_AREA_RATIO`] times the
+/// area of the rest; then the median of those. The noise of a difference of two JPEGs (a dark
+/// ball against its clean plate) leaves hundreds of small compact specks that outnumber the
+/// ball's images; a round object beside the path is one to three blobs, not four.
+fn ball_radius(radii: &[f64]) -> f64 {
+    let median = radii[radii.len() / 2];
+    let split = radii.partition_point(|&r| r <= 2.0 * median);
+    let (small, big) = radii.split_at(split);
+    let area = |rs: &[f64]| rs.iter().map(|r| r * r).sum::<f64>();
+    if big.len() >= BALL_IMAGES_MIN && area(big) >= BIG_AREA_RATIO * area(small) {
+        big[big.len() / 2]
+    } else {
+        median
+    }
+}
+
+/// Fewest blobs of one size taken for the ball's images over a crowd of smaller specks.
+const BALL_IMAGES_MIN: usize = 4;
+
+/// Area ratio by which larger blobs outweigh a crowd of smaller specks (see [`ball_radius`]).
+const BIG_AREA_RATIO: f64 = 3.0;
 
 /// With no round blob alone (every image touches a neighbour: a chain rolling down an incline),
 /// the radius of each blob of four blocks or more is that of the largest disc inside it: its
@@ -166,7 +189,7 @@ impl RadiusModel {
 }
 
 /// The photo's radius model and common radius (the median of the model at the circles' centres)
-/// from the first fits: those well covered (rim coverage at least [`WELL_COVERED`]) with a radius
+/// from the first fits: those well covered (see [`well_covered`]) with a radius
 /// in `r_min_px..=r_max_px`, or, with none, all with coverage at least `min_score`. None when no
 /// fit qualifies.
 pub fn learn(
@@ -178,7 +201,9 @@ pub fn learn(
         .iter()
         .flatten()
         .filter(|f| {
-            f.coverage >= WELL_COVERED && f.circle.r_px >= r_min_px && f.circle.r_px <= r_max_px
+            well_covered(f.coverage, f.circle.r_px)
+                && f.circle.r_px >= r_min_px
+                && f.circle.r_px <= r_max_px
         })
         .map(|f| f.circle)
         .collect();
@@ -202,6 +227,23 @@ pub fn learn(
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    #[test]
+    fn specks_do_not_outvote_the_ball() {
+        // The sweep's shot 275: a dark ball of 47 px against its clean plate, both JPEG q65;
+        // the difference's noise leaves hundreds of compact specks of 2 to 5 px beside the 19
+        // images (blob radii in pixels, sorted as auto_radius sorts them).
+        let mut radii: Vec<f64> = (0..300).map(|i| 2.0 + 3.0 * (i % 7) as f64 / 6.0).collect();
+        radii.extend((0..19).map(|i| 45.0 + 0.2 * i as f64));
+        radii.sort_by(f64::total_cmp);
+        let r = ball_radius(&radii);
+        assert!((45.0..=49.0).contains(&r), "{r}");
+        // Thirty images of 6 px with three round objects of 20 px beside them: the images.
+        let mut radii: Vec<f64> = (0..30).map(|i| 5.8 + 0.01 * i as f64).collect();
+        radii.extend([19.0, 20.0, 21.0]);
+        let r = ball_radius(&radii);
+        assert!((5.8..=6.1).contains(&r), "{r}");
+    }
 
     #[test]
     fn junk_circles_do_not_tilt_the_radius_plane() {

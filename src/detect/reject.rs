@@ -10,7 +10,7 @@
 use crate::core::stats::upper_median;
 use crate::detect::circle::CircleFit;
 use crate::detect::radius::RadiusModel;
-use crate::detect::{Spot, SpotOptions, SpotReport, WELL_COVERED};
+use crate::detect::{Spot, SpotOptions, SpotReport, well_covered};
 use serde::{Deserialize, Serialize};
 
 /// Why a candidate was not kept as a ball image.
@@ -49,7 +49,7 @@ pub struct Rejected {
 }
 
 /// A rim is weak when its RMS residual exceeds `max_rms_px` or this many times the median RMS
-/// of the photo's well-covered images (rim coverage at least [`WELL_COVERED`]), whichever is
+/// of the photo's well-covered images (see [`well_covered`]), whichever is
 /// larger.
 pub const RMS_OVER_MEDIAN: f64 = 2.5;
 
@@ -91,10 +91,12 @@ impl Limits {
         // Faint images (a dark ball against its clean plate, JPEG noise) have noisier rims than
         // the fixed limit allows; a shape that is not round stands out from the photo's own
         // images.
-        let well_covered = plausible.iter().filter(|f| f.coverage >= WELL_COVERED);
+        let well = plausible
+            .iter()
+            .filter(|f| well_covered(f.coverage, f.circle.r_px));
         let rms_limit = options
             .max_rms_px
-            .max(RMS_OVER_MEDIAN * upper_median(well_covered.map(|f| f.rms_px).collect()));
+            .max(RMS_OVER_MEDIAN * upper_median(well.map(|f| f.rms_px).collect()));
         Limits {
             median_strength,
             rms_limit,
