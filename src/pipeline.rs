@@ -12,7 +12,7 @@ use crate::error::{Error, Result, TrackError, positive};
 use crate::physics::frame::ResultFrame;
 use crate::physics::{self, MeasureOptions, Quantity, TimedPoint, Unknown};
 use crate::report::measure::{MeasureDoc, PathEntry, WorldOrigin};
-use crate::track::{self, PathOptions, PathResult};
+use crate::track::{self, PathOptions, PathResult, StrayReason};
 use std::path::{Path, PathBuf};
 
 /// Where the pixel-to-metre scale comes from.
@@ -254,6 +254,7 @@ fn image_checks(
         best.points.len(),
         paths.strays.len(),
         on_others,
+        strays_on_track(report, paths),
     )];
     let (w, h) = (report.width_px as f64, report.height_px as f64);
     // Radii in metres at the final scale: the local scale of the calibration, corrected by the
@@ -273,6 +274,41 @@ fn image_checks(
         out.push(physics::checks::ball_size(2.0 * median, d));
     }
     out
+}
+
+/// Strays of the ball's size (not refused for their radius) whose centre lies within one radius
+/// of the best path's track: the segments between its consecutive images.
+fn strays_on_track(report: &SpotReport, paths: &PathResult) -> usize {
+    let points = &paths.paths[0].points;
+    let Some(r_px) = crate::core::stats::finite_median(points.iter().map(|p| p.r_px).collect())
+    else {
+        return 0;
+    };
+    let near_segment = |x: f64, y: f64| {
+        points.windows(2).any(|pair| {
+            let (a, b) = (&pair[0], &pair[1]);
+            let (dx, dy) = (b.x_px - a.x_px, b.y_px - a.y_px);
+            let len2 = dx * dx + dy * dy;
+            let t = if len2 > 0.0 {
+                (((x - a.x_px) * dx + (y - a.y_px) * dy) / len2).clamp(0.0, 1.0)
+            } else {
+                0.0
+            };
+            (x - a.x_px - t * dx).hypot(y - a.y_px - t * dy) < r_px
+        })
+    };
+    paths
+        .strays
+        .iter()
+        .filter(|s| matches!(s.reason, StrayReason::OffPath | StrayReason::TooFewPoints))
+        .filter(|s| {
+            report
+                .spots
+                .get(s.spot_index)
+                .is_some_and(|spot| (spot.r_px - r_px).abs() <= 0.25 * r_px)
+        })
+        .filter(|s| near_segment(s.x_px, s.y_px))
+        .count()
 }
 
 /// How far the ball falls from rest in one flash, pixels (half of g dt^2 s with the nominal

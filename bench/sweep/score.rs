@@ -213,21 +213,26 @@ fn count(truth: &Truth, ok: &[bool], phase: Phase, arc: usize) -> usize {
 }
 
 /// Offset k such that path flash n is truth flash n + k: the one with the smallest median pixel
-/// distance.
+/// distance over the path images it lays on a truth flash (at least 80 % of them: a path that
+/// runs past the exposure's last flash onto something else is still laid where it fits).
 fn flash_offset(truth: &Truth, m: &Measured) -> Option<usize> {
     let path = &m.doc.path;
-    let last_n = path.last()?.n;
-    (0..truth.flashes.len().saturating_sub(last_n))
-        .map(|k| {
+    let total = truth.flashes.len();
+    (0..total)
+        .filter_map(|k| {
             let mut d: Vec<f64> = path
                 .iter()
+                .filter(|p| p.n + k < total)
                 .map(|p| {
                     let f = &truth.flashes[p.n + k];
                     (f.x_px - p.x_px).hypot(f.y_px - p.y_px)
                 })
                 .collect();
+            if d.is_empty() || 5 * d.len() < 4 * path.len() {
+                return None;
+            }
             d.sort_by(f64::total_cmp);
-            (k, d[d.len() / 2])
+            Some((k, d[d.len() / 2]))
         })
         .min_by(|a, b| a.1.total_cmp(&b.1))
         .map(|(k, _)| k)
