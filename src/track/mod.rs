@@ -40,7 +40,10 @@
 //!    `1 / min_restitution` (the walk runs both ways in time, so a bounce scales the speed by
 //!    `e` or `1 / e`). The next point is looked for in a window set by the speed before the
 //!    bounce, and from then on the prediction uses the acceleration from before the bounce.
-//!    The windows' candidates are compared by walking on, as in step 4.
+//!    The windows' candidates are compared by walking on, as in step 4. The step that gives
+//!    the new arc its third image must give it the acceleration of the arc before the bounce
+//!    (measured on four images or more) within 60 %: one gravity, changed by air drag; a
+//!    count of two flashes per step would change it fourfold.
 //! 6. Start: the end of the path nearest (along the path) to [`PathOptions::start`] when given.
 //!    Otherwise bounces decide: a bounce loses energy, so the top of the arc after a bounce
 //!    (the vertex of the parabola through its first three points) is lower than the top of

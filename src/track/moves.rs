@@ -20,6 +20,11 @@ const MISS_COST: f64 = 0.3;
 /// Acceleration of a ball rolling down an incline, as a fraction of gravity, assumed for the
 /// first step after the end of an incline is found (mid-range: 0.1 at 10 degrees, 0.6 at 60).
 const ROLLING_FRACTION: f64 = 0.3;
+/// Largest relative difference between the acceleration of the arcs on the two sides of a
+/// bounce, as the walk sees it. Air drag adds to gravity on the way up and takes from it on the
+/// way down (by half of it for a drag force of a quarter of the weight); a flash miscounted on
+/// every step changes it by a factor of four (0.75 or 3 relative).
+const GRAVITY_TOLERANCE: f64 = 0.6;
 /// Cosine of the largest angle between the measured acceleration and image down for a bounce.
 const MIN_DOWN_COS: f64 = 0.85;
 
@@ -39,7 +44,7 @@ impl Finder<'_> {
             };
             let miss_cost = MISS_COST * (k - 1) as f64;
             for nb in self.tree.within(p[0], p[1], gate_px, BRANCH + 8) {
-                if !self.usable(nb.index, r_px) {
+                if !self.usable(nb.index, r_px) || !self.same_gravity(walk, nb.index, k) {
                     continue;
                 }
                 let r = nb.distance_px / gate_px;
@@ -68,6 +73,36 @@ impl Finder<'_> {
         moves.sort_by(|a, b| a.cost.total_cmp(&b.cost));
         moves.truncate(keep);
         moves
+    }
+
+    /// A step that gives the arc after a bounce its third image must give it the acceleration
+    /// of the arc before the bounce (one gravity, when that arc had four images or more), within [`GRAVITY_TOLERANCE`] and three sigmas
+    /// of the centres. Two images after a bounce leave their flash count open; the big gate of
+    /// a two-point prediction then lets a chain at every other flash (a quarter of the
+    /// acceleration per step squared) or at twice the rate through, which stays consistent
+    /// with itself ever after. True for any other step.
+    fn same_gravity(&self, walk: &Walk, item: usize, k: i64) -> bool {
+        let arc = &walk.nodes[walk.arc_start..];
+        // The arc before the bounce measured its acceleration from four images or more (not
+        // carried over from further back, not guessed at the end of an incline).
+        let before = arc
+            .first()
+            .map_or(0, |a| walk.arc_start - a.saved.arc_start);
+        let (Some(carried), true) = (
+            walk.carried_accel,
+            arc.len() == 2 && arc[0].bounce_before && before >= 4,
+        ) else {
+            return true;
+        };
+        let (t0, t1) = (arc[0].n as f64, arc[1].n as f64);
+        let t2 = t1 + k as f64;
+        let (p0, p1, p2) = (self.pos(arc[0].item), self.pos(arc[1].item), self.pos(item));
+        let d1 = scale(sub(p1, p0), 1.0 / (t1 - t0));
+        let d2 = scale(sub(p2, p1), 1.0 / (t2 - t1));
+        let implied = scale(sub(d2, d1), 2.0 / (t2 - t0));
+        // The second divided difference of three unit-spaced centres has sigma sqrt(6) sigma.
+        let noise_px = 3.0 * 6f64.sqrt() * self.sigma_px;
+        norm(sub(implied, carried)) <= GRAVITY_TOLERANCE * norm(carried) + noise_px
     }
 
     /// Steps from the last point of a flight arc where the acceleration changes: the ball
