@@ -35,6 +35,16 @@ fn settings(rate_hz: f64, diameter_m: f64) -> MeasureSettings {
     }
 }
 
+/// A value is right as the sweep scores it: within 3 sigma or 1 % of the truth.
+fn right_by_sweep_rule(measured: f64, sigma: f64, truth: f64) -> bool {
+    (measured - truth).abs() <= (3.0 * sigma).max(0.01 * truth.abs())
+}
+
+/// Some check of the measurement warned or failed.
+fn any_check_not_passed(ms: &Measurement) -> bool {
+    beadline::physics::checks::worst(&ms.checks) != beadline::physics::checks::CheckOutcome::Pass
+}
+
 /// The truth flash nearest to a path point, if its centre is within half a radius.
 fn truth_n(truth: &Truth, x_px: f64, y_px: f64) -> Option<usize> {
     let distance = |f: &&FlashTruth| (f.x_px - x_px).hypot(f.y_px - y_px);
@@ -292,13 +302,9 @@ fn straight_down_drops_are_right_or_flagged() {
         };
         let m = measure_photo(&photo, &settings).expect("a measurement");
         let ms = &m.doc.measurement;
-        let flagged = beadline::physics::checks::worst(&ms.checks)
-            != beadline::physics::checks::CheckOutcome::Pass;
-        let right = |measured: f64, sigma: f64, truth: f64| {
-            (measured - truth).abs() <= (3.0 * sigma).max(0.01 * truth.abs())
-        };
+        let flagged = any_check_not_passed(ms);
         let g = &ms.gravity_mps2;
-        let g_right = right(g.value, g.sigma, truth.gravity_mps2);
+        let g_right = right_by_sweep_rule(g.value, g.sigma, truth.gravity_mps2);
         gravity_right += usize::from(g_right);
         assert!(
             g_right || flagged,
@@ -307,7 +313,7 @@ fn straight_down_drops_are_right_or_flagged() {
             g.sigma
         );
         for b in &ms.bounces {
-            let e_right = right(b.restitution, b.restitution_sigma, restitution);
+            let e_right = right_by_sweep_rule(b.restitution, b.restitution_sigma, restitution);
             assert!(
                 e_right || flagged,
                 "{rate_hz} Hz: e {} +- {} unflagged (truth {restitution})",
@@ -337,20 +343,16 @@ fn a_rebound_threaded_through_merged_images_is_flagged() {
     let settings = settings(scene.strobe.rate_hz, scene.ball.diameter_m);
     let m = measure_photo(&photo, &settings).expect("a measurement");
     let ms = &m.doc.measurement;
-    let flagged = beadline::physics::checks::worst(&ms.checks)
-        != beadline::physics::checks::CheckOutcome::Pass;
-    let right = |measured: f64, sigma: f64, truth: f64| {
-        (measured - truth).abs() <= (3.0 * sigma).max(0.01 * truth.abs())
-    };
+    let flagged = any_check_not_passed(ms);
     let e_truth = truth.bounces[0].restitution;
     for b in &ms.bounces {
         assert!(
-            right(b.restitution, b.restitution_sigma, e_truth) || flagged,
+            right_by_sweep_rule(b.restitution, b.restitution_sigma, e_truth) || flagged,
             "e {} +- {} unflagged (truth {e_truth})",
             b.restitution,
             b.restitution_sigma
         );
     }
     let g = &ms.gravity_mps2;
-    assert!(right(g.value, g.sigma, truth.gravity_mps2) || flagged);
+    assert!(right_by_sweep_rule(g.value, g.sigma, truth.gravity_mps2) || flagged);
 }
