@@ -388,6 +388,16 @@ fn measure_validated(
         |d| d / 2.0,
     );
     let first = physics::measure(&points, radius_m, &physics_options)?;
+    let (points, first, paths) = match physics::recount::recount_incline(&points, &first, |p| {
+        physics::measure(p, radius_m, &physics_options)
+    }) {
+        Some((recounted, m)) => {
+            let paths = renumbered(paths, &recounted);
+            (recounted, m, paths)
+        }
+        None => (points, first, paths),
+    };
+    let best = &paths.paths[0];
     let frame = ResultFrame::of(&first, &physics_options);
     let plane = matches!(settings.scale, Some(ScaleSource::Plane(_)));
     // The ball's radius in the result frame: a given diameter is true metres already.
@@ -434,6 +444,21 @@ fn measure_validated(
         paths,
         calibration,
     })
+}
+
+/// `paths` with its best path's flash indices taken from `recounted` (its points in the same
+/// order) and its missing flashes listed again.
+fn renumbered(mut paths: PathResult, recounted: &[TimedPoint]) -> PathResult {
+    let best = &mut paths.paths[0];
+    for (p, t) in best.points.iter_mut().zip(recounted) {
+        p.n = t.n;
+    }
+    best.missing = best
+        .points
+        .windows(2)
+        .flat_map(|pair| pair[0].n + 1..pair[1].n)
+        .collect();
+    paths
 }
 
 /// The height origin when no floor was found.

@@ -32,6 +32,7 @@ mod floor;
 pub mod frame;
 pub mod incline;
 pub mod phases;
+pub mod recount;
 
 use crate::core::SCHEMA_VERSION;
 use crate::core::ball::{Build, inertia_factor};
