@@ -35,6 +35,13 @@ fn settings(rate_hz: f64, diameter_m: f64) -> MeasureSettings {
     }
 }
 
+/// The scene `tests/data/{name}.toml` (a sweep shot kept as a regression case).
+fn test_scene(name: &str) -> Scene {
+    let path = format!("tests/data/{name}.toml");
+    let path = Path::new(&path);
+    Scene::from_toml(&std::fs::read_to_string(path).unwrap(), path).unwrap()
+}
+
 /// A value is right as the sweep scores it: within 3 sigma or 1 % of the truth.
 fn right_by_sweep_rule(measured: f64, sigma: f64, truth: f64) -> bool {
     (measured - truth).abs() <= (3.0 * sigma).max(0.01 * truth.abs())
@@ -336,8 +343,7 @@ fn a_rebound_threaded_through_merged_images_is_flagged() {
     // merged blobs (truth flashes 27, 30, 26) and read e = 0.319 +- 0.049 for a true 0.491.
     // Against the rendered truth: every value is right or a check warns (here: four strays of
     // the ball's size lie on the path's own track).
-    let path = Path::new("tests/data/drop_small_merged.toml");
-    let scene = Scene::from_toml(&std::fs::read_to_string(path).unwrap(), path).unwrap();
+    let scene = test_scene("drop_small_merged");
     let dir = common::tempdir();
     let (photo, truth) = shoot(&scene, dir.path(), "drop.jpg");
     let settings = settings(scene.strobe.rate_hz, scene.ball.diameter_m);
@@ -365,8 +371,7 @@ fn the_flashes_of_a_crowded_incline_start_are_counted_from_the_launch() {
     // incline then came out at -2.04 m/s^2 (truth 2.93) and the launch at 0.255 m/s (truth
     // 0.269), both flagged by the launch checks. Recounted until the incline meets the flight,
     // both are right against the rendered truth (within 3 sigma or 1 %, the sweep's rule).
-    let path = Path::new("tests/data/incline_crowded_start.toml");
-    let scene = Scene::from_toml(&std::fs::read_to_string(path).unwrap(), path).unwrap();
+    let scene = test_scene("incline_crowded_start");
     let dir = common::tempdir();
     let (photo, truth) = shoot(&scene, dir.path(), "incline.png");
     let settings = MeasureSettings {
