@@ -33,6 +33,7 @@ pub mod frame;
 pub mod incline;
 pub mod phases;
 pub mod recount;
+pub mod systematic;
 
 use crate::core::SCHEMA_VERSION;
 use crate::core::ball::{Build, inertia_factor};
@@ -403,7 +404,7 @@ fn validate(points: &[TimedPoint], radius_m: f64, options: &MeasureOptions) -> R
 /// the path; segment the calibrated path with the calibrated gravity for the final phases and
 /// arcs; then the optional drag fit (its gravity the headline one when gravity is estimated),
 /// the floor and the bounces, the restitution trend, the incline and the launch and the
-/// acceptance verdicts.
+/// acceptance verdicts; last, the relative systematic joins the sigmas ([`systematic`]).
 pub fn measure(
     points: &[TimedPoint],
     radius_m: f64,
@@ -487,6 +488,7 @@ pub fn measure(
     m.checks = checks::physics_checks(&m, options.unknown, options.fit_drag);
     m.checks
         .extend(checks::above_floor(&pts, &m.floor, radius_m));
+    systematic::add_systematic(&mut m, options.unknown);
     Ok(m)
 }
 

@@ -18,7 +18,11 @@
 //! from the first arc on) with at least `MIN_NEW` spots not yet explained. Arcs are put in
 //! time order by their tops (each bounce loses height) and joined at the floor: the time offset
 //! between two arcs is the whole number of flashes that makes them cross lowest while still
-//! below every image of both (the ball meets the floor after its lowest images). A spot that
+//! below every image of both (the ball meets the floor after its lowest images). The first arc
+//! in time is turned so that its better-seen side falls, and keeps of its rising side only the
+//! hits that run unbroken up to its top and are not also hits of the falling side (a ball
+//! released near a whole or half flash before its first image puts the parabola's mirror
+//! half on the fall's own images). A spot that
 //! two predicted images share (nearer than `SHARED_R * r` to each other) is left off the path:
 //! its centre is a blend of both.
 
@@ -315,6 +319,54 @@ fn flipped(arc: &Arc, hits: &Hits) -> (Arc, Hits) {
     (arc, hits)
 }
 
+/// Distinct spots among `hits` on the falling side of `arc` (flash count past its top), and
+/// on its rising side.
+fn sides(arc: &Arc, hits: &Hits) -> (Vec<usize>, Vec<usize>) {
+    let top = arc.top_n();
+    let distinct = |falling: bool| {
+        let mut js: Vec<usize> = hits
+            .iter()
+            .filter(|h| (h.0 as f64 >= top) == falling)
+            .map(|h| h.1)
+            .collect();
+        js.sort_unstable();
+        js.dedup();
+        js
+    };
+    (distinct(true), distinct(false))
+}
+
+/// The first arc turned so that its better-seen side falls (a drop falls from its release; a
+/// throw upwards falls further than it rose), with the hits the ball can have made: all of the
+/// falling side, and of the rising side only the run of hit flashes that reaches up to the top
+/// without a break, less the spots the falling side also hits. A ball released near a flash
+/// (or half a flash) before its first image puts the mirror image of every falling flash on a
+/// spot, and the arc's far rising side reaches images of a later arc: neither is the ball.
+fn first_arc(arc: &Arc, hits: &Hits) -> (Arc, Hits) {
+    let (falling, rising) = sides(arc, hits);
+    let (arc, hits) = if rising.len() > falling.len() {
+        flipped(arc, hits)
+    } else {
+        (*arc, hits.clone())
+    };
+    (arc, falling_side(&arc, hits))
+}
+
+/// The hits of a first arc already turned (see [`first_arc`]).
+fn falling_side(arc: &Arc, hits: Hits) -> Hits {
+    let top = arc.top_n();
+    let (falling, _) = sides(arc, &hits);
+    let hit_at = |n: i64| hits.iter().any(|h| h.0 == n);
+    let mut run_start = top.ceil() as i64;
+    while hit_at(run_start - 1) && (run_start - 1) as f64 <= top {
+        run_start -= 1;
+    }
+    hits.iter()
+        .copied()
+        .filter(|h| h.0 as f64 >= top || (h.0 >= run_start && !falling.contains(&h.1)))
+        .collect()
+}
+
 /// Arcs in time order, each turned the way time runs, with the flash offset of each (global
 /// n = local n + offset); None when two arcs cannot be joined at the floor.
 fn join(line: &Line, mut arcs: Vec<(Arc, Hits)>) -> Option<Vec<(Arc, i64)>> {
@@ -322,11 +374,7 @@ fn join(line: &Line, mut arcs: Vec<(Arc, Hits)>) -> Option<Vec<(Arc, i64)>> {
     arcs.sort_by(|a, b| a.0.top_s().total_cmp(&b.0.top_s()));
     let (first, first_hits) = arcs.first()?;
     // The first arc ends falling towards the floor.
-    let (first, first_hits) = if first_hits.last()?.0 as f64 >= first.top_n() {
-        (*first, first_hits.clone())
-    } else {
-        flipped(first, first_hits)
-    };
+    let (first, first_hits) = first_arc(first, first_hits);
     let mut out = vec![(first, first_hits, 0_i64)];
     for (arc, hits) in &arcs[1..] {
         let (before, hits_before, offset_before) = out.last()?.clone();
@@ -423,8 +471,13 @@ fn crossing(before: &Arc, ob: i64, after: &Arc, oa: i64) -> Option<(f64, f64)> {
 fn assign(line: &Line, arcs: &[(Arc, i64)]) -> Chain {
     let mut predicted: Vec<(i64, f64)> = Vec::new();
     let mut per_arc = Vec::new();
-    for (arc, offset) in arcs {
+    for (w, (arc, offset)) in arcs.iter().enumerate() {
         let (hits, _) = support(line, arc);
+        let hits = if w == 0 {
+            falling_side(arc, hits)
+        } else {
+            hits
+        };
         let hits: Vec<(i64, usize)> = hits.iter().map(|&(n, j)| (n + offset, j)).collect();
         for &(n, _) in &hits {
             predicted.push((n, arc.at((n - offset) as f64)));
