@@ -5,7 +5,8 @@
 //! full resolution after a decimated search, the circles found there). Comes out: a [`Region`]
 //! with sub-pixel edge points and [`Candidate`] centres.
 //!
-//! Method: the ball-positive difference is smoothed with a Gaussian (imageproc), differentiated
+//! Method: the ball-positive difference is smoothed with a Gaussian (imageproc; in a faint photo
+//! by a fifth of the radius, see [`FAINT_SNR`] and the search's choice), differentiated
 //! with the Sobel operator, thinned by non-maximum suppression along the gradient, and each edge
 //! point is placed at sub-pixel precision by a parabola through the gradient magnitude across the
 //! edge (after Devernay, "A non-maxima suppression method for edge detection with sub-pixel
@@ -86,6 +87,9 @@ pub struct Region {
     pub height: usize,
     /// Edge points inside the crop.
     pub edges: Vec<EdgePoint>,
+    /// The crop's strongest gradients (99.5th percentile of the magnitude) in noise sigmas of
+    /// one gradient component: about 3.5 where no rim stands above the noise.
+    pub rim_snr: f32,
 }
 
 /// A centre proposed by the vote.
@@ -115,12 +119,14 @@ pub fn prepare_region(
     let y1 = (blob.y1 + margin_px).min(photo.height - 1);
     let (w, h) = (x1 - x0 + 1, y1 - y0 + 1);
     let raw = difference_crop(photo, background, x0, y0, w, h);
+    let (edges, rim_snr) = edge_points(&raw, (w, h, x0, y0), options, |_, _| true);
     Region {
         x0,
         y0,
         width: w,
         height: h,
-        edges: edge_points(&raw, w, h, x0, y0, options, |_, _| true),
+        edges,
+        rim_snr,
     }
 }
 
@@ -145,6 +151,7 @@ pub fn prepare_band(
     // Room for the smoothing, the Sobel operator and the sub-pixel peak's neighbours.
     const HALO_PX: f64 = 6.0;
     let mut edges = Vec::new();
+    let mut rim_snr = 0f32;
     for (k, &(cx, cy, r)) in circles.iter().enumerate() {
         let reach = r + band_px + HALO_PX;
         let clip = |v: f64, lo: usize, hi: usize| (v.max(lo as f64).min(hi as f64)) as usize;
@@ -156,7 +163,9 @@ pub fn prepare_band(
         let (w, h) = (cx1 - cx0 + 1, cy1 - cy0 + 1);
         let raw = difference_crop(photo, background, cx0, cy0, w, h);
         let keep = |x: f64, y: f64| in_band(k, x, y) && (0..k).all(|j| !in_band(j, x, y));
-        edges.extend(edge_points(&raw, w, h, cx0, cy0, options, keep));
+        let (own, snr) = edge_points(&raw, (w, h, cx0, cy0), options, keep);
+        edges.extend(own);
+        rim_snr = rim_snr.max(snr);
     }
     Region {
         x0,
@@ -164,6 +173,7 @@ pub fn prepare_band(
         width: x1 - x0 + 1,
         height: y1 - y0 + 1,
         edges,
+        rim_snr,
     }
 }
 
@@ -189,18 +199,19 @@ fn difference_crop(
     raw
 }
 
-/// Sub-pixel edge points of a difference crop (`w` x `h` at `x0`, `y0` in the photo) whose
-/// photo position (x, y) passes `keep`.
-fn edge_points(
-    raw: &[f32],
-    w: usize,
-    h: usize,
-    x0: usize,
-    y0: usize,
-    options: &HoughOptions,
-    keep: impl Fn(f64, f64) -> bool,
-) -> Vec<EdgePoint> {
-    let (gx, gy, mag) = gradient(raw, w, h, options.smooth_px);
+/// A region whose strongest gradients stand less than this many noise sigmas above zero shows
+/// no rim at the default smoothing (the noise's own tail reaches about 3.5).
+pub const FAINT_SNR: f32 = 6.0;
+/// Smoothing of a faint photo's crops, as a fraction of the ball radius (a Gaussian keeps a
+/// disc's centre and moves its rim inwards by about sigma^2 / 2r: 0.02 r at this fraction).
+pub const FAINT_SMOOTH_R: f64 = 0.2;
+/// Largest smoothing of a faint photo's crops, pixels.
+pub const FAINT_SMOOTH_MAX_PX: f64 = 4.0;
+
+/// The smoothed gradient of a crop (x, y, magnitude), the noise sigma of one component and the
+/// 99.5th percentile of the magnitude.
+fn smoothed_gradient(raw: &[f32], w: usize, h: usize, sigma_px: f32) -> GradientCrop {
+    let (gx, gy, mag) = gradient(raw, w, h, sigma_px);
     // Noise of one gradient component: robust sigma over the crop (edges are a minority).
     let mut sample: Vec<f32> = gx.iter().step_by(3).copied().collect();
     let sigma_g = robust_sigma(&mut sample).max(1e-7);
@@ -211,7 +222,40 @@ fn edge_points(
     } else {
         *sorted.select_nth_unstable_by(k, f32::total_cmp).1
     };
-    drop(sorted);
+    GradientCrop {
+        gx,
+        gy,
+        mag,
+        sigma_g,
+        strong,
+    }
+}
+
+/// A crop's gradient and its statistics (see [`smoothed_gradient`]).
+struct GradientCrop {
+    gx: Vec<f32>,
+    gy: Vec<f32>,
+    mag: Vec<f32>,
+    sigma_g: f32,
+    strong: f32,
+}
+
+/// Sub-pixel edge points of a difference crop (`w` x `h` at `x0`, `y0` in the photo) whose
+/// photo position (x, y) passes `keep`, and the crop's rim signal-to-noise ([`Region::rim_snr`]).
+fn edge_points(
+    raw: &[f32],
+    (w, h, x0, y0): (usize, usize, usize, usize),
+    options: &HoughOptions,
+    keep: impl Fn(f64, f64) -> bool,
+) -> (Vec<EdgePoint>, f32) {
+    let GradientCrop {
+        gx,
+        gy,
+        mag,
+        sigma_g,
+        strong,
+    } = smoothed_gradient(raw, w, h, options.smooth_px);
+    let rim_snr = strong / sigma_g;
     let threshold = (options.edge_k_sigma * sigma_g).max(0.08 * strong);
     let mut edges = Vec::new();
     let mut at_pixel = Vec::new();
@@ -258,7 +302,7 @@ fn edge_points(
             }
         }
     }
-    edges
+    (edges, rim_snr)
 }
 
 /// Smoothed (Gaussian, sigma in pixels; 0 = none) Sobel gradient of a crop: x, y components and

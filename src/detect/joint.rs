@@ -201,6 +201,7 @@ fn second_chance(
             width: region.width,
             height: region.height,
             edges,
+            rim_snr: region.rim_snr,
         };
         let mut c = start;
         let mut fit = None;

@@ -163,12 +163,22 @@ pub fn find_regions(
     let df = d as f64;
     let (rw_min, rw_max) = (r_min / df, r_max / df);
     let margin = (0.5 * rw_max + 4.0).ceil() as usize;
-    let work_regions: Vec<Region> = work
-        .blobs
-        .blobs
-        .par_iter()
-        .map(|b| hough::prepare_region(work_photo, work_bg, b, margin, &options.hough))
-        .collect();
+    let prepare = |hough_options: &hough::HoughOptions| -> Vec<Region> {
+        work.blobs
+            .blobs
+            .par_iter()
+            .map(|b| hough::prepare_region(work_photo, work_bg, b, margin, hough_options))
+            .collect()
+    };
+    let mut work_regions = prepare(&options.hough);
+    let faint = faint_options(&work.blobs, &work_regions, rw_min, &options.hough);
+    let options = &SpotOptions {
+        hough: faint.unwrap_or(options.hough),
+        ..*options
+    };
+    if faint.is_some() {
+        work_regions = prepare(&options.hough);
+    }
     let voted: Vec<(Vec<Candidate>, Vec<f32>)> = work_regions
         .par_iter()
         .map(|r| hough::vote(r, rw_min, rw_max, &options.hough, debug.is_some()))
@@ -181,6 +191,35 @@ pub fn find_regions(
     } else {
         full_resolution_regions(photo, bg, &work_regions, &voted, d, (r_min, r_max), options)
     }
+}
+
+/// The Hough options of a faint photo, None for any other: when most ball-sized blobs (area at
+/// least half a disc of the smallest searched radius `rw_min`, in work pixels) show no rim above
+/// the noise at the default smoothing ([`hough::FAINT_SNR`]), every crop is smoothed by
+/// [`hough::FAINT_SMOOTH_R`] of that radius. A dark ball on a bright backdrop dims it by one
+/// flash's light: its rims can sit below the pixels' noise while their length holds plenty of
+/// signal. The decision is the photo's, so that a normal photo's specks and faint corners keep
+/// the default.
+fn faint_options(
+    blobs: &Blobs,
+    regions: &[Region],
+    rw_min: f64,
+    hough_options: &hough::HoughOptions,
+) -> Option<hough::HoughOptions> {
+    let disc = 0.5 * std::f64::consts::PI * rw_min * rw_min;
+    let (faint, sized) = blobs
+        .blobs
+        .iter()
+        .zip(regions)
+        .filter(|(b, _)| b.area_px >= disc)
+        .fold((0usize, 0usize), |(f, n), (_, r)| {
+            (f + usize::from(r.rim_snr < hough::FAINT_SNR), n + 1)
+        });
+    let smooth_px = (hough::FAINT_SMOOTH_R * rw_min).min(hough::FAINT_SMOOTH_MAX_PX) as f32;
+    (2 * faint > sized && smooth_px > hough_options.smooth_px).then_some(hough::HoughOptions {
+        smooth_px,
+        ..*hough_options
+    })
 }
 
 /// Each region's accumulator (decimated by `d`) into the debug votes, full resolution: the
