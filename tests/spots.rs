@@ -827,7 +827,7 @@ fn a_dark_ball_fainter_than_the_noise_is_found_along_its_rim() {
     // of a bright backdrop (16-bit PNG, clean plate). Each image dims the backdrop by one
     // flash's light: the threshold finds every image on its block means, but at the default
     // smoothing the rims' gradient stood no higher than the noise's own tail (its 99.5th
-    // percentile at 3.5 to 4.3 noise sigmas) and 0 images were found. Smoothed by a fifth of the
+    // percentile at 3.5 to 4.3 noise sigmas) and 0 images were found. Smoothed by a fifth of the smallest
     // radius, a faint crop's rim stands out. Against the rendered truth: every resolvable image
     // found, none where there is no image.
     let (found, resolvable, stray, _) = recall_against_plate("dark_faint_incline", "png");

@@ -5,12 +5,12 @@
 //! full resolution after a decimated search, the circles found there). Comes out: a [`Region`]
 //! with sub-pixel edge points and [`Candidate`] centres.
 //!
-//! Method: the ball-positive difference is smoothed with a Gaussian (imageproc; in a faint photo
-//! by a fifth of the radius, see [`FAINT_SNR`] and the search's choice), differentiated
-//! with the Sobel operator, thinned by non-maximum suppression along the gradient, and each edge
-//! point is placed at sub-pixel precision by a parabola through the gradient magnitude across the
-//! edge (after Devernay, "A non-maxima suppression method for edge detection with sub-pixel
-//! accuracy", INRIA RR-2724, 1995). Where the rims are strong (median edge magnitude at least
+//! Method: the ball-positive difference is smoothed with a Gaussian (imageproc; in a faint
+//! photo by a fifth of the smallest radius searched, see [`FAINT_SNR`] and the search's
+//! choice), differentiated with the Sobel operator, thinned by non-maximum suppression along
+//! the gradient, and each edge point is placed at sub-pixel precision by a parabola through the
+//! gradient magnitude across the edge (after Devernay, "A non-maxima suppression method for
+//! edge detection with sub-pixel accuracy", INRIA RR-2724, 1995). Where the rims are strong (median edge magnitude at least
 //! `fine_snr` noise sigmas), the points are placed again, by the same parabola, on the gradient
 //! of the unsmoothed difference: without smoothing, a lit ball's limb shading does not pull them
 //! inwards. Every edge point then votes, with bilinear splatting, for the
@@ -202,9 +202,19 @@ fn difference_crop(
 /// A region whose strongest gradients stand less than this many noise sigmas above zero shows
 /// no rim at the default smoothing (the noise's own tail reaches about 3.5).
 pub const FAINT_SNR: f32 = 6.0;
-/// Smoothing of a faint photo's crops, as a fraction of the ball radius (a Gaussian keeps a
-/// disc's centre and moves its rim inwards by about sigma^2 / 2r: 0.02 r at this fraction).
+/// Smoothing of a faint photo's crops, as a fraction of the smallest radius searched. A
+/// Gaussian keeps a disc's centre and moves its rim inwards by about sigma^2 / 2r (from
+/// memory; checked by integrating the smoothed gradient of a disc: 0.377 px at r = 21,
+/// sigma = 4 against 0.381), which the radius keeps (for a small ball, the shaded fit's edge
+/// bias corrects it); heavier smoothing merges images closer than about a radius (0.4 lost 4 of
+/// the 37 images of the dark demo, crowded at its start).
 pub const FAINT_SMOOTH_R: f64 = 0.2;
+/// Smallest smoothing of a faint photo's crops, pixels: a small ball's rim holds few pixels
+/// and needs more than a fifth of its radius (sweep shot 103, r 6 px: 3 of 60 images found at
+/// 0.2 r, 49 at 1.6 px).
+pub const FAINT_SMOOTH_MIN_PX: f64 = 1.6;
+/// Largest smoothing of a faint photo's crops, as a fraction of the smallest radius searched.
+pub const FAINT_SMOOTH_SMALL_R: f64 = 0.4;
 /// Largest smoothing of a faint photo's crops, pixels.
 pub const FAINT_SMOOTH_MAX_PX: f64 = 4.0;
 
@@ -241,7 +251,8 @@ struct GradientCrop {
 }
 
 /// Sub-pixel edge points of a difference crop (`w` x `h` at `x0`, `y0` in the photo) whose
-/// photo position (x, y) passes `keep`, and the crop's rim signal-to-noise ([`Region::rim_snr`]).
+/// photo position (x, y) passes `keep`, and the crop's rim signal-to-noise
+/// ([`Region::rim_snr`]).
 fn edge_points(
     raw: &[f32],
     (w, h, x0, y0): (usize, usize, usize, usize),

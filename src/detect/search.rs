@@ -196,8 +196,9 @@ pub fn find_regions(
 /// The Hough options of a faint photo, None for any other: when most ball-sized blobs (area at
 /// least half a disc of the smallest searched radius `rw_min`, in work pixels) show no rim above
 /// the noise at the default smoothing ([`hough::FAINT_SNR`]), every crop is smoothed by
-/// [`hough::FAINT_SMOOTH_R`] of that radius. A dark ball on a bright backdrop dims it by one
-/// flash's light: its rims can sit below the pixels' noise while their length holds plenty of
+/// [`hough::FAINT_SMOOTH_R`] of that radius, at least [`hough::FAINT_SMOOTH_MIN_PX`] while that
+/// is under [`hough::FAINT_SMOOTH_SMALL_R`] of it, at most [`hough::FAINT_SMOOTH_MAX_PX`]. A
+/// dark ball on a bright backdrop dims it by one flash's light: its rims can sit below the pixels' noise while their length holds plenty of
 /// signal. The decision is the photo's, so that a normal photo's specks and faint corners keep
 /// the default.
 fn faint_options(
@@ -215,7 +216,10 @@ fn faint_options(
         .fold((0usize, 0usize), |(f, n), (_, r)| {
             (f + usize::from(r.rim_snr < hough::FAINT_SNR), n + 1)
         });
-    let smooth_px = (hough::FAINT_SMOOTH_R * rw_min).min(hough::FAINT_SMOOTH_MAX_PX) as f32;
+    let smooth_px = (hough::FAINT_SMOOTH_R * rw_min)
+        .max(hough::FAINT_SMOOTH_MIN_PX)
+        .min(hough::FAINT_SMOOTH_SMALL_R * rw_min)
+        .min(hough::FAINT_SMOOTH_MAX_PX) as f32;
     (2 * faint > sized && smooth_px > hough_options.smooth_px).then_some(hough::HoughOptions {
         smooth_px,
         ..*hough_options
