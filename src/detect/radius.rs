@@ -12,7 +12,7 @@
 use crate::core::stats::MAD_TO_SIGMA;
 use crate::detect::circle::{Circle, CircleFit};
 use crate::detect::well_covered;
-use crate::image::threshold::Blobs;
+use crate::image::threshold::{Blob, Blobs};
 use nalgebra::{Matrix3, Vector3};
 
 /// Estimate the radius range to search, pixels of the blobs' photo, from the compact, isolated
@@ -28,30 +28,47 @@ pub fn auto_radius(blobs: &Blobs) -> Option<(f64, f64)> {
     // the chain rests on (an incline's edge): its radius is an upper bound more than a measure.
     let mut low = 0.8;
     if radii.is_empty() {
-        radii = inscribed_radii(blobs);
+        radii = inscribed_radii(blobs, |_| true)
+            .iter()
+            .map(|c| c.0)
+            .collect();
         low = 0.5;
-    }
-    if radii.is_empty() {
-        return None;
+        if radii.is_empty() {
+            return None;
+        }
+        radii.sort_by(f64::total_cmp);
+        let r0 = ball_radius(&radii, &[]);
+        let slack = blobs.block_px as f64;
+        return Some(((low * r0 - slack).max(3.0), 1.25 * r0 + slack + 1.0));
     }
     radii.sort_by(f64::total_cmp);
-    let r0 = ball_radius(&radii);
+    let chains = inscribed_radii(blobs, |b| !b.is_compact());
+    let r0 = ball_radius(&radii, &chains);
     let slack = blobs.block_px as f64;
     Some(((low * r0 - slack).max(3.0), 1.25 * r0 + slack + 1.0))
 }
 
-/// The ball's radius among blob radii sorted increasing: their median, unless blobs over
-/// twice that radius are at least [`BALL_IMAGES_MIN`] and hold [`BIG_AREA_RATIO`] times the
-/// area of the rest; then the median of those. The noise of a difference of two JPEGs (a dark
-/// ball against its clean plate) leaves hundreds of small compact specks that outnumber the
-/// ball's images; a round object beside the path is one to three blobs, not four.
-fn ball_radius(radii: &[f64]) -> f64 {
+/// The ball's radius among compact blob radii sorted increasing: their median, unless blobs
+/// over twice that radius (compact ones, and the `chains`, blobs of overlapping images, by
+/// their inscribed radius and area) are at least [`BALL_IMAGES_MIN`] and hold
+/// [`BIG_AREA_RATIO`] times the area of the smaller compact ones; then the median of those
+/// radii. The noise of a difference of two
+/// JPEGs (a dark ball against its clean plate) leaves hundreds of small compact specks that
+/// outnumber the ball's images, whose images may all touch a neighbour but three (sweep shot 39:
+/// 3 compact images of 28 px among 146 specks, and chains); a round object beside the path is
+/// one to three blobs, not four.
+fn ball_radius(radii: &[f64], chains: &[(f64, f64)]) -> f64 {
     let median = radii[radii.len() / 2];
     let split = radii.partition_point(|&r| r <= 2.0 * median);
     let (small, big) = radii.split_at(split);
-    let area = |rs: &[f64]| rs.iter().map(|r| r * r).sum::<f64>();
-    if big.len() >= BALL_IMAGES_MIN && area(big) >= BIG_AREA_RATIO * area(small) {
-        big[big.len() / 2]
+    let area = |rs: &[f64]| std::f64::consts::PI * rs.iter().map(|r| r * r).sum::<f64>();
+    let big_chains: Vec<&(f64, f64)> = chains.iter().filter(|c| c.0 > 2.0 * median).collect();
+    let mut big_radii: Vec<f64> = big.to_vec();
+    big_radii.extend(big_chains.iter().map(|c| c.0));
+    big_radii.sort_by(f64::total_cmp);
+    let big_area = area(big) + big_chains.iter().map(|c| c.1).sum::<f64>();
+    if big_radii.len() >= BALL_IMAGES_MIN && big_area >= BIG_AREA_RATIO * area(small) {
+        big_radii[big_radii.len() / 2]
     } else {
         median
     }
@@ -64,11 +81,12 @@ const BALL_IMAGES_MIN: usize = 4;
 const BIG_AREA_RATIO: f64 = 3.0;
 
 /// With no round blob alone (every image touches a neighbour: a chain rolling down an incline),
-/// the radius of each blob of four blocks or more is that of the largest disc inside it: its
+/// the radius of each blob of four blocks or more (with its area, pixels) is that of the
+/// largest disc inside it: its
 /// largest Euclidean distance to a block outside (Felzenszwalb & Huttenlocher, "Distance
 /// transforms of sampled functions", via imageproc). A chain of overlapping images of radius r
 /// is 2 r wide, so that disc has radius r; a bounding box would give the chain's extent.
-fn inscribed_radii(blobs: &Blobs) -> Vec<f64> {
+fn inscribed_radii(blobs: &Blobs, keep: impl Fn(&Blob) -> bool) -> Vec<(f64, f64)> {
     use image::{GrayImage, Luma};
     let (w, h) = blobs.mask.dimensions();
     // Outside the photo counts as outside the blob: a one-block frame around the mask.
@@ -83,7 +101,7 @@ fn inscribed_radii(blobs: &Blobs) -> Vec<f64> {
     blobs
         .blobs
         .iter()
-        .filter(|blob| blob.blocks >= 4)
+        .filter(|blob| blob.blocks >= 4 && keep(blob))
         .filter_map(|blob| {
             let (bx0, by0) = (blob.x0 / b, blob.y0 / b);
             let (bx1, by1) = (
@@ -96,7 +114,7 @@ fn inscribed_radii(blobs: &Blobs) -> Vec<f64> {
                     best = best.max(d2.get_pixel(bx as u32 + 1, by as u32 + 1)[0]);
                 }
             }
-            (best > 0.0).then(|| best.sqrt() * b as f64)
+            (best > 0.0).then(|| (best.sqrt() * b as f64, blob.area_px))
         })
         .collect()
 }
@@ -236,13 +254,24 @@ mod tests {
         let mut radii: Vec<f64> = (0..300).map(|i| 2.0 + 3.0 * (i % 7) as f64 / 6.0).collect();
         radii.extend((0..19).map(|i| 45.0 + 0.2 * i as f64));
         radii.sort_by(f64::total_cmp);
-        let r = ball_radius(&radii);
+        let r = ball_radius(&radii, &[]);
         assert!((45.0..=49.0).contains(&r), "{r}");
         // Thirty images of 6 px with three round objects of 20 px beside them: the images.
         let mut radii: Vec<f64> = (0..30).map(|i| 5.8 + 0.01 * i as f64).collect();
         radii.extend([19.0, 20.0, 21.0]);
-        let r = ball_radius(&radii);
+        let r = ball_radius(&radii, &[]);
         assert!((5.8..=6.1).contains(&r), "{r}");
+        // The sweep's shot 39: a dark ball of 22 px, JPEG photo and plate; 146 specks of 2 to
+        // 11.5 px, 3 compact images of 28 px (with the threshold's halo), the rest of the
+        // images in one chain (inscribed radius 24.7 px, about 40 images' area): the images.
+        let mut radii: Vec<f64> = (0..146).map(|i| 2.0 + 0.065 * i as f64).collect();
+        radii.extend([28.0, 28.0, 28.5]);
+        let chain_area = 40.0 * std::f64::consts::PI * 22.0 * 22.0;
+        let r = ball_radius(&radii, &[(24.7, chain_area), (4.0, 60.0)]);
+        assert!((24.0..=28.5).contains(&r), "{r}");
+        // Without the chain, three images do not outvote the specks (they could be objects).
+        let r = ball_radius(&radii, &[]);
+        assert!(r < 12.0, "{r}");
     }
 
     #[test]
