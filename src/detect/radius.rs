@@ -26,23 +26,19 @@ pub fn auto_radius(blobs: &Blobs) -> Option<(f64, f64)> {
         .collect();
     // A chain's largest inscribed disc also takes in the halo of the threshold and whatever
     // the chain rests on (an incline's edge): its radius is an upper bound more than a measure.
-    let mut low = 0.8;
-    if radii.is_empty() {
+    let (low, chains) = if radii.is_empty() {
         radii = inscribed_radii(blobs, |_| true)
             .iter()
             .map(|c| c.0)
             .collect();
-        low = 0.5;
-        if radii.is_empty() {
-            return None;
-        }
-        radii.sort_by(f64::total_cmp);
-        let r0 = ball_radius(&radii, &[]);
-        let slack = blobs.block_px as f64;
-        return Some(((low * r0 - slack).max(3.0), 1.25 * r0 + slack + 1.0));
+        (0.5, Vec::new())
+    } else {
+        (0.8, inscribed_radii(blobs, |b| !b.is_compact()))
+    };
+    if radii.is_empty() {
+        return None;
     }
     radii.sort_by(f64::total_cmp);
-    let chains = inscribed_radii(blobs, |b| !b.is_compact());
     let r0 = ball_radius(&radii, &chains);
     let slack = blobs.block_px as f64;
     Some(((low * r0 - slack).max(3.0), 1.25 * r0 + slack + 1.0))
@@ -52,11 +48,10 @@ pub fn auto_radius(blobs: &Blobs) -> Option<(f64, f64)> {
 /// over twice that radius (compact ones, and the `chains`, blobs of overlapping images, by
 /// their inscribed radius and area) are at least [`BALL_IMAGES_MIN`] and hold
 /// [`BIG_AREA_RATIO`] times the area of the smaller compact ones; then the median of those
-/// radii. The noise of a difference of two
-/// JPEGs (a dark ball against its clean plate) leaves hundreds of small compact specks that
-/// outnumber the ball's images, whose images may all touch a neighbour but three (sweep shot 39:
-/// 3 compact images of 28 px among 146 specks, and chains); a round object beside the path is
-/// one to three blobs, not four.
+/// radii. The noise of a difference of two JPEGs (a dark ball against its clean plate) leaves
+/// hundreds of small compact specks that outnumber the ball's images, of which all but three
+/// may touch a neighbour (sweep shot 39: 3 compact images of 28 px among 146 specks, and
+/// chains); a round object beside the path is one to three blobs, not four.
 fn ball_radius(radii: &[f64], chains: &[(f64, f64)]) -> f64 {
     let median = radii[radii.len() / 2];
     let split = radii.partition_point(|&r| r <= 2.0 * median);
