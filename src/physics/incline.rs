@@ -153,6 +153,25 @@ fn unclamped_launch_time(p: &[f64], bounds: (f64, f64)) -> f64 {
     }
 }
 
+/// Whether the velocities of an incline on `points[s..m]` and a flight arc on `points[m..e]`
+/// agree best between the incline's last image and the arc's first (None when either phase is
+/// too short to fit). An image taken a small part of a flash interval from the launch fits both
+/// phases within its noise; only this test tells on which side of the launch it lies.
+pub(crate) fn launch_in_span(points: &[TimedPoint], s: usize, m: usize, e: usize) -> Option<bool> {
+    if m < s + 3 || e < m + 3 {
+        return None;
+    }
+    let inc = fit_incline(points, s..m, CovarianceScaling::Sigmas).ok()?;
+    let arc = super::flight::fit_arc(points, m..e, CovarianceScaling::Sigmas).ok()?;
+    let mut p = Vec::new();
+    for f in [&inc.x, &inc.y, &arc.x, &arc.y] {
+        p.extend_from_slice(&f.coefficients);
+    }
+    let bounds = (points[m - 1].t_s, points[m].t_s);
+    let t = unclamped_launch_time(&p, bounds);
+    Some(t.is_finite() && t >= bounds.0 && t <= bounds.1)
+}
+
 /// Launch between the incline and the first arc, with 1-sigma from both fits' covariances.
 pub(crate) fn launch(points: &[TimedPoint], inc: &InclineFit, arc: &ArcFit) -> Launch {
     let bounds = (points[inc.range.end - 1].t_s, points[arc.range.start].t_s);

@@ -13,6 +13,9 @@
 //! split between a constant-acceleration straight-line segment (x and y quadratic in t) and a
 //! flight arc, keeping the best; the incline is accepted only when it lowers the chi-square by more
 //! than 25 against one flight arc for the whole segment and its acceleration is below 0.8 g.
+//! An image a small part of a flash interval from the launch fits both phases; when the cheapest
+//! end puts the launch (where the phases' velocities agree) outside the gap between their
+//! images and the neighbouring end, nearly as cheap, puts it inside, the neighbour wins.
 //! With drag fitted, a flight's chi-square is the smaller of the parabola's and a one-arc drag
 //! fit's (gravity held, its own drag coefficient): drag's residuals on a parabola would
 //! otherwise move the boundaries to shed them.
@@ -24,6 +27,15 @@ use std::ops::Range;
 
 /// Chi-square improvement an incline must bring over pure flight to be accepted.
 const INCLINE_DELTA_CHI2: f64 = 25.0;
+
+/// Chi-square an incline end one image off may cost over the cheapest and still be preferred for
+/// putting the launch between its phases' images, in units of the cheapest's reduced chi-square
+/// (ours: the neighbouring ends of the sweep's incline shots cost 0.2 to 8 more).
+const LAUNCH_SIDE_DELTA_CHI2: f64 = 9.0;
+
+/// Above this reduced chi-square the phases do not fit their points (a miscounted flash, another
+/// ball's image) and where their velocities meet says nothing about the launch's side.
+const LAUNCH_SIDE_MAX_REDUCED: f64 = 4.0;
 
 /// The path split into an optional incline and consecutive arcs (bounce k lies between arcs k and
 /// k + 1).
@@ -195,20 +207,48 @@ fn find_incline(
     let flight_chi_square = |p: &[TimedPoint], r: Range<usize>| flight_cost(p, r, drag_gravity);
     let (s, e) = (range.start, range.end);
     let all_flight = flight_chi_square(points, s..e);
-    let mut best: Option<(f64, usize)> = None;
+    let mut costs: Vec<(f64, usize)> = Vec::new();
     for m in s + 3..=e.saturating_sub(2) {
         let Some(line) = line_model(&points[s..m]) else {
             continue;
         };
-        let cost = line.chi_square + flight_chi_square(points, m..e);
-        if best.is_none_or(|b| cost < b.0) && line.accel_mps2 < 0.8 * gravity_mps2 {
-            best = Some((cost, m));
+        if line.accel_mps2 < 0.8 * gravity_mps2 {
+            costs.push((line.chi_square + flight_chi_square(points, m..e), m));
         }
     }
-    match best {
+    match launch_side(points, (s, e), &costs) {
         Some((cost, m)) if cost + INCLINE_DELTA_CHI2 < all_flight => (Some(s..m), m, cost),
         _ => (None, s, all_flight),
     }
+}
+
+/// The incline's end among the candidate `(cost, end)` splits of `points[s..e]`: the cheapest,
+/// unless its launch (where the two phases' velocities agree) lies outside the gap between its
+/// phases' images while a neighbouring end, within [`LAUNCH_SIDE_DELTA_CHI2`] times the reduced
+/// chi-square of the cheapest (itself at most [`LAUNCH_SIDE_MAX_REDUCED`]), puts it inside: an
+/// image a small part of a flash interval from the launch fits either phase, and the chi-square
+/// alone picks its side by noise.
+fn launch_side(
+    points: &[TimedPoint],
+    (s, e): (usize, usize),
+    costs: &[(f64, usize)],
+) -> Option<(f64, usize)> {
+    let best = *costs.iter().min_by(|a, b| a.0.total_cmp(&b.0))?;
+    if super::incline::launch_in_span(points, s, best.1, e) != Some(false) {
+        return Some(best);
+    }
+    // Both coordinates of every point; the line (2), its parabola (3) and the arc (5) fitted.
+    let reduced = best.0 / (2 * (e - s)).saturating_sub(10).max(1) as f64;
+    if reduced > LAUNCH_SIDE_MAX_REDUCED {
+        return Some(best);
+    }
+    let delta = LAUNCH_SIDE_DELTA_CHI2 * reduced.max(1.0);
+    costs
+        .iter()
+        .filter(|c| c.1.abs_diff(best.1) == 1 && c.0 <= best.0 + delta)
+        .find(|c| super::incline::launch_in_span(points, s, c.1, e) == Some(true))
+        .copied()
+        .or(Some(best))
 }
 
 /// A straight line with constant acceleration along it, fitted to points.
