@@ -419,7 +419,13 @@ impl DragModel {
             } else {
                 0.0
             },
+            hold_shift_mps: 0.0,
+            hold_shift_deg: 0.0,
         }
+        .with_hold_shift({
+            let s = self.state_at(&q[6..], k, t_raw);
+            [s[2], s[3]]
+        })
     }
 }
 

@@ -127,6 +127,27 @@ pub struct Launch {
     /// velocities agree best, in 1-sigmas of that time (0 inside): the launch time is then held
     /// at the span's end, and an image is probably in the wrong phase.
     pub outside_span_z: f64,
+    /// How much the speed changes between that held time and where the velocities agree (m/s;
+    /// 0 inside the span). An image near the launch fits either phase, so either time may be
+    /// the launch: the shift joins the speed's 1-sigma in quadrature after the checks (which
+    /// judge the statistical sigmas).
+    pub hold_shift_mps: f64,
+    /// The direction's shift likewise, degrees.
+    pub hold_shift_deg: f64,
+}
+
+impl Launch {
+    /// The launch with its hold shifts against the velocity `raw` where the phases' velocities
+    /// agree (a non-finite velocity leaves them 0).
+    pub(crate) fn with_hold_shift(mut self, raw: [f64; 2]) -> Launch {
+        let speed = raw[0].hypot(raw[1]);
+        let angle = raw[1].atan2(raw[0]).to_degrees();
+        if speed.is_finite() && angle.is_finite() {
+            self.hold_shift_mps = (speed - self.speed_mps).abs();
+            self.hold_shift_deg = (angle - self.angle_deg).abs();
+        }
+        self
+    }
 }
 
 /// Launch time from the parameter vector [incline x (3), incline y (3), arc x (2), arc y (3)].
@@ -228,7 +249,13 @@ pub(crate) fn launch(points: &[TimedPoint], inc: &InclineFit, arc: &ArcFit) -> L
             let outside = (bounds.0 - t_raw).max(t_raw - bounds.1).max(0.0);
             outside / propagate_sigma(raw, &p, &covariance)
         },
+        hold_shift_mps: 0.0,
+        hold_shift_deg: 0.0,
     }
+    .with_hold_shift({
+        let t_raw = unclamped_launch_time(&p, bounds);
+        [p[7], p[9] + 2.0 * p[10] * t_raw]
+    })
 }
 
 /// The incline measured against ideal rolling without slipping.
@@ -319,5 +346,59 @@ pub(crate) fn incline_result(
         ideal_end_speed_mps: (2.0 * g * drop.max(0.0) / (1.0 + k)).sqrt(),
         rolling_loss: loss(&p),
         rolling_loss_sigma: propagate_sigma(loss, &p, &covariance),
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::physics::flight::fit_arc;
+
+    /// Exact kinematics (no noise; our test case): a ball rolling from rest at t = -0.3 s down a
+    /// 50 degree incline at 4.5 m/s^2, launched at 0.49 s into vacuum flight (g 9.80665), seen
+    /// every 0.05 s. The image at 0.50 s, 0.2 interval after the launch, is put on the incline
+    /// (it fits either phase within a centre sigma of 0.1 mm).
+    #[test]
+    fn a_launch_held_at_a_flight_image_carries_its_hold_shift() {
+        let (theta, a, t0, t_launch, g) = (50f64.to_radians(), 4.5, -0.3, 0.49, 9.80665);
+        let u = [theta.cos(), -theta.sin()];
+        let v_launch = a * (t_launch - t0);
+        let s_launch = 0.5 * a * (t_launch - t0) * (t_launch - t0);
+        let points: Vec<TimedPoint> = (0..20)
+            .map(|n| {
+                let t = n as f64 * 0.05;
+                let (x, y) = if t <= t_launch {
+                    let s = 0.5 * a * (t - t0) * (t - t0);
+                    (s * u[0], s * u[1])
+                } else {
+                    let d = t - t_launch;
+                    (
+                        s_launch * u[0] + v_launch * u[0] * d,
+                        s_launch * u[1] + v_launch * u[1] * d - 0.5 * g * d * d,
+                    )
+                };
+                TimedPoint {
+                    n,
+                    t_s: t,
+                    x_m: x,
+                    y_m: y,
+                    sigma_m: 1e-4,
+                }
+            })
+            .collect();
+        let inc = fit_incline(&points, 0..11, CovarianceScaling::Sigmas).unwrap();
+        let arc = fit_arc(&points, 11..20, CovarianceScaling::Sigmas).unwrap();
+        let l = launch(&points, &inc, &arc);
+        // Held at the image at 0.50 s, the speed is the flight's there, not at the launch.
+        assert!((l.t_s - 0.5).abs() < 1e-12, "held at {}", l.t_s);
+        let error = (l.speed_mps - v_launch).abs();
+        assert!(
+            error > 3.0 * l.speed_sigma_mps,
+            "{error} against {}",
+            l.speed_sigma_mps
+        );
+        // With the shift, inside 2 sigma (the sweep's coverage interval).
+        let sigma = l.speed_sigma_mps.hypot(l.hold_shift_mps);
+        assert!(error < 2.0 * sigma, "{error} against {sigma}");
     }
 }

@@ -4,8 +4,11 @@
 //! the same measurement with [`SYSTEMATIC_REL`] of each measured value added in quadrature to
 //! its 1-sigma: the estimated one of gravity, flash interval and scale (a given one stays as
 //! given), each bounce's restitution and tangential ratio, the launch speed, the incline's
-//! acceleration and end speed. The self-checks and verdicts are judged before, on the
-//! statistical sigmas alone, so this term never hides a disagreement.
+//! acceleration and end speed. The launch's speed and angle also take their hold shifts (how
+//! much they change between the launch time held between the phases' images and where the
+//! phases' velocities agree: an image near the launch fits either phase). The self-checks and
+//! verdicts are judged before, on the statistical sigmas alone, so these terms never hide a
+//! disagreement.
 //!
 //! Why: the sigmas of the fits come from the centres' scatter and the arcs' residuals. What
 //! is common to many images and does not average out (the edge's place on a blurred,
@@ -48,7 +51,8 @@ pub(crate) fn add_systematic(m: &mut Measurement, unknown: Unknown) {
         }
     }
     if let Some(l) = m.launch.as_mut() {
-        l.speed_sigma_mps = widened(l.speed_mps, l.speed_sigma_mps);
+        l.speed_sigma_mps = widened(l.speed_mps, l.speed_sigma_mps.hypot(l.hold_shift_mps));
+        l.angle_sigma_deg = l.angle_sigma_deg.hypot(l.hold_shift_deg);
     }
     if let Some(i) = m.incline.as_mut() {
         i.accel_sigma_mps2 = widened(i.accel_mps2, i.accel_sigma_mps2);
