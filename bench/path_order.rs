@@ -4,7 +4,7 @@
 //!
 //! `cargo bench --bench path_order`
 
-use beadline::detect::Spot;
+use beadline::detect::{Spot, SpotSource};
 use beadline::synth::scene::Scene;
 use beadline::synth::sim::Motion;
 use beadline::track::{PathOptions, order_path};
@@ -50,6 +50,7 @@ origin_y_px = 390.0
                     r_px: 4.0,
                     sigma_px: 0.05,
                     score: 1.0,
+                    source: SpotSource::Detected,
                 }
             })
             .collect();

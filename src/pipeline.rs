@@ -7,12 +7,13 @@
 //! [`crate::calibrate`] -> [`crate::physics`].
 
 use crate::calibrate::{self, Calibration, PlaneFile};
-use crate::detect::{self, SpotOptions, SpotReport};
+use crate::detect::{self, Spot, SpotOptions, SpotReport, SpotSource};
 use crate::error::{Error, Result, TrackError, positive};
+use crate::physics::checks::CheckOutcome;
 use crate::physics::frame::ResultFrame;
-use crate::physics::{self, MeasureOptions, Quantity, TimedPoint, Unknown};
+use crate::physics::{self, MeasureOptions, PhaseKind, Quantity, TimedPoint, Unknown};
 use crate::report::measure::{MeasureDoc, PathEntry, WorldOrigin};
-use crate::track::{self, PathOptions, PathResult, StrayReason};
+use crate::track::{self, PathOptions, PathPoint, PathResult, StrayReason};
 use std::path::{Path, PathBuf};
 
 /// Where the pixel-to-metre scale comes from.
@@ -369,20 +370,17 @@ fn measure_validated(
     let dt = interval.value;
     physics_options.interval = Some(interval);
     physics_options.scale = scale;
-    let points: Vec<TimedPoint> = best
-        .points
-        .iter()
-        .map(|p| {
-            let [x_m, y_m] = calibration.to_world(p.x_px, p.y_px);
-            TimedPoint {
-                n: p.n,
-                t_s: p.n as f64 * dt,
-                x_m,
-                y_m,
-                sigma_m: calibration.sigma_m(p.x_px, p.y_px, p.sigma_px.hypot(CENTRE_FLOOR_PX)),
-            }
-        })
-        .collect();
+    let timed = |p: &PathPoint| {
+        let [x_m, y_m] = calibration.to_world(p.x_px, p.y_px);
+        TimedPoint {
+            n: p.n,
+            t_s: p.n as f64 * dt,
+            x_m,
+            y_m,
+            sigma_m: calibration.sigma_m(p.x_px, p.y_px, p.sigma_px.hypot(CENTRE_FLOOR_PX)),
+        }
+    };
+    let points: Vec<TimedPoint> = best.points.iter().map(timed).collect();
     let radius_m = settings.ball_diameter_m.map_or(
         r_px / calibration.scale_px_per_m(w as f64 / 2.0, h as f64 / 2.0),
         |d| d / 2.0,
@@ -396,6 +394,18 @@ fn measure_validated(
             (recounted, m, paths)
         }
         None => (points, first, paths),
+    };
+    let (report, paths, points, first) = match second_pass(
+        &report,
+        &paths,
+        &first,
+        (timed, |p: &[TimedPoint]| {
+            physics::measure(p, radius_m, &physics_options)
+        }),
+        settings.spots.radius_tolerance,
+    ) {
+        Some(confirmed) => confirmed,
+        None => (report, paths, points, first),
     };
     let best = &paths.paths[0];
     let frame = ResultFrame::of(&first, &physics_options);
@@ -444,6 +454,80 @@ fn measure_validated(
         paths,
         calibration,
     })
+}
+
+/// The second pass from the physics ([`track::confirm`]): the best path's missing flashes that a
+/// rejected candidate fills become spots found `predicted_and_confirmed` and path points, and
+/// the physics (`measure`, on points made by `timed`) runs again. Kept only when no more checks
+/// fail or warn than on the path as found; None when nothing was confirmed or it was not kept.
+fn second_pass(
+    report: &SpotReport,
+    paths: &PathResult,
+    first: &physics::Measurement,
+    (timed, measure): (
+        impl Fn(&PathPoint) -> TimedPoint,
+        impl Fn(&[TimedPoint]) -> Result<physics::Measurement>,
+    ),
+    radius_tolerance: f64,
+) -> Option<(
+    SpotReport,
+    PathResult,
+    Vec<TimedPoint>,
+    physics::Measurement,
+)> {
+    let best = paths.paths.first()?;
+    let phases: Vec<(usize, usize)> = first
+        .phases
+        .iter()
+        .filter(|p| !matches!(p.kind, PhaseKind::Bounce | PhaseKind::Unfitted))
+        .map(|p| (p.first_n, p.last_n))
+        .collect();
+    let mut radii: Vec<f64> = best.points.iter().map(|p| p.r_px).collect();
+    radii.sort_by(f64::total_cmp);
+    let r_px = radii[radii.len() / 2];
+    let confirmed =
+        track::confirm::confirm_missing(best, &phases, &report.rejected, r_px, radius_tolerance);
+    if confirmed.is_empty() {
+        return None;
+    }
+    let (mut report, mut paths) = (report.clone(), paths.clone());
+    let path = &mut paths.paths[0];
+    for &(n, i) in &confirmed {
+        let c = report.rejected[i];
+        path.points.push(PathPoint {
+            n,
+            spot_index: report.spots.len(),
+            x_px: c.x_px,
+            y_px: c.y_px,
+            r_px: c.r_px,
+            sigma_px: c.sigma_px,
+        });
+        report.spots.push(Spot {
+            x_px: c.x_px,
+            y_px: c.y_px,
+            r_px: c.r_px,
+            sigma_px: c.sigma_px,
+            score: c.score,
+            source: SpotSource::PredictedAndConfirmed,
+        });
+    }
+    let mut taken: Vec<usize> = confirmed.iter().map(|c| c.1).collect();
+    taken.sort_unstable_by(|a, b| b.cmp(a));
+    for i in taken {
+        report.rejected.remove(i);
+    }
+    path.points.sort_by_key(|p| p.n);
+    path.missing
+        .retain(|n| !confirmed.iter().any(|c| c.0 == *n));
+    let points: Vec<TimedPoint> = path.points.iter().map(&timed).collect();
+    let m = measure(&points).ok()?;
+    let count = |m: &physics::Measurement, o: CheckOutcome| {
+        m.checks.iter().filter(|c| c.outcome == o).count()
+    };
+    let no_worse = [CheckOutcome::Fail, CheckOutcome::Warn]
+        .iter()
+        .all(|&o| count(&m, o) <= count(first, o));
+    no_worse.then_some((report, paths, points, m))
 }
 
 /// `paths` with its best path's flash indices taken from `recounted` (its points in the same
@@ -559,6 +643,10 @@ fn document(
                     sigma_px: p.sigma_px,
                     x_m,
                     y_m,
+                    source: report
+                        .spots
+                        .get(p.spot_index)
+                        .map_or(SpotSource::Detected, |s| s.source),
                 }
             })
             .collect(),

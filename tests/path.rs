@@ -2,7 +2,7 @@
 
 mod common;
 
-use beadline::detect::Spot;
+use beadline::detect::{Spot, SpotSource};
 use beadline::synth::{self, FlashTruth, scene::Scene};
 use beadline::track::{PathOptions, PathResult, PixelPoint, SpotTree, StrayReason, order_path};
 use common::DropScene;
@@ -34,6 +34,7 @@ fn shuffled_spots(flashes: &[FlashTruth], seed: u64) -> (Vec<Spot>, Vec<usize>) 
                 r_px: f.r_px,
                 sigma_px: 0.05,
                 score: 1.0,
+                source: SpotSource::Detected,
             };
             (spot, f.n)
         })
@@ -74,6 +75,7 @@ fn kd_tree_queries_match_a_linear_scan() {
             r_px: 10.0,
             sigma_px: 0.1,
             score: 1.0,
+            source: SpotSource::Detected,
         })
         .collect();
     let tree = SpotTree::new(&spots);
@@ -224,6 +226,7 @@ fn distractors_are_strays() {
                 r_px: r_px * (0.95 + 0.1 * rng.random::<f64>()),
                 sigma_px: 0.05,
                 score: 1.0,
+                source: SpotSource::Detected,
             });
             truth.push(None);
             added += 1;
@@ -236,6 +239,7 @@ fn distractors_are_strays() {
         r_px: 2.0 * r_px,
         sigma_px: 0.05,
         score: 1.0,
+        source: SpotSource::Detected,
     });
     truth.push(None);
     let result = order_path(&spots, &PathOptions::default());
@@ -287,6 +291,7 @@ fn small_and_broken_inputs_do_not_panic() {
         r_px: 10.0,
         sigma_px: 0.1,
         score: 1.0,
+        source: SpotSource::Detected,
     };
     let one = order_path(&[spot(5.0, 5.0)], &options);
     assert!(one.paths.is_empty());
@@ -337,6 +342,7 @@ fn small_and_broken_inputs_do_not_panic() {
             r_px: 5.0 + 10.0 * rng.random::<f64>(),
             sigma_px: 0.1,
             score: 1.0,
+            source: SpotSource::Detected,
         })
         .collect();
     spots[17].x_px = f64::NAN;

@@ -39,6 +39,21 @@ pub struct Spot {
     pub sigma_px: f64,
     /// Confidence 0..1 (fraction of the rim supported by edge evidence).
     pub score: f64,
+    /// How it was found.
+    #[serde(default)]
+    pub source: SpotSource,
+}
+
+/// How a spot was found.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Default, Serialize, Deserialize)]
+#[serde(rename_all = "snake_case")]
+pub enum SpotSource {
+    /// By the detector alone.
+    #[default]
+    Detected,
+    /// A candidate the detector fitted but rejected (too faint or too little rim, as an image
+    /// inside its neighbours is), kept because the path's physics puts a missing flash there.
+    PredictedAndConfirmed,
 }
 
 use crate::core::light::{Polarity, Tone};

@@ -44,6 +44,9 @@ pub struct Rejected {
     pub r_px: f64,
     /// Rim coverage 0..1.
     pub score: f64,
+    /// 1-sigma of the centre along each axis, pixels (as a spot's).
+    #[serde(default)]
+    pub sigma_px: f64,
     /// Why it was dropped.
     pub reason: Reason,
 }
@@ -122,6 +125,7 @@ pub fn classify(
                 y_px: c.y_px,
                 r_px: c.r_px,
                 score: f.coverage,
+                sigma_px: f.sigma_px,
                 reason,
             }),
             None => report.spots.push(Spot {
@@ -130,6 +134,7 @@ pub fn classify(
                 r_px: c.r_px,
                 sigma_px: f.sigma_px,
                 score: f.coverage,
+                source: super::SpotSource::Detected,
             }),
         }
     }

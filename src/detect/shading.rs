@@ -182,6 +182,7 @@ fn drop_other_lights(
                     y_px: s.y_px,
                     r_px: s.r_px,
                     score: s.score,
+                    sigma_px: s.sigma_px,
                     reason: Reason::OtherLight,
                 });
                 continue;

@@ -26,6 +26,9 @@ pub struct PathEntry {
     /// Centre y, metres (the reported world frame, y up: the height above the floor when the
     /// floor was found).
     pub y_m: f64,
+    /// How the image was found: `detected`, or `predicted_and_confirmed` (a candidate the
+    /// detector rejected, kept where the path's physics puts a missing flash).
+    pub source: crate::detect::SpotSource,
 }
 
 /// Where the origin of the reported world frame lies. Every position of the document (the path

@@ -60,7 +60,7 @@
 //! # Examples
 //! ```
 //! use beadline::track::{PathOptions, order_path};
-//! use beadline::detect::Spot;
+//! use beadline::detect::{Spot, SpotSource};
 //! // A ball falling from rest: y = 5 + 2 n^2 pixels, drifting right 30 px per flash.
 //! let spots: Vec<Spot> = [3usize, 0, 4, 1, 2, 5]
 //!     .iter()
@@ -70,6 +70,7 @@
 //!         r_px: 10.0,
 //!         sigma_px: 0.05,
 //!         score: 1.0,
+//!         source: SpotSource::Detected,
 //!     })
 //!     .collect();
 //! let result = order_path(&spots, &PathOptions::default());
@@ -78,6 +79,7 @@
 //! assert_eq!(result.paths[0].points[0].spot_index, 1);
 //! ```
 
+pub mod confirm;
 mod inline;
 mod moves;
 mod predict;
