@@ -458,8 +458,9 @@ fn measure_validated(
 
 /// The second pass from the physics ([`track::confirm`]): the best path's missing flashes that a
 /// rejected candidate fills become spots found `predicted_and_confirmed` and path points, and
-/// the physics (`measure`, on points made by `timed`) runs again. Kept only when no more checks
-/// fail or warn than on the path as found; None when nothing was confirmed or it was not kept.
+/// the physics (`measure`, on points made by `timed`) runs again. Tried only when no check of
+/// the path as found fails, kept only when no more checks fail or warn and the phases and
+/// bounces stay the same; None when nothing was confirmed or it was not kept.
 fn second_pass(
     report: &SpotReport,
     paths: &PathResult,
@@ -475,7 +476,14 @@ fn second_pass(
     Vec<TimedPoint>,
     physics::Measurement,
 )> {
+    let count = |m: &physics::Measurement, o: CheckOutcome| {
+        m.checks.iter().filter(|c| c.outcome == o).count()
+    };
+    // Only a path the physics trusts predicts where its missing images are.
     let best = paths.paths.first()?;
+    if count(first, CheckOutcome::Fail) > 0 {
+        return None;
+    }
     let phases: Vec<(usize, usize)> = first
         .phases
         .iter()
@@ -521,13 +529,13 @@ fn second_pass(
         .retain(|n| !confirmed.iter().any(|c| c.0 == *n));
     let points: Vec<TimedPoint> = path.points.iter().map(&timed).collect();
     let m = measure(&points).ok()?;
-    let count = |m: &physics::Measurement, o: CheckOutcome| {
-        m.checks.iter().filter(|c| c.outcome == o).count()
-    };
     let no_worse = [CheckOutcome::Fail, CheckOutcome::Warn]
         .iter()
         .all(|&o| count(&m, o) <= count(first, o));
-    no_worse.then_some((report, paths, points, m))
+    // The images fill gaps inside phases: the phases and bounces stay what they were.
+    let kinds = |m: &physics::Measurement| m.phases.iter().map(|p| p.kind).collect::<Vec<_>>();
+    let same_story = kinds(&m) == kinds(first) && m.bounces.len() == first.bounces.len();
+    (no_worse && same_story).then_some((report, paths, points, m))
 }
 
 /// `paths` with its best path's flash indices taken from `recounted` (its points in the same
