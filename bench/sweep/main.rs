@@ -285,7 +285,9 @@ fn photo_summary(s: &mut String, scored: &[Scored]) {
          failed; {} with at least one silently wrong value.\n- False warnings (every value \
          right and none missed, yet a check warned or failed): {}{}.\n- {} photos with part of \
          the path out of the frame ({} of {} images not wholly inside); {} truth bounces inside the \
-         exposure left out of scope (under 3 resolvable images on a side).",
+         exposure left out of scope (under 3 resolvable images on a side).\n- Second pass from \
+         the physics: {} images confirmed on {} photos, {} of them within half a radius of \
+         their own truth flash.",
         scored.len(),
         refused,
         warned,
@@ -299,7 +301,10 @@ fn photo_summary(s: &mut String, scored: &[Scored]) {
         cropped,
         outside,
         flashes,
-        oos
+        oos,
+        scored.iter().map(|x| x.confirmed).sum::<usize>(),
+        scored.iter().filter(|x| x.confirmed > 0).count(),
+        scored.iter().map(|x| x.confirmed_true).sum::<usize>(),
     );
 }
 

@@ -130,6 +130,11 @@ pub struct Scored {
     pub bounces_out_of_scope: usize,
     /// Render + measure time, seconds.
     pub seconds: f64,
+    /// Path images found by the second pass from the physics (`predicted_and_confirmed`).
+    pub confirmed: usize,
+    /// Of those, the ones within half a radius of their own truth flash (the path laid on
+    /// the truth).
+    pub confirmed_true: usize,
 }
 
 impl Scored {
@@ -238,6 +243,27 @@ fn flash_offset(truth: &Truth, m: &Measured) -> Option<usize> {
         .map(|(k, _)| k)
 }
 
+/// The path images of the second pass, and how many lie within half a radius of their own
+/// truth flash (with the path laid on the truth by [`flash_offset`]).
+fn confirmed(truth: &Truth, m: &Measured) -> (usize, usize) {
+    let offset = flash_offset(truth, m);
+    let added: Vec<_> = m
+        .doc
+        .path
+        .iter()
+        .filter(|p| p.source == beadline::detect::SpotSource::PredictedAndConfirmed)
+        .collect();
+    let on_truth = added
+        .iter()
+        .filter(|p| {
+            offset
+                .and_then(|k| truth.flashes.get(p.n + k))
+                .is_some_and(|f| (f.x_px - p.x_px).hypot(f.y_px - p.y_px) < 0.5 * f.r_px)
+        })
+        .count();
+    (added.len(), on_truth)
+}
+
 /// A truth value and whether the photo shows it: (quantity, label, truth, shown).
 type Scope = (Quantity, String, f64, bool);
 
@@ -298,6 +324,8 @@ pub fn score(shot: &Shot, truth: &Truth, result: Result<Measured, String>) -> Sc
         out_of_frame: truth.flashes.iter().filter(|f| !f.in_frame).count(),
         bounces_out_of_scope: out_of_scope,
         seconds: 0.0,
+        confirmed: 0,
+        confirmed_true: 0,
     };
     let m = match result {
         Ok(m) => m,
@@ -317,6 +345,7 @@ pub fn score(shot: &Shot, truth: &Truth, result: Result<Measured, String>) -> Sc
             return scored;
         }
     };
+    (scored.confirmed, scored.confirmed_true) = confirmed(truth, &m);
     let ms = &m.doc.measurement;
     scored.worst = checks::worst(&ms.checks);
     scored.warnings = ms
