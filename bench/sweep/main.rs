@@ -287,7 +287,8 @@ fn photo_summary(s: &mut String, scored: &[Scored]) {
          the path out of the frame ({} of {} images not wholly inside); {} truth bounces inside the \
          exposure left out of scope (under 3 resolvable images on a side).\n- Second pass from \
          the physics: {} images confirmed on {} photos, {} of them within half a radius of \
-         their own truth flash.",
+         their own truth flash.\n- Flash index: every path image on the truth flash its `n` \
+         names (one constant offset) on {} of {} measured photos.",
         scored.len(),
         refused,
         warned,
@@ -305,6 +306,14 @@ fn photo_summary(s: &mut String, scored: &[Scored]) {
         scored.iter().map(|x| x.confirmed).sum::<usize>(),
         scored.iter().filter(|x| x.confirmed > 0).count(),
         scored.iter().map(|x| x.confirmed_true).sum::<usize>(),
+        scored
+            .iter()
+            .filter(|x| x.index_consistent == Some(true))
+            .count(),
+        scored
+            .iter()
+            .filter(|x| x.index_consistent.is_some())
+            .count(),
     );
 }
 

@@ -135,6 +135,9 @@ pub struct Scored {
     /// Of those, the ones within half a radius of their own truth flash (the path laid on
     /// the truth).
     pub confirmed_true: usize,
+    /// Every path image within half a radius of the truth flash its `n` names, with one
+    /// constant offset between `n` and the truth's flash number (None: refused).
+    pub index_consistent: Option<bool>,
 }
 
 impl Scored {
@@ -264,6 +267,19 @@ fn confirmed(truth: &Truth, m: &Measured) -> (usize, usize) {
     (added.len(), on_truth)
 }
 
+/// Every path image lies within half a radius of the truth flash `n + offset` (the offset of
+/// [`flash_offset`]): the flash index is right across every gap and crowded stretch.
+fn index_consistent(truth: &Truth, m: &Measured) -> bool {
+    flash_offset(truth, m).is_some_and(|k| {
+        m.doc.path.iter().all(|p| {
+            truth
+                .flashes
+                .get(p.n + k)
+                .is_some_and(|f| (f.x_px - p.x_px).hypot(f.y_px - p.y_px) < 0.5 * f.r_px)
+        })
+    })
+}
+
 /// A truth value and whether the photo shows it: (quantity, label, truth, shown).
 type Scope = (Quantity, String, f64, bool);
 
@@ -326,6 +342,7 @@ pub fn score(shot: &Shot, truth: &Truth, result: Result<Measured, String>) -> Sc
         seconds: 0.0,
         confirmed: 0,
         confirmed_true: 0,
+        index_consistent: None,
     };
     let m = match result {
         Ok(m) => m,
@@ -346,6 +363,7 @@ pub fn score(shot: &Shot, truth: &Truth, result: Result<Measured, String>) -> Sc
         }
     };
     (scored.confirmed, scored.confirmed_true) = confirmed(truth, &m);
+    scored.index_consistent = Some(index_consistent(truth, &m));
     let ms = &m.doc.measurement;
     scored.worst = checks::worst(&ms.checks);
     scored.warnings = ms
