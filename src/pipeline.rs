@@ -402,7 +402,7 @@ fn measure_validated(
         (timed, |p: &[TimedPoint]| {
             physics::measure(p, radius_m, &physics_options)
         }),
-        settings.spots.radius_tolerance,
+        (r_px, settings.spots.radius_tolerance),
     ) {
         Some(confirmed) => confirmed,
         None => (report, paths, points, first),
@@ -458,7 +458,8 @@ fn measure_validated(
 
 /// The second pass from the physics ([`track::confirm`]): the best path's missing flashes that a
 /// rejected candidate fills become spots found `predicted_and_confirmed` and path points, and
-/// the physics (`measure`, on points made by `timed`) runs again. Tried only when no check of
+/// the physics (`measure`, on points made by `timed`) runs again; `r_px` is the path's median
+/// radius, `radius_tolerance` the detector's. Tried only when no check of
 /// the path as found fails, kept only when no more checks fail or warn and the phases and
 /// bounces stay the same; None when nothing was confirmed or it was not kept.
 fn second_pass(
@@ -469,7 +470,7 @@ fn second_pass(
         impl Fn(&PathPoint) -> TimedPoint,
         impl Fn(&[TimedPoint]) -> Result<physics::Measurement>,
     ),
-    radius_tolerance: f64,
+    (r_px, radius_tolerance): (f64, f64),
 ) -> Option<(
     SpotReport,
     PathResult,
@@ -490,9 +491,6 @@ fn second_pass(
         .filter(|p| !matches!(p.kind, PhaseKind::Bounce | PhaseKind::Unfitted))
         .map(|p| (p.first_n, p.last_n))
         .collect();
-    let mut radii: Vec<f64> = best.points.iter().map(|p| p.r_px).collect();
-    radii.sort_by(f64::total_cmp);
-    let r_px = radii[radii.len() / 2];
     let confirmed =
         track::confirm::confirm_missing(best, &phases, &report.rejected, r_px, radius_tolerance);
     if confirmed.is_empty() {

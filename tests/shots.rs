@@ -47,6 +47,22 @@ fn right_by_sweep_rule(measured: f64, sigma: f64, truth: f64) -> bool {
     (measured - truth).abs() <= (3.0 * sigma).max(0.01 * truth.abs())
 }
 
+/// The measured launch speed is right by the sweep's rule against the rendered truth.
+fn assert_launch_right(ms: &Measurement, truth: &Truth) {
+    let launch = ms.launch.as_ref().expect("a launch");
+    assert!(
+        right_by_sweep_rule(
+            launch.speed_mps,
+            launch.speed_sigma_mps,
+            truth.launch.speed_mps
+        ),
+        "launch {} +- {} (truth {})",
+        launch.speed_mps,
+        launch.speed_sigma_mps,
+        truth.launch.speed_mps
+    );
+}
+
 /// Some check of the measurement warned or failed.
 fn any_check_not_passed(ms: &Measurement) -> bool {
     beadline::physics::checks::worst(&ms.checks) != beadline::physics::checks::CheckOutcome::Pass
@@ -433,18 +449,7 @@ fn the_flashes_of_a_crowded_incline_start_are_counted_from_the_launch() {
         incline.accel_mps2,
         incline.accel_sigma_mps2
     );
-    let launch = ms.launch.as_ref().expect("a launch");
-    assert!(
-        right_by_sweep_rule(
-            launch.speed_mps,
-            launch.speed_sigma_mps,
-            truth.launch.speed_mps
-        ),
-        "launch {} +- {} (truth {})",
-        launch.speed_mps,
-        launch.speed_sigma_mps,
-        truth.launch.speed_mps
-    );
+    assert_launch_right(ms, &truth);
     // The path numbers the flashes as the truth does: one constant offset.
     let first = truth_n(&truth, m.doc.path[0].x_px, m.doc.path[0].y_px).unwrap();
     for p in &m.doc.path {
@@ -501,16 +506,5 @@ fn an_image_just_after_the_launch_is_put_in_the_flight() {
         "{}",
         launch_check.detail
     );
-    let launch = ms.launch.as_ref().expect("a launch");
-    assert!(
-        right_by_sweep_rule(
-            launch.speed_mps,
-            launch.speed_sigma_mps,
-            truth.launch.speed_mps
-        ),
-        "launch {} +- {} (truth {})",
-        launch.speed_mps,
-        launch.speed_sigma_mps,
-        truth.launch.speed_mps
-    );
+    assert_launch_right(ms, &truth);
 }
