@@ -288,7 +288,7 @@ fn photo_summary(s: &mut String, scored: &[Scored]) {
          exposure left out of scope (under 3 resolvable images on a side).\n- Second pass from \
          the physics: {} images confirmed on {} photos, {} of them within half a radius of \
          their own truth flash.\n- Flash index: every path image on the truth flash its `n` \
-         names (one constant offset) on {} of {} measured photos.",
+         names (one constant offset) on {} of {} measured photos{}.",
         scored.len(),
         refused,
         warned,
@@ -314,6 +314,18 @@ fn photo_summary(s: &mut String, scored: &[Scored]) {
             .iter()
             .filter(|x| x.index_consistent.is_some())
             .count(),
+        {
+            let off: Vec<u64> = scored
+                .iter()
+                .filter(|x| x.index_consistent == Some(false))
+                .map(|x| x.seed)
+                .collect();
+            if off.is_empty() {
+                String::new()
+            } else {
+                format!(" (not on seeds {off:?})")
+            }
+        },
     );
 }
 
