@@ -11,6 +11,15 @@ use beadline::synth::{self, scene::Scene};
 use common::{DropScene, rel, shoot};
 use std::path::Path;
 
+/// The demo's settings as its README entry types them: `--rate 25 --ball-diameter 0.04`.
+fn demo_settings() -> MeasureSettings {
+    MeasureSettings {
+        rate_hz: Some(25.0),
+        ball_diameter_m: Some(0.04),
+        ..Default::default()
+    }
+}
+
 #[test]
 fn incline_and_bounces_give_restitution_launch_speed_and_gravity() {
     // Targets of the measure issue: restitution within 0.01, launch speed within 0.5 %,
@@ -18,10 +27,8 @@ fn incline_and_bounces_give_restitution_launch_speed_and_gravity() {
     let dir = common::tempdir();
     let (photo, truth) = shoot(&Scene::demo(), dir.path(), "demo.png");
     let settings = MeasureSettings {
-        rate_hz: Some(25.0),
         scale: Some(ScaleSource::PxPerM(1000.0)),
-        ball_diameter_m: Some(0.04),
-        ..Default::default()
+        ..demo_settings()
     };
     let m = measure_photo(&photo, &settings).unwrap();
     let doc = &m.doc.measurement;
@@ -614,12 +621,7 @@ fn the_demo_image_inside_its_neighbours_is_confirmed_by_the_physics() {
     // The second pass from the physics predicts a ball image there and keeps the candidate.
     let dir = common::tempdir();
     let (photo, truth) = shoot(&Scene::demo(), dir.path(), "demo.png");
-    let settings = MeasureSettings {
-        rate_hz: Some(25.0),
-        ball_diameter_m: Some(0.04),
-        ..Default::default()
-    };
-    let m = measure_photo(&photo, &settings).unwrap();
+    let m = measure_photo(&photo, &demo_settings()).unwrap();
     assert_eq!(
         m.doc.path.len(),
         truth.flashes.len(),
