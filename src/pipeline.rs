@@ -386,6 +386,16 @@ fn measure_validated(
         |d| d / 2.0,
     );
     let first = physics::measure(&points, radius_m, &physics_options)?;
+    let (points, first, paths) = match time_reversed(
+        &paths,
+        &first,
+        (timed, |p: &[TimedPoint]| {
+            physics::measure(p, radius_m, &physics_options)
+        }),
+    ) {
+        Some(reversed) => reversed,
+        None => (points, first, paths),
+    };
     let (points, first, paths) = match physics::recount::recount_incline(&points, &first, |p| {
         physics::measure(p, radius_m, &physics_options)
     }) {
@@ -454,6 +464,45 @@ fn measure_validated(
         paths,
         calibration,
     })
+}
+
+/// The best path read backwards in time when its bounces gain energy: a photo holds no arrow
+/// of time, and a ballistic arc looks the same both ways, so the walk orders a path by its
+/// bounces' apex heights, which a few images near each bounce can misjudge. Every fitted
+/// bounce restitution above 1 (a passive bounce never returns more speed than it takes) is the
+/// path seen backwards; read the other way, the measurement is kept when every restitution is
+/// below 1, the bounces are the same in number and no more checks fail. A path with an
+/// incline keeps its direction (the incline is where the ball starts). None when not reversed.
+fn time_reversed(
+    paths: &PathResult,
+    first: &physics::Measurement,
+    (timed, measure): (
+        impl Fn(&PathPoint) -> TimedPoint,
+        impl Fn(&[TimedPoint]) -> Result<physics::Measurement>,
+    ),
+) -> Option<(Vec<TimedPoint>, physics::Measurement, PathResult)> {
+    let gains = |m: &physics::Measurement, above: bool| {
+        !m.bounces.is_empty()
+            && m.bounces
+                .iter()
+                .all(|b| b.restitution.is_finite() && (b.restitution > 1.0) == above)
+    };
+    if first.incline.is_some() || first.launch.is_some() || !gains(first, true) {
+        return None;
+    }
+    let fails = |m: &physics::Measurement| {
+        m.checks
+            .iter()
+            .filter(|c| c.outcome == CheckOutcome::Fail)
+            .count()
+    };
+    let mut paths = paths.clone();
+    paths.paths[0] = paths.paths.first()?.reversed();
+    let points: Vec<TimedPoint> = paths.paths[0].points.iter().map(timed).collect();
+    let m = measure(&points).ok()?;
+    let kept =
+        gains(&m, false) && m.bounces.len() == first.bounces.len() && fails(&m) <= fails(first);
+    kept.then_some((points, m, paths))
 }
 
 /// The second pass from the physics ([`track::confirm`]): the best path's missing flashes that a

@@ -175,6 +175,24 @@ pub struct BallPath {
     pub missing: Vec<usize>,
 }
 
+impl BallPath {
+    /// The same images read backwards in time: the last image becomes flash 0.
+    pub fn reversed(&self) -> BallPath {
+        let last_n = self.points.last().map_or(0, |p| p.n);
+        let points = self
+            .points
+            .iter()
+            .rev()
+            .map(|p| PathPoint {
+                n: last_n - p.n,
+                ..*p
+            })
+            .collect();
+        let missing = self.missing.iter().rev().map(|&n| last_n - n).collect();
+        BallPath { points, missing }
+    }
+}
+
 /// Why a spot is on no path.
 #[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize)]
 #[serde(rename_all = "snake_case")]
@@ -471,5 +489,38 @@ fn end_speed<'a>(nodes: impl Iterator<Item = &'a ChainNode>, items: &[Spot]) -> 
         0.0
     } else {
         speeds.iter().sum::<f64>() / speeds.len() as f64
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn point(n: usize, x_px: f64) -> PathPoint {
+        PathPoint {
+            n,
+            spot_index: n,
+            x_px,
+            y_px: 0.0,
+            r_px: 5.0,
+            sigma_px: 0.1,
+        }
+    }
+
+    #[test]
+    fn a_path_read_backwards_starts_at_its_last_image() {
+        // Images at flashes 0, 1, 3 and 6 (2, 4 and 5 missing): backwards, the image of flash 6
+        // is flash 0 and the gaps keep their lengths (flashes 1, 2 and 4 missing).
+        let path = BallPath {
+            points: vec![point(0, 0.0), point(1, 1.0), point(3, 3.0), point(6, 6.0)],
+            missing: vec![2, 4, 5],
+        };
+        let back = path.reversed();
+        let ns: Vec<usize> = back.points.iter().map(|p| p.n).collect();
+        let xs: Vec<f64> = back.points.iter().map(|p| p.x_px).collect();
+        assert_eq!(ns, vec![0, 3, 5, 6]);
+        assert_eq!(xs, vec![6.0, 3.0, 1.0, 0.0]);
+        assert_eq!(back.missing, vec![1, 2, 4]);
+        assert_eq!(back.reversed(), path);
     }
 }
