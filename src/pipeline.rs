@@ -405,6 +405,16 @@ fn measure_validated(
         }
         None => (points, first, paths),
     };
+    let (points, first, paths) =
+        match physics::recount::recount_steps(&points, &first, radius_m, |p| {
+            physics::measure(p, radius_m, &physics_options)
+        }) {
+            Some((recounted, m)) => {
+                let paths = renumbered(paths, &recounted);
+                (recounted, m, paths)
+            }
+            None => (points, first, paths),
+        };
     let (report, paths, points, first) = match second_pass(
         &report,
         &paths,

@@ -104,8 +104,17 @@ fn check_path(path: &BallPath, truth: &Truth) -> usize {
 /// Render `scene`, measure it with `settings` and check the path; the measurement, the truth
 /// and the truth index of the path's first point.
 fn measure_scene(scene: &Scene, settings: &MeasureSettings) -> (Measured, Truth, usize) {
+    measure_scene_as(scene, settings, "shot.png")
+}
+
+/// [`measure_scene`] with the photo saved as `name` (its extension sets the format).
+fn measure_scene_as(
+    scene: &Scene,
+    settings: &MeasureSettings,
+    name: &str,
+) -> (Measured, Truth, usize) {
     let dir = common::tempdir();
-    let (photo, truth) = shoot(scene, dir.path(), "shot.png");
+    let (photo, truth) = shoot(scene, dir.path(), name);
     let m = measure_photo(&photo, settings).expect("a measurement");
     let first = check_path(&m.paths.paths[0], &truth);
     (m, truth, first)
@@ -528,4 +537,30 @@ fn a_path_whose_bounces_gain_energy_is_read_the_other_way_in_time() {
     let ms = &m.doc.measurement;
     assert!(!ms.bounces.is_empty(), "a bounce measured");
     check_physics(ms, &truth, first);
+}
+
+#[test]
+fn a_step_the_walk_miscounted_is_counted_again_from_the_physics() {
+    // Sweep shot 5 (tests/data/drop_first_step_miscounted.toml, saved as JPEG quality 70 as
+    // the sweep saved it): a drop whose first arc holds three images; the walk bridged its
+    // first step as two flashes, and three points fit a parabola either way. The arcs after
+    // the bounce then disagreed with it: floor_contacts and restitution_agreement failed on a
+    // photo whose values were right. Counted again step by step, one flash in that step makes
+    // every check pass. Against the rendered truth: the path's flash indices and missing
+    // flashes, gravity and every restitution.
+    let scene = test_scene("drop_first_step_miscounted");
+    let (m, truth, first) = measure_scene_as(
+        &scene,
+        &settings(scene.strobe.rate_hz, scene.ball.diameter_m),
+        "drop.jpg",
+    );
+    let ms = &m.doc.measurement;
+    check_physics(ms, &truth, first);
+    let failed: Vec<&str> = ms
+        .checks
+        .iter()
+        .filter(|c| c.outcome == beadline::physics::checks::CheckOutcome::Fail)
+        .map(|c| c.check)
+        .collect();
+    assert!(failed.is_empty(), "failed checks: {failed:?}");
 }

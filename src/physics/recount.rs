@@ -13,10 +13,19 @@
 //! the incline is given 0 to 3 more flashes; the physics is run on
 //! each count and the count with the fewest failed checks, then warnings, then the fewest flashes
 //! added, is kept when it has fewer failed checks than the path's own and no failed launch check.
+//!
+//! [`recount_steps`] does the same for any one step of the path when a check fails: a gap the
+//! walk bridged by its distance rule may hold one flash more or less than it counted, and two
+//! images less than a radius apart may have merged into one found image between two others.
+//! Every gap is tried with one flash fewer and one more, every step shorter than
+//! [`CROWDED_RADII`] radii with one more; the count with the fewest failed checks, then
+//! warnings, is kept when it fails fewer checks than the path's own and measures the same
+//! phases in the same order (two rounds at most).
 
 use super::checks::CheckOutcome;
 use super::{Measurement, PhaseKind, TimedPoint};
 use crate::error::Result;
+use rayon::prelude::*;
 
 /// Steps on the incline recounted, from its first image.
 const STEPS: usize = 3;
@@ -101,6 +110,112 @@ fn shift(points: &[TimedPoint], start: usize, extra: &[usize], dt: f64) -> Vec<T
             TimedPoint {
                 n,
                 t_s: n as f64 * dt,
+                ..*p
+            }
+        })
+        .collect()
+}
+
+/// A step shorter than this many ball radii may hide a merged image (two images of the ball
+/// under one found spot are at most a diameter apart, plus the step beside them).
+pub const CROWDED_RADII: f64 = 2.5;
+/// Rounds of single-step recounts (each keeps one changed step).
+const STEP_ROUNDS: usize = 2;
+/// Most trials per round, gaps first, then the shortest steps.
+const STEP_TRIALS: usize = 24;
+
+/// See the module documentation: one step of the path counted again when a check fails.
+/// `radius_m` is the ball's radius in the points' units.
+pub fn recount_steps(
+    points: &[TimedPoint],
+    first: &Measurement,
+    radius_m: f64,
+    measure: impl Fn(&[TimedPoint]) -> Result<Measurement> + Sync,
+) -> Option<(Vec<TimedPoint>, Measurement)> {
+    let dt = points
+        .iter()
+        .find(|p| p.n > 0)
+        .map(|p| (p.t_s - points[0].t_s) / (p.n - points[0].n) as f64)?;
+    if !(dt.is_finite() && dt > 0.0 && radius_m > 0.0) {
+        return None;
+    }
+    let mut kept: Option<(Vec<TimedPoint>, Measurement)> = None;
+    for _ in 0..STEP_ROUNDS {
+        let (now, m_now) = match &kept {
+            Some((p, m)) => (p.as_slice(), m),
+            None => (points, first),
+        };
+        let (fails_now, _) = outcome_counts(m_now);
+        if fails_now == 0 {
+            break;
+        }
+        // Trials in parallel; the first of equal rank in trial order wins (shortest step).
+        let best = step_trials(now, radius_m)
+            .par_iter()
+            .enumerate()
+            .filter_map(|(order, &(step, change))| {
+                let trial = recounted(now, step, change, dt);
+                let m = measure(&trial).ok()?;
+                same_motion(&m, first).then(|| ((outcome_counts(&m), order), trial, m))
+            })
+            .min_by(|a, b| a.0.cmp(&b.0))
+            .map(|((key, _), trial, m)| (key, trial, m));
+        match best {
+            Some((key, trial, m)) if key.0 < fails_now => kept = Some((trial, m)),
+            _ => break,
+        }
+    }
+    kept
+}
+
+/// A recount measures the same motion: the same phases in the same order, so the same
+/// bounces (a count that makes a bounce vanish fails fewer checks by measuring less).
+fn same_motion(m: &Measurement, first: &Measurement) -> bool {
+    m.phases.len() == first.phases.len()
+        && m.phases
+            .iter()
+            .zip(&first.phases)
+            .all(|(a, b)| a.kind == b.kind)
+}
+
+/// The steps to recount and by how much: each gap one flash fewer and one more, then each
+/// crowded step one more, shortest first; at most [`STEP_TRIALS`].
+fn step_trials(points: &[TimedPoint], radius_m: f64) -> Vec<(usize, i64)> {
+    let mut steps: Vec<(f64, usize, i64)> = Vec::new();
+    for (i, pair) in points.windows(2).enumerate() {
+        let (a, b) = (&pair[0], &pair[1]);
+        let gap = b.n - a.n;
+        let length = (b.x_m - a.x_m).hypot(b.y_m - a.y_m) / gap as f64;
+        if gap >= 2 {
+            steps.push((0.0, i, -1));
+            steps.push((0.0, i, 1));
+        } else if length < CROWDED_RADII * radius_m {
+            steps.push((length, i, 1));
+        }
+    }
+    steps.sort_by(|x, y| x.0.total_cmp(&y.0));
+    steps
+        .into_iter()
+        .take(STEP_TRIALS)
+        .map(|(_, i, c)| (i, c))
+        .collect()
+}
+
+/// `points` with `change` flashes more in the step after point `step`; later points move
+/// with it.
+fn recounted(points: &[TimedPoint], step: usize, change: i64, dt: f64) -> Vec<TimedPoint> {
+    points
+        .iter()
+        .enumerate()
+        .map(|(i, p)| {
+            let n = if i > step {
+                (p.n as i64 + change).max(0) as usize
+            } else {
+                p.n
+            };
+            TimedPoint {
+                n,
+                t_s: p.t_s + (n as f64 - p.n as f64) * dt,
                 ..*p
             }
         })
