@@ -10,9 +10,11 @@
 //! averaged over blocks for a large ball, then carried to full resolution), [`joint`] (circle
 //! fits of each region's images together, [`circle`] the fits themselves), [`radius`] (the range
 //! searched and the photo's radius model), [`reject`] (which fits are ball images),
-//! [`shading`] (the shaded-sphere refinement of isolated images, [`shaded`] the fit itself).
+//! [`shading`] (the shaded-sphere refinement of isolated images, [`shaded`] the fit itself),
+//! [`count`] (light counting: how many images each group of touching spots holds).
 
 pub mod circle;
+pub mod count;
 pub mod hough;
 pub mod joint;
 pub mod radius;
@@ -191,6 +193,9 @@ pub struct SpotReport {
     pub spots: Vec<Spot>,
     /// Candidates dropped, with the reason.
     pub rejected: Vec<Rejected>,
+    /// The spots in groups of touching images, each with the number of images its light holds
+    /// ([`count`]).
+    pub light_groups: Vec<count::LightGroup>,
 }
 
 /// Intermediate images of the stages, for `--debug-dir`.
@@ -215,8 +220,9 @@ pub const COARSE_R_PX: f64 = 12.0;
 /// The stages in order: background, threshold at the chosen decimation ([`search::settle`]),
 /// Hough regions at full resolution ([`search::find_regions`]), a first joint fit with free
 /// radii ([`joint::first_pass`]) that teaches the radius ([`radius::learn`]), a second holding it
-/// ([`joint::second_pass`]), the rejection rules ([`reject::classify`]) and, for a small ball,
-/// the shaded-sphere refinement ([`shading::refine_spots`]).
+/// ([`joint::second_pass`]), the rejection rules ([`reject::classify`]), for a small ball
+/// the shaded-sphere refinement ([`shading::refine_spots`]), and light counting
+/// ([`count::count_light`]).
 pub fn find_spots(
     photo: &Photo,
     plate: Option<&Photo>,
@@ -263,6 +269,7 @@ pub fn find_spots(
     }
     report.spots.sort_by(|a, b| a.x_px.total_cmp(&b.x_px));
     report.rejected.sort_by(|a, b| a.x_px.total_cmp(&b.x_px));
+    report.light_groups = count::count_light(photo, &bg, options.tone, &report.spots, common);
     Ok(report)
 }
 
@@ -305,6 +312,7 @@ fn empty_report(
         decimation: work.d,
         spots: Vec::new(),
         rejected: Vec::new(),
+        light_groups: Vec::new(),
     }
 }
 

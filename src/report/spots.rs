@@ -3,6 +3,7 @@
 
 use super::{SCHEMA_VERSION, csv_rows};
 use crate::core::light::Polarity;
+use crate::detect::count::LightGroup;
 use crate::detect::{Rejected, Spot, SpotOptions, SpotReport};
 use serde::{Deserialize, Serialize};
 
@@ -73,6 +74,10 @@ pub struct SpotsDoc {
     pub spots: Vec<Spot>,
     /// Candidates dropped, with the reason.
     pub rejected: Vec<Rejected>,
+    /// The spots in groups of touching images, each with the number of images its light holds
+    /// (light counting: a long exposure adds every flash's light).
+    #[serde(default)]
+    pub light_groups: Vec<LightGroup>,
 }
 
 impl SpotsDoc {
@@ -108,6 +113,7 @@ impl SpotsDoc {
             },
             spots: report.spots.clone(),
             rejected: report.rejected.clone(),
+            light_groups: report.light_groups.clone(),
         }
     }
 
@@ -140,6 +146,37 @@ impl SpotsDoc {
             s += &format!(
                 "rejected {:9.3} {:9.3} {:7.3}  {:?}\n",
                 r.x_px, r.y_px, r.r_px, r.reason
+            );
+        }
+        s += &self.light_text();
+        s
+    }
+
+    /// The light count of every group of two or more spots, or whose light holds more images
+    /// than it has spots.
+    fn light_text(&self) -> String {
+        let mut s = String::new();
+        for g in &self.light_groups {
+            let more = g.images.is_some_and(|n| n > g.spots.len());
+            if g.spots.len() < 2 && !more {
+                continue;
+            }
+            let spots = g
+                .spots
+                .iter()
+                .map(|i| i.to_string())
+                .collect::<Vec<_>>()
+                .join(" ");
+            let held = match (g.images_by_light, g.uncertain) {
+                (Some(v), false) => format!("light of {v:.2} images"),
+                (Some(v), true) => format!(
+                    "light of {v:.2} images, uncertain (clipped, or light runs on past the group)"
+                ),
+                (None, _) => "light not counted (no isolated image to compare with)".into(),
+            };
+            s += &format!(
+                "group at {:.1}, {:.1}: spots {spots}; {held}\n",
+                g.x_px, g.y_px
             );
         }
         s
