@@ -66,7 +66,8 @@ struct Sum {
     /// Light-weighted spread along the major and minor axes, pixels^2.
     major: f64,
     minor: f64,
-    /// A pixel is clipped or the group is cut by the frame.
+    /// A pixel is clipped, or the light runs on to the frame or the box (see
+    /// [`LightGroup::uncertain`]).
     uncertain: bool,
 }
 
