@@ -329,6 +329,22 @@ class Beadline:
         return xyr, sigma, score, wall, rss_kb
 
 
+    def measure_path(self, photo, truth_doc, plate=None):
+        """Run `beadline measure PHOTO --rate R --ball-diameter D --format json` with the rate
+        and the ball's diameter of the truth (what a user knows). Returns the path's (x, y) in
+        pixels, empty when measure refused the photo."""
+        cmd = [self.binary, "measure", str(photo), "--rate", repr(truth_doc["rate_hz"]),
+               "--ball-diameter", repr(2.0 * truth_doc["ball_radius_m"]), "--format", "json"]
+        if plate is not None:
+            cmd += ["--plate", str(plate)]
+        p = subprocess.run(cmd, capture_output=True, text=True)
+        try:
+            doc = json.loads(p.stdout)
+        except json.JSONDecodeError:
+            return np.zeros((0, 2))
+        return np.array([[q["x_px"], q["y_px"]] for q in doc.get("path", [])], float).reshape(-1, 2)
+
+
 # ----------------------------------------------------------------------------------------------
 # Rendering
 
@@ -472,6 +488,33 @@ def run_reference(name, params, photo, rmin, rmax, plate=None):
     return det, time.perf_counter() - t0
 
 
+def path_match(truth, xy):
+    """The path's images against the truth, by the nearest neighbour's distance: per bin of
+    CROWDED_BINS and for images 0.8 radius or more from a neighbour, (found, total); and the
+    path's images that are no ball image (more than half a radius from every in-frame flash
+    not matched to another path image)."""
+    T = truth.flashes
+    found = np.zeros(len(T), bool)
+    false = 0
+    if len(T) and len(xy):
+        d = np.hypot(T[:, None, 0] - xy[None, :, 0], T[:, None, 1] - xy[None, :, 1])
+        ok = d < MATCH_FRACTION * T[:, 2:3]
+        ri, ci = linear_sum_assignment(np.where(ok, d, 1e6))
+        keep = ok[ri, ci]
+        found[ri[keep]] = True
+        near_outside = _near(np.c_[xy, np.ones(len(xy))], truth.outside)
+        matched = np.zeros(len(xy), bool)
+        matched[ci[keep]] = True
+        false = int((~matched & ~near_outside).sum())
+    out = {"path_points": len(xy), "path_false": false}
+    bins = list(CROWDED_BINS) + [(SCOPE_NN_R, np.inf)]
+    for lo, hi in bins:
+        inbin = (truth.nn_r >= lo) & (truth.nn_r < hi)
+        out[f"path_n_{lo}"] = int(inbin.sum())
+        out[f"path_tp_{lo}"] = int((inbin & found).sum())
+    return out
+
+
 def light_counts(doc, truth):
     """(count, truth count) per light group of a `beadline spots` document: the count is None
     when Beadline gave none or marked it uncertain; the truth count is the number of in-frame
@@ -509,7 +552,9 @@ def evaluate(photos, manifest, frozen, beadline, log):
                                                         plate=plate)
                 rows.append({"photo": name, "class": cls, "method": "beadline spots",
                              "wall_s": wall, "in_scope": scope, **match(truth, xyr, sigma),
-                             "light": light_counts(beadline.last_doc, truth)})
+                             "light": light_counts(beadline.last_doc, truth),
+                             **path_match(truth, beadline.measure_path(photo, truth.doc,
+                                                                       plate))})
             except (RuntimeError, ValueError, KeyError) as err:
                 log(f"  beadline spots failed on {name}: {err}")
                 rows.append({"photo": name, "class": cls, "method": "beadline spots",
@@ -564,6 +609,14 @@ def summarise(rows):
         s[f"n_{lo}"] = n
         inbin = np.concatenate([r[f"in_{lo}"] for r in ok]) if ok else np.zeros(0, bool)
         s[f"rms_{lo}"] = rms(err[inbin])
+    if ok and "path_points" in ok[0]:
+        for lo in [b[0] for b in CROWDED_BINS] + [SCOPE_NN_R]:
+            n = sum(r[f"path_n_{lo}"] for r in ok)
+            s[f"path_recall_{lo}"] = sum(r[f"path_tp_{lo}"] for r in ok) / n if n else np.nan
+        points = sum(r["path_points"] for r in ok)
+        s["path_points"] = points
+        s["path_false"] = sum(r["path_false"] for r in ok)
+        s["path_precision"] = 1.0 - s["path_false"] / points if points else np.nan
     groups = [g for r in ok for g in r.get("light", [])]
     if groups:
         counted = [g for g in groups if g[0] is not None]
@@ -873,6 +926,18 @@ def report(path, rows, frozen, calib_name, speed_rows, beadline, versions, elaps
         q = sums[m]
         L.append(f"| {m} | {fmt(q[f'recall_{a}'])} ({q[f'n_{a}']}) | "
                  f"{fmt(q[f'recall_{c}'])} ({q[f'n_{c}']}) | {fmt(q[f'rms_{a}'])} |")
+    q = sums.get("beadline spots", {})
+    if "path_points" in q:
+        L += ["", "The path of `beadline measure PHOTO --rate R --ball-diameter D` (the truth's rate "
+              "and diameter; `--plate` where the photo has one), with its second pass from the "
+              "physics: the images on the path against the truth, by the nearest neighbour's "
+              "distance, and the path's images that are no ball image.", "",
+              f"| path | recall, neighbour {a}-{b} r | recall, neighbour {c}-{a} r | recall, "
+              f"neighbour >= {SCOPE_NN_R} r | path images | not a ball image (precision) |",
+              "|---|---|---|---|---|---|",
+              f"| beadline measure | {fmt(q[f'path_recall_{a}'])} | {fmt(q[f'path_recall_{c}'])} | "
+              f"{fmt(q[f'path_recall_{SCOPE_NN_R}'])} | {q['path_points']} | {q['path_false']} "
+              f"({fmt(q['path_precision'], '.4f')}) |"]
     scoped = [r for r in test_rows if r.get("in_scope", True)]
     L += ["", "## Within the target's scope", "",
           "The issue's targets cover images whose nearest neighbour's centre is at least "
