@@ -500,12 +500,7 @@ fn time_reversed(
     if first.incline.is_some() || first.launch.is_some() || !gains(first, true) {
         return None;
     }
-    let fails = |m: &physics::Measurement| {
-        m.checks
-            .iter()
-            .filter(|c| c.outcome == CheckOutcome::Fail)
-            .count()
-    };
+    let fails = |m: &physics::Measurement| m.checks_with(CheckOutcome::Fail);
     let mut paths = paths.clone();
     paths.paths[0] = paths.paths.first()?.reversed();
     let points: Vec<TimedPoint> = paths.paths[0].points.iter().map(timed).collect();
@@ -536,9 +531,7 @@ fn second_pass(
     Vec<TimedPoint>,
     physics::Measurement,
 )> {
-    let count = |m: &physics::Measurement, o: CheckOutcome| {
-        m.checks.iter().filter(|c| c.outcome == o).count()
-    };
+    let count = |m: &physics::Measurement, o: CheckOutcome| m.checks_with(o);
     // Only a path the physics trusts predicts where its missing images are.
     let best = paths.paths.first()?;
     if count(first, CheckOutcome::Fail) > 0 {

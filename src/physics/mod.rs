@@ -314,6 +314,11 @@ impl Measurement {
             .any(|v| v.outcome != bands::Outcome::Pass)
     }
 
+    /// How many self-checks came out `outcome`.
+    pub fn checks_with(&self, outcome: checks::CheckOutcome) -> usize {
+        self.checks.iter().filter(|c| c.outcome == outcome).count()
+    }
+
     /// A self-check failed: the numbers are printed but not to be trusted.
     pub fn doubtful(&self) -> bool {
         checks::worst(&self.checks) == checks::CheckOutcome::Fail

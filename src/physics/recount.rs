@@ -39,8 +39,10 @@ type Rank = (usize, usize, usize);
 
 /// Failed and warned checks of `m`.
 fn outcome_counts(m: &Measurement) -> (usize, usize) {
-    let count = |o: CheckOutcome| m.checks.iter().filter(|c| c.outcome == o).count();
-    (count(CheckOutcome::Fail), count(CheckOutcome::Warn))
+    (
+        m.checks_with(CheckOutcome::Fail),
+        m.checks_with(CheckOutcome::Warn),
+    )
 }
 
 fn launch_fails(m: &Measurement) -> bool {
