@@ -564,3 +564,36 @@ fn a_step_the_walk_miscounted_is_counted_again_from_the_physics() {
         .collect();
     assert!(failed.is_empty(), "failed checks: {failed:?}");
 }
+
+#[test]
+fn the_images_merged_at_the_start_of_a_roll_are_counted_and_placed_by_their_pixels() {
+    // The bench's overlap_r20 scene (bench/suite.py, seed 501): a 20 px ball released from rest
+    // on a 12 degree incline at 40 Hz. Its first 12 images lie 0.02 to 0.5 radius apart in one
+    // bright sausage whose red and green channels clip; the detector finds a blob at the start
+    // and the images from 0.5 radius apart on. Before, the path began at truth flash 12. The
+    // images before it are counted and placed by the photo's own image of the ball along the
+    // incline's motion (detect::chain): every truth flash of the roll is on the path, numbered
+    // as the truth numbers it, and each added image is within 2 sigma of its truth.
+    let scene = test_scene("roll_from_rest_merged");
+    let settings = settings(scene.strobe.rate_hz, scene.ball.diameter_m);
+    let (m, truth, first) = measure_scene(&scene, &settings);
+    assert_eq!(first, 0, "the path starts at the first flash");
+    let added: Vec<_> = m
+        .doc
+        .path
+        .iter()
+        .filter(|p| p.source == beadline::detect::SpotSource::PredictedAndConfirmed)
+        .collect();
+    assert!(added.len() >= 12, "{} images added", added.len());
+    for p in added {
+        let t = &truth.flashes[p.n + first];
+        let error = (p.x_px - t.x_px).hypot(p.y_px - t.y_px);
+        assert!(
+            error <= 2.0 * p.sigma_px.max(0.02),
+            "flash {}: {error} px off, sigma {}",
+            t.n,
+            p.sigma_px
+        );
+    }
+    check_incline(&m.doc.measurement, &truth);
+}

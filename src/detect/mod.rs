@@ -11,8 +11,11 @@
 //! fits of each region's images together, [`circle`] the fits themselves), [`radius`] (the range
 //! searched and the photo's radius model), [`reject`] (which fits are ball images),
 //! [`shading`] (the shaded-sphere refinement of isolated images, [`shaded`] the fit itself),
-//! [`count`] (light counting: how many images each group of touching spots holds).
+//! [`count`] (light counting: how many images each group of touching spots holds). [`chain`]
+//! serves the pipeline once a path is known: the merged images of a crowded start, counted and
+//! placed along the path's motion.
 
+pub mod chain;
 pub mod circle;
 pub mod count;
 pub mod hough;

@@ -46,11 +46,11 @@ pub struct ShadedFit {
     pub flat: bool,
 }
 
-const SHADED_LINEAR: usize = 4;
+pub(crate) const SHADED_LINEAR: usize = 4;
 
 /// How the ball's own light is modelled inside its silhouette.
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
-enum Shading {
+pub(crate) enum Shading {
     /// a + b max(0, n . l): a Lambertian sphere under one light (u, v) plus fill.
     Lambert,
     /// a alone: a uniform disc (a dark ball, whose own shading is below the noise); the light
@@ -61,7 +61,11 @@ enum Shading {
 /// Linear basis of the shaded-sphere model at one pixel for nonlinear parameters
 /// p = (cx, cy, r, u, v): exact disc coverage, coverage x Lambert term max(0, n . l) with the
 /// sphere's normal at the pixel centre, coverage x backdrop (hidden by the ball), a constant.
-fn shaded_basis(q: &WindowPixel, p: &[f64; 5], shading: Shading) -> [f64; SHADED_LINEAR] {
+pub(crate) fn shaded_basis(
+    q: &WindowPixel,
+    p: &[f64; 5],
+    shading: Shading,
+) -> [f64; SHADED_LINEAR] {
     let (dx, dy) = (q.x_px - p[0], q.y_px - p[1]);
     let d2 = dx * dx + dy * dy;
     // A pixel lies wholly inside or outside the disc when its centre is more than half its
@@ -300,7 +304,7 @@ impl<T: Copy> WindowGrid<T> {
 /// Variance inflation for residuals correlated between neighbouring pixels (JPEG blocks, a
 /// demosaiced sensor): lag-1 correlations along x and along y, AR(1) factor (1 + rho) / (1 - rho)
 /// for each axis.
-fn pixel_correlation_factor(pixels: &[WindowPixel], res: &[f64]) -> f64 {
+pub(crate) fn pixel_correlation_factor(pixels: &[WindowPixel], res: &[f64]) -> f64 {
     let mut grid = WindowGrid::new(pixels, f64::NAN);
     for (q, r) in pixels.iter().zip(res) {
         grid.set(q, *r);

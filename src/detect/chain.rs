@@ -1,0 +1,781 @@
+//! Images the detector could not separate, counted and placed by the pixels along a known
+//! motion: the crowded start of a roll, where images 0.1 to 0.8 radius apart make one bright
+//! sausage that no circle detector splits.
+//!
+//! Goes in: a photo's pixels in linear light over their backdrop ([`Pixels`]), the images of a
+//! stretch already found with their flash offsets, the offsets of the images the path predicts
+//! there (in the order to try them), the other images near by, and the ball's radius. Comes out:
+//! a [`ChainFit`]: how many of the predicted images the pixels hold, and their centres with a
+//! 1-sigma, from one fit of the stretch's motion to the pixels.
+//!
+//! Method: a long exposure adds the light of every flash, so in each colour channel the pixels
+//! are the backdrop plus one image of the ball per flash, up to where the channel clips. The
+//! image is the photo's own: its isolated images shifted onto their fitted centres and averaged
+//! on a half-pixel grid, per channel (an effective point-spread function, Anderson & King, PASP
+//! 112, 2000), so any shading, highlight or blur is in it. The images sit
+//! at c(m) = c0 + v m + a m^2 / 2 for flash offset m (constant acceleration, equal flash
+//! intervals); their common brightness and a constant are solved linearly at every step (variable
+//! projection, Golub & Pereyra, SIAM J. Numer. Anal. 10, 1973), per channel, the motion by
+//! Levenberg-Marquardt with a forward-difference Jacobian. Clipped samples are left out: a
+//! coloured ball's stack of images clips its strongest channel first, and the others still add
+//! the images up (a white ball's stack clips in all three and tells little). A predicted image is kept when adding it lowers the misfit by a clear margin,
+//! `n ln(RSS_without / RSS_with) >= 25`, n the pixels over the correlation factor of their
+//! residuals: "no ball here" must lose by what a five-sigma detection would.
+
+use crate::core::light::Tone;
+use crate::core::stats::MAD_TO_SIGMA;
+use crate::detect::shaded::{WindowPixel, pixel_correlation_factor};
+use image::RgbImage;
+use nalgebra::{SMatrix, SVector};
+use rayon::prelude::*;
+
+/// A photo's colour pixels in linear light, with its clean plate when there is one.
+pub struct Pixels<'a> {
+    /// The photo in colour.
+    pub rgb: &'a RgbImage,
+    /// Its clean plate in colour.
+    pub plate: Option<&'a RgbImage>,
+    /// Its tone curve.
+    pub tone: Tone,
+}
+
+impl Pixels<'_> {
+    /// The stored value of channel `c` at (x, y), 0..1.
+    fn stored(&self, x: usize, y: usize, c: usize) -> f32 {
+        self.rgb.get_pixel(x as u32, y as u32)[c] as f32 / 255.0
+    }
+
+    /// Linear light of channel `c` at (x, y), less the plate's.
+    fn excess(&self, x: usize, y: usize, c: usize) -> f64 {
+        let plate = self.plate.map_or(0.0, |p| {
+            self.tone
+                .to_linear(p.get_pixel(x as u32, y as u32)[c] as f32 / 255.0)
+        });
+        self.tone.to_linear(self.stored(x, y, c)) - plate
+    }
+
+    fn size(&self) -> (usize, usize) {
+        (self.rgb.width() as usize, self.rgb.height() as usize)
+    }
+}
+
+/// One image of the ball: its light over the backdrop around its centre, per colour channel, on
+/// a grid of half-pixel steps; None for a channel the isolated images clip.
+#[derive(Debug, Clone)]
+pub struct Template {
+    /// Half the side of the grid, in steps.
+    half: i64,
+    /// Row-major values per channel, side 2 half + 1.
+    values: [Option<Vec<f64>>; 3],
+}
+
+/// Grid step of a [`Template`], pixels.
+const TEMPLATE_STEP: f64 = 0.5;
+
+/// Fewest isolated images a template is learned from.
+const TEMPLATE_MIN_IMAGES: usize = 5;
+
+/// A channel whose isolated images clip in more than this fraction of their samples is not used.
+const TEMPLATE_MAX_CLIPPED: f64 = 0.002;
+
+impl Template {
+    /// The photo's image of the ball, learned from the images at `centres` (fitted centres of
+    /// isolated images, radius `r_px`): every sample within r + 3 of a centre, less the median of
+    /// the image's ring r + 3 .. r + 6 (the backdrop there), goes to the grid node nearest its
+    /// offset, and each node is the mean of its samples (a node no sample reached takes the mean
+    /// of its neighbours). None with fewer than five images inside the frame or when every
+    /// channel clips.
+    pub fn learn(pixels: &Pixels, centres: &[[f64; 2]], r_px: f64) -> Option<Template> {
+        let reach = r_px + OUTSIDE_PX;
+        let ring = reach + OUTSIDE_PX;
+        let half = (reach / TEMPLATE_STEP).ceil() as i64;
+        let (w, h) = pixels.size();
+        let inside: Vec<&[f64; 2]> = centres
+            .iter()
+            .filter(|c| c[0] - ring >= 0.0 && c[1] - ring >= 0.0)
+            .filter(|c| c[0] + ring <= w as f64 - 1.0 && c[1] + ring <= h as f64 - 1.0)
+            .collect();
+        if inside.len() < TEMPLATE_MIN_IMAGES {
+            return None;
+        }
+        let values = [0, 1, 2].map(|ch| learn_channel(pixels, &inside, ch, half, reach));
+        values
+            .iter()
+            .any(Option::is_some)
+            .then_some(Template { half, values })
+    }
+
+    /// Light of images at `centres` at (x, y) in channel `c`: bilinear between the grid's
+    /// nodes, 0 off the grid.
+    fn light_of(&self, c: usize, centres: &[[f64; 2]], x: f64, y: f64) -> f64 {
+        let Some(values) = &self.values[c] else {
+            return 0.0;
+        };
+        let side = 2 * self.half + 1;
+        let s = side as usize;
+        let g = |a: usize, b: usize| values[b * s + a];
+        let mut sum = 0.0;
+        for p in centres {
+            let u = (x - p[0]) / TEMPLATE_STEP + self.half as f64;
+            let v = (y - p[1]) / TEMPLATE_STEP + self.half as f64;
+            if !(u >= 0.0 && v >= 0.0 && u < (side - 1) as f64 && v < (side - 1) as f64) {
+                continue;
+            }
+            let (i, j) = (u as usize, v as usize);
+            let (fu, fv) = (u - i as f64, v - j as f64);
+            sum += (1.0 - fv) * ((1.0 - fu) * g(i, j) + fu * g(i + 1, j))
+                + fv * ((1.0 - fu) * g(i, j + 1) + fu * g(i + 1, j + 1));
+        }
+        sum
+    }
+}
+
+/// One channel of a [`Template`] (see [`Template::learn`]); None when it clips.
+fn learn_channel(
+    pixels: &Pixels,
+    inside: &[&[f64; 2]],
+    ch: usize,
+    half: i64,
+    reach: f64,
+) -> Option<Vec<f64>> {
+    let side = (2 * half + 1) as usize;
+    let mut sum = vec![0.0; side * side];
+    let mut count = vec![0usize; side * side];
+    let (mut clipped, mut total) = (0usize, 0usize);
+    for c in inside {
+        let ring = reach + OUTSIDE_PX;
+        let (x0, y0) = ((c[0] - ring).ceil() as usize, (c[1] - ring).ceil() as usize);
+        let (x1, y1) = (
+            (c[0] + ring).floor() as usize,
+            (c[1] + ring).floor() as usize,
+        );
+        let mut backdrop = Vec::new();
+        let mut disc = Vec::new();
+        for y in y0..=y1 {
+            for x in x0..=x1 {
+                let d = (x as f64 - c[0]).hypot(y as f64 - c[1]);
+                if d > reach && d <= ring {
+                    backdrop.push(pixels.excess(x, y, ch));
+                } else if d <= reach {
+                    total += 1;
+                    clipped += usize::from(pixels.stored(x, y, ch) >= CLIPPED);
+                    disc.push((x, y, pixels.excess(x, y, ch)));
+                }
+            }
+        }
+        if backdrop.is_empty() {
+            continue;
+        }
+        backdrop.sort_by(f64::total_cmp);
+        let level = backdrop[backdrop.len() / 2];
+        for (x, y, v) in disc {
+            let i = ((x as f64 - c[0]) / TEMPLATE_STEP).round() as i64 + half;
+            let j = ((y as f64 - c[1]) / TEMPLATE_STEP).round() as i64 + half;
+            if (0..side as i64).contains(&i) && (0..side as i64).contains(&j) {
+                let k = j as usize * side + i as usize;
+                sum[k] += v - level;
+                count[k] += 1;
+            }
+        }
+    }
+    if clipped as f64 > TEMPLATE_MAX_CLIPPED * total as f64 {
+        return None;
+    }
+    let mut values: Vec<f64> = sum
+        .iter()
+        .zip(&count)
+        .map(|(s, &n)| if n > 0 { s / n as f64 } else { f64::NAN })
+        .collect();
+    fill_gaps(&mut values, side);
+    values.iter().all(|v| v.is_finite()).then_some(values)
+}
+
+/// Nodes that are NaN take the mean of their finite neighbours, repeatedly, until none is left
+/// (or none can be filled).
+fn fill_gaps(values: &mut [f64], side: usize) {
+    loop {
+        let holes: Vec<usize> = (0..values.len()).filter(|&k| values[k].is_nan()).collect();
+        if holes.is_empty() {
+            return;
+        }
+        let mut filled = 0;
+        let before = values.to_vec();
+        for k in holes {
+            let (i, j) = ((k % side) as i64, (k / side) as i64);
+            let (mut s, mut n) = (0.0, 0);
+            for (di, dj) in [(-1, 0), (1, 0), (0, -1), (0, 1)] {
+                let (a, b) = (i + di, j + dj);
+                if a >= 0 && b >= 0 && a < side as i64 && b < side as i64 {
+                    let v = before[b as usize * side + a as usize];
+                    if v.is_finite() {
+                        s += v;
+                        n += 1;
+                    }
+                }
+            }
+            if n > 0 {
+                values[k] = s / n as f64;
+                filled += 1;
+            }
+        }
+        if filled == 0 {
+            return;
+        }
+    }
+}
+
+/// A stretch's motion in pixels: the centre at flash offset m is c0 + v m + a m^2 / 2.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct Motion {
+    /// Centre at offset 0, pixels.
+    pub c0_px: [f64; 2],
+    /// Displacement per flash at offset 0, pixels.
+    pub v_px: [f64; 2],
+    /// Change of the displacement per flash, pixels per flash squared.
+    pub a_px: [f64; 2],
+}
+
+impl Motion {
+    /// The centre at flash offset `m`.
+    pub fn at(&self, m: f64) -> [f64; 2] {
+        [0, 1].map(|i| self.c0_px[i] + self.v_px[i] * m + 0.5 * self.a_px[i] * m * m)
+    }
+
+    /// The displacement per flash at offset `m`.
+    pub fn velocity(&self, m: f64) -> [f64; 2] {
+        [0, 1].map(|i| self.v_px[i] + self.a_px[i] * m)
+    }
+
+    /// The least-squares motion through `points` (flash offset, centre); None with fewer than
+    /// three distinct offsets.
+    pub fn through(points: &[(i64, [f64; 2])]) -> Option<Motion> {
+        let mut ata = SMatrix::<f64, 3, 3>::zeros();
+        let mut atb = [SVector::<f64, 3>::zeros(); 2];
+        for &(m, c) in points {
+            let m = m as f64;
+            let row = SVector::<f64, 3>::new(1.0, m, 0.5 * m * m);
+            ata += row * row.transpose();
+            for i in 0..2 {
+                atb[i] += row * c[i];
+            }
+        }
+        let lu = ata.lu();
+        let [x, y] = [0, 1].map(|i| lu.solve(&atb[i]));
+        let (x, y) = (x?, y?);
+        let m = Motion {
+            c0_px: [x[0], y[0]],
+            v_px: [x[1], y[1]],
+            a_px: [x[2], y[2]],
+        };
+        m.params().iter().all(|v| v.is_finite()).then_some(m)
+    }
+
+    fn params(&self) -> [f64; 6] {
+        let (c, v, a) = (self.c0_px, self.v_px, self.a_px);
+        [c[0], c[1], v[0], v[1], a[0], a[1]]
+    }
+
+    fn from_params(p: &[f64]) -> Motion {
+        Motion {
+            c0_px: [p[0], p[1]],
+            v_px: [p[2], p[3]],
+            a_px: [p[4], p[5]],
+        }
+    }
+}
+
+/// What the pixels said about a stretch.
+#[derive(Debug, Clone, PartialEq)]
+pub struct ChainFit {
+    /// The predicted images the pixels hold: flash offset, centre, 1-sigma per axis (pixels), in
+    /// the order they were tried.
+    pub added: Vec<(i64, [f64; 2], f64)>,
+    /// The motion fitted to the pixels.
+    pub motion: Motion,
+}
+
+/// A predicted image is kept when it lowers `n ln RSS` by at least this.
+const MARGIN: f64 = 25.0;
+
+/// Samples farther than this beyond a rim do not enter the window, pixels.
+const OUTSIDE_PX: f64 = 3.0;
+
+/// Largest number of pixels fitted (a larger window is thinned on a regular grid).
+const BUDGET: usize = 6000;
+
+/// Stored values at or above this (of full scale) are clipped.
+const CLIPPED: f32 = 0.995;
+
+/// Parameters: the motion.
+const NP: usize = 6;
+
+/// Linear terms per channel: the images' brightness and a constant.
+const NL: usize = 2;
+
+/// Residuals beyond this many robust sigmas are outliers.
+const OUTLIER_SIGMAS: f64 = 4.0;
+
+/// Rounds of counting and fitting.
+const ROUNDS: usize = 4;
+
+/// Levenberg-Marquardt steps per fit.
+const STEPS: usize = 25;
+
+/// One sample of the window: a pixel's light over the backdrop in one colour channel.
+#[derive(Debug, Clone, Copy)]
+struct Sample {
+    x_px: f64,
+    y_px: f64,
+    channel: usize,
+    value: f64,
+}
+
+/// Fit the stretch of images `found` (flash offset, centre; every flash between the first and
+/// the last of them put an image on the motion, found or not) with the first k of the predicted
+/// offsets `trials`, for k = 0, 1, ... until the fitted motion turns before the next (an image
+/// past the turning point is no longer on the motion), all on the same samples. The pixels hold
+/// the k of least misfit, as far as each of them lowered the misfit by the margin of the
+/// module's doc. `others` are images of the photo near the stretch that are not on it (held
+/// where they are), `one` the photo's image of the ball, `r_px` its radius. None when the
+/// stretch cannot be fitted (fewer than three found images, too few samples) or its fit moves a
+/// found image by more than a quarter of a radius.
+pub fn fit_chain(
+    pixels: &Pixels,
+    one: &Template,
+    found: &[(i64, [f64; 2])],
+    trials: &[i64],
+    others: &[[f64; 2]],
+    r_px: f64,
+) -> Option<ChainFit> {
+    let start = Motion::through(found)?;
+    let mut centres: Vec<[f64; 2]> = found.iter().map(|f| f.1).collect();
+    centres.extend(trials.iter().map(|&m| start.at(m as f64)));
+    let window = window(pixels, one, &centres, r_px + OUTSIDE_PX);
+    if window.len() < 30 {
+        return None;
+    }
+    let lo = found.iter().map(|f| f.0).min()?;
+    let hi = found.iter().map(|f| f.0).max()?;
+    let offsets: Vec<i64> = (lo..=hi).collect();
+    let spanned = offsets.len();
+    // Fitted once on every sample, and again without the outliers of that fit (an edge of the
+    // backdrop the fit has no term for: the track under a rolling ball).
+    let (first, _) = count_and_fit(&window, (&offsets, trials), others, one, start.params())?;
+    let motion = Motion::from_params(&first.p);
+    let mut lit: Vec<[f64; 2]> = (lo..=hi)
+        .chain(trials.iter().copied())
+        .map(|m| motion.at(m as f64))
+        .collect();
+    lit.extend_from_slice(others);
+    let window = without_outliers(&window, &first.res, |s| {
+        lit.iter()
+            .all(|c| (s.x_px - c[0]).hypot(s.y_px - c[1]) > r_px + 0.5)
+    });
+    let (best, offsets) = count_and_fit(&window, (&offsets, trials), others, one, first.p)?;
+    // The fit that holds the predicted images keeps the found ones where they were found.
+    let motion = Motion::from_params(&best.p);
+    let moved = found.iter().any(|&(o, c)| {
+        let at = motion.at(o as f64);
+        (at[0] - c[0]).hypot(at[1] - c[1]) > 0.25 * r_px
+    });
+    if moved {
+        return None;
+    }
+    let kept = &offsets[spanned..];
+    if kept.is_empty() {
+        return Some(ChainFit {
+            added: Vec::new(),
+            motion,
+        });
+    }
+    let mut added = best.centres(kept, &window);
+    // The count is a model choice: the fit with one image more (or, at the turn, one fewer)
+    // moves the centres by what that choice is worth, and their sigma holds it.
+    let k = kept.len();
+    let alternative = if k < trials.len() { k + 1 } else { k - 1 };
+    let mut alt = offsets[..spanned].to_vec();
+    alt.extend_from_slice(&trials[..alternative]);
+    let model = Model {
+        window: &window,
+        offsets: alt,
+        others,
+        one,
+    };
+    let other = Motion::from_params(&model.lm(best.p)?.p);
+    for (m, c, sigma) in &mut added {
+        let o = other.at(*m as f64);
+        let shift = (c[0] - o[0]).hypot(c[1] - o[1]);
+        *sigma = sigma.hypot(shift);
+    }
+    Some(ChainFit { added, motion })
+}
+
+/// Count the images of `trials` the pixels of `window` hold after those at `offsets` with the
+/// motion held at `p`, fit the motion to that many images, and count again with the motion
+/// fitted, until the count holds ([`ROUNDS`] at most): the fit and its offsets.
+fn count_and_fit(
+    window: &[Sample],
+    (offsets, trials): (&[i64], &[i64]),
+    others: &[[f64; 2]],
+    one: &Template,
+    mut p: [f64; NP],
+) -> Option<(Fitted, Vec<i64>)> {
+    let model = |offsets: &[i64]| Model {
+        window,
+        offsets: offsets.to_vec(),
+        others,
+        one,
+    };
+    let mut k = usize::MAX;
+    let mut best = None;
+    for _ in 0..ROUNDS {
+        let counted = count(&model, offsets, trials, &p, window)?;
+        if counted == k {
+            break;
+        }
+        k = counted;
+        let mut with = offsets.to_vec();
+        with.extend_from_slice(&trials[..k]);
+        let fitted = model(&with).lm(p)?;
+        p = fitted.p;
+        best = Some((fitted, with));
+    }
+    let (mut fitted, mut k) = (best?.0, k);
+    // The count with the motion held favours the motion it was held at: one image more or
+    // fewer, each with its own motion fitted, is taken while the pixels prefer it by the margin.
+    let with = |k: usize| [offsets, &trials[..k]].concat();
+    let n_eff = window.len() as f64 / correlation_factor(window, &fitted.res);
+    let gain = |a: &Fitted, b: &Fitted| n_eff * (a.rss / b.rss).ln();
+    while k < trials.len() {
+        match model(&with(k + 1)).lm(fitted.p) {
+            Some(more) if gain(&fitted, &more) >= MARGIN => (fitted, k) = (more, k + 1),
+            _ => break,
+        }
+    }
+    while k > 0 {
+        match model(&with(k - 1)).lm(fitted.p) {
+            Some(fewer) if gain(&fewer, &fitted) < MARGIN => (fitted, k) = (fewer, k - 1),
+            _ => break,
+        }
+    }
+    Some((fitted, with(k)))
+}
+
+/// The samples of `window` less those `outside` takes (off every image) whose residual `res`
+/// is beyond [`OUTLIER_SIGMAS`] robust sigmas (1.4826 MAD) from zero, per channel: light the
+/// images do not explain inside them may be an image not counted yet.
+fn without_outliers(
+    window: &[Sample],
+    res: &[f64],
+    outside: impl Fn(&Sample) -> bool,
+) -> Vec<Sample> {
+    let cut = [0, 1, 2].map(|c| {
+        let mut abs: Vec<f64> = window
+            .iter()
+            .zip(res)
+            .filter(|(s, _)| s.channel == c)
+            .map(|(_, r)| r.abs())
+            .collect();
+        if abs.is_empty() {
+            return f64::INFINITY;
+        }
+        let mid = abs.len() / 2;
+        let mad = *abs.select_nth_unstable_by(mid, f64::total_cmp).1;
+        OUTLIER_SIGMAS * MAD_TO_SIGMA * mad
+    });
+    window
+        .iter()
+        .zip(res)
+        .filter(|(s, r)| r.abs() <= cut[s.channel] || !outside(s))
+        .map(|(s, _)| *s)
+        .collect()
+}
+
+/// How many of `trials`, after the images at `offsets`, the pixels hold with the motion held
+/// at `p`: the number of least misfit, as far as each image up to it lowered the misfit by the
+/// margin. Images past the motion's turning point are not tried.
+fn count<'a>(
+    model: &impl Fn(&[i64]) -> Model<'a>,
+    offsets: &[i64],
+    trials: &[i64],
+    p: &[f64; NP],
+    window: &[Sample],
+) -> Option<usize> {
+    let motion = Motion::from_params(p);
+    let v0 = motion.velocity(0.0);
+    let turned = |m: i64| {
+        let v = motion.velocity(m as f64);
+        v0[0] * v[0] + v0[1] * v[1] <= 0.0
+    };
+    let mut with = offsets.to_vec();
+    let mut res = Vec::new();
+    let mut rss = vec![model(&with).residuals(p, &mut res)?];
+    for &m in trials.iter().take_while(|&&m| !turned(m)) {
+        with.push(m);
+        rss.push(model(&with).residuals(p, &mut res)?);
+    }
+    let k_best = (0..rss.len()).min_by(|&a, &b| rss[a].total_cmp(&rss[b]))?;
+    let mut with = offsets.to_vec();
+    with.extend_from_slice(&trials[..k_best]);
+    model(&with).residuals(p, &mut res)?;
+    let n_eff = window.len() as f64 / correlation_factor(window, &res);
+    Some(
+        (1..=k_best)
+            .take_while(|&k| n_eff * (rss[k - 1] / rss[k]).ln() >= MARGIN)
+            .count(),
+    )
+}
+
+/// The samples within `reach` of any of `centres` in the channels `one` holds, their light over
+/// the backdrop (linear); clipped samples are left out, and a large window is thinned on a
+/// regular grid to [`BUDGET`] pixels.
+fn window(pixels: &Pixels, one: &Template, centres: &[[f64; 2]], reach: f64) -> Vec<Sample> {
+    let (w, h) = pixels.size();
+    let lo = |i: usize| centres.iter().map(|c| c[i]).fold(f64::INFINITY, f64::min) - reach;
+    let hi = |i: usize| {
+        centres
+            .iter()
+            .map(|c| c[i])
+            .fold(f64::NEG_INFINITY, f64::max)
+            + reach
+    };
+    let (x0, y0) = (lo(0).floor().max(0.0), lo(1).floor().max(0.0));
+    let (x1, y1) = (
+        hi(0).ceil().min(w as f64 - 1.0),
+        hi(1).ceil().min(h as f64 - 1.0),
+    );
+    if !(x0 <= x1 && y0 <= y1) {
+        return Vec::new();
+    }
+    let inside = |x: usize, y: usize| {
+        centres
+            .iter()
+            .any(|c| (x as f64 - c[0]).hypot(y as f64 - c[1]) <= reach)
+    };
+    let grid = |stride: usize| {
+        (y0 as usize..=y1 as usize)
+            .step_by(stride)
+            .flat_map(move |y| {
+                (x0 as usize..=x1 as usize)
+                    .step_by(stride)
+                    .map(move |x| (x, y))
+            })
+    };
+    let mut stride = 1;
+    while grid(stride).filter(|&(x, y)| inside(x, y)).count() > BUDGET {
+        stride += 1;
+    }
+    let channels: Vec<usize> = (0..3).filter(|&c| one.values[c].is_some()).collect();
+    grid(stride)
+        .filter(|&(x, y)| inside(x, y))
+        .flat_map(|(x, y)| channels.iter().map(move |&c| (x, y, c)))
+        .filter(|&(x, y, c)| pixels.stored(x, y, c) < CLIPPED)
+        .map(|(x, y, c)| Sample {
+            x_px: x as f64,
+            y_px: y as f64,
+            channel: c,
+            value: pixels.excess(x, y, c),
+        })
+        .collect()
+}
+
+/// Variance inflation of correlated residuals: [`pixel_correlation_factor`] of the channel with
+/// the most samples.
+fn correlation_factor(window: &[Sample], res: &[f64]) -> f64 {
+    let busiest = (0..3)
+        .max_by_key(|&c| window.iter().filter(|s| s.channel == c).count())
+        .unwrap_or(0);
+    let (pixels, res): (Vec<WindowPixel>, Vec<f64>) = window
+        .iter()
+        .zip(res)
+        .filter(|(s, _)| s.channel == busiest)
+        .map(|(s, r)| {
+            let q = WindowPixel {
+                x_px: s.x_px,
+                y_px: s.y_px,
+                value: s.value,
+                backdrop: 0.0,
+            };
+            (q, *r)
+        })
+        .unzip();
+    pixel_correlation_factor(&pixels, &res)
+}
+
+/// The images of a stretch at the flash offsets `offsets` plus the `others` held in place, all
+/// the photo's image `one`, against the samples of `window`.
+struct Model<'a> {
+    window: &'a [Sample],
+    offsets: Vec<i64>,
+    others: &'a [[f64; 2]],
+    one: &'a Template,
+}
+
+/// Where a fit ended: parameters, residual sum of squares, residuals, normal matrix.
+struct Fitted {
+    p: [f64; NP],
+    rss: f64,
+    res: Vec<f64>,
+    jtj: SMatrix<f64, NP, NP>,
+}
+
+impl Fitted {
+    /// The centres at `offsets` and their 1-sigma per axis from the fit's covariance (the
+    /// Gauss-Newton one scaled by the residual variance and the samples' correlation factor).
+    fn centres(&self, offsets: &[i64], window: &[Sample]) -> Vec<(i64, [f64; 2], f64)> {
+        let dof = window.len().saturating_sub(NP + 3 * NL).max(1) as f64;
+        let scale = self.rss / dof * correlation_factor(window, &self.res);
+        let cov = self
+            .jtj
+            .try_inverse()
+            .map(|c| c * scale)
+            .unwrap_or_else(|| SMatrix::<f64, NP, NP>::from_element(f64::NAN));
+        let motion = Motion::from_params(&self.p);
+        offsets
+            .iter()
+            .map(|&m| {
+                let mf = m as f64;
+                let var = |axis: usize| {
+                    let mut g = SVector::<f64, NP>::zeros();
+                    g[axis] = 1.0;
+                    g[2 + axis] = mf;
+                    g[4 + axis] = 0.5 * mf * mf;
+                    (g.transpose() * cov * g)[(0, 0)]
+                };
+                let sigma = (0.5 * (var(0) + var(1))).max(0.0).sqrt();
+                (m, motion.at(mf), sigma)
+            })
+            .collect()
+    }
+}
+
+impl Model<'_> {
+    /// Residuals of the best brightness and constant per channel at parameters `p` into `out`;
+    /// their sum of squares.
+    fn residuals(&self, p: &[f64; NP], out: &mut Vec<f64>) -> Option<f64> {
+        let motion = Motion::from_params(p);
+        let mut centres: Vec<[f64; 2]> =
+            self.offsets.iter().map(|&m| motion.at(m as f64)).collect();
+        centres.extend_from_slice(self.others);
+        let light: Vec<f64> = self
+            .window
+            .iter()
+            .map(|q| self.one.light_of(q.channel, &centres, q.x_px, q.y_px))
+            .collect();
+        let mut ata = [SMatrix::<f64, NL, NL>::zeros(); 3];
+        let mut atb = [SVector::<f64, NL>::zeros(); 3];
+        for (l, q) in light.iter().zip(self.window) {
+            let v = SVector::<f64, NL>::new(*l, 1.0);
+            ata[q.channel] += v * v.transpose();
+            atb[q.channel] += v * q.value;
+        }
+        let mut coef = [SVector::<f64, NL>::zeros(); 3];
+        for c in 0..3 {
+            if ata[c][(1, 1)] > 0.0 {
+                coef[c] = ata[c].cholesky()?.solve(&atb[c]);
+            }
+        }
+        out.clear();
+        out.extend(
+            light
+                .iter()
+                .zip(self.window)
+                .map(|(l, q)| q.value - coef[q.channel][0] * l - coef[q.channel][1]),
+        );
+        Some(out.iter().map(|r| r * r).sum())
+    }
+
+    /// The normal equations at `p` (residuals `base`), the Jacobian by forward differences.
+    fn normal(
+        &self,
+        p: &[f64; NP],
+        base: &[f64],
+    ) -> Option<(SMatrix<f64, NP, NP>, SVector<f64, NP>)> {
+        let cols: Vec<Vec<f64>> = (0..NP)
+            .into_par_iter()
+            .map(|k| {
+                let h = 1e-3 * (1.0 + p[k].abs());
+                let mut q = *p;
+                q[k] += h;
+                let mut r = Vec::with_capacity(base.len());
+                self.residuals(&q, &mut r)?;
+                Some(r.iter().zip(base).map(|(a, b)| (a - b) / h).collect())
+            })
+            .collect::<Option<_>>()?;
+        let mut jtj = SMatrix::<f64, NP, NP>::zeros();
+        let mut jtr = SVector::<f64, NP>::zeros();
+        for a in 0..NP {
+            jtr[a] = cols[a].iter().zip(base).map(|(j, r)| j * r).sum();
+            for b in a..NP {
+                let v: f64 = cols[a].iter().zip(&cols[b]).map(|(x, y)| x * y).sum();
+                jtj[(a, b)] = v;
+                jtj[(b, a)] = v;
+            }
+        }
+        Some((jtj, jtr))
+    }
+
+    /// Levenberg-Marquardt from `p`.
+    fn lm(&self, mut p: [f64; NP]) -> Option<Fitted> {
+        let mut res = Vec::with_capacity(self.window.len());
+        let mut rss = self.residuals(&p, &mut res)?;
+        let (mut jtj, mut jtr) = self.normal(&p, &res)?;
+        let mut lambda = 1e-3;
+        let mut trial_res = Vec::with_capacity(res.len());
+        let mut steps = 0;
+        while steps < STEPS && lambda < 1e9 {
+            let mut a = jtj;
+            for i in 0..NP {
+                a[(i, i)] += lambda * jtj[(i, i)].max(1e-12);
+            }
+            let Some(step) = a.lu().solve(&(-jtr)) else {
+                break;
+            };
+            let mut trial = p;
+            for k in 0..NP {
+                trial[k] += step[k];
+            }
+            match self.residuals(&trial, &mut trial_res) {
+                Some(f) if f <= rss && trial.iter().all(|v| v.is_finite()) => {
+                    let done = rss - f <= 1e-7 * rss;
+                    p = trial;
+                    rss = f;
+                    std::mem::swap(&mut res, &mut trial_res);
+                    lambda = (lambda * 0.3).max(1e-9);
+                    steps += 1;
+                    (jtj, jtr) = self.normal(&p, &res)?;
+                    if done {
+                        break;
+                    }
+                }
+                _ => lambda *= 10.0,
+            }
+        }
+        Some(Fitted { p, rss, res, jtj })
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn a_motion_through_points_on_a_parabola_is_that_parabola() {
+        let truth = Motion {
+            c0_px: [100.0, 50.0],
+            v_px: [8.0, -3.0],
+            a_px: [1.5, 0.25],
+        };
+        let points: Vec<(i64, [f64; 2])> = (0..5).map(|m| (m, truth.at(m as f64))).collect();
+        let fitted = Motion::through(&points).expect("five points");
+        for (a, b) in fitted.params().iter().zip(truth.params()) {
+            assert!((a - b).abs() < 1e-9, "{a} vs {b}");
+        }
+        let v = fitted.velocity(-2.0);
+        assert!(
+            (v[0] - 5.0).abs() < 1e-9 && (v[1] + 3.5).abs() < 1e-9,
+            "{v:?}"
+        );
+        assert!(Motion::through(&points[..2]).is_none());
+    }
+}
