@@ -16,6 +16,8 @@ use crate::report::measure::{MeasureDoc, PathEntry, WorldOrigin};
 use crate::track::{self, PathOptions, PathPoint, PathResult, StrayReason};
 use std::path::{Path, PathBuf};
 
+mod crowded;
+
 /// Where the pixel-to-metre scale comes from.
 #[derive(Debug, Clone, PartialEq)]
 pub enum ScaleSource {
@@ -428,17 +430,15 @@ fn measure_validated(
         Some(confirmed) => confirmed,
         None => (report, paths, points, first),
     };
-    let (report, paths, points, first) = match crowded_start(
+    let (report, paths, points, first) = crowded::crowded(
         pixels.then_some((photo_path, settings)),
-        (&report, &paths, &first),
+        &calibration,
+        (report, paths, points, first),
         (timed, |p: &[TimedPoint]| {
             physics::measure(p, radius_m, &physics_options)
         }),
         r_px,
-    ) {
-        Some(extended) => extended,
-        None => (report, paths, points, first),
-    };
+    );
     let best = &paths.paths[0];
     let frame = ResultFrame::of(&first, &physics_options);
     let plane = matches!(settings.scale, Some(ScaleSource::Plane(_)));
@@ -591,185 +591,13 @@ fn second_pass(
         .retain(|n| !confirmed.iter().any(|c| c.0 == *n));
     let points: Vec<TimedPoint> = path.points.iter().map(&timed).collect();
     let m = measure(&points).ok()?;
-    let no_worse = [CheckOutcome::Fail, CheckOutcome::Warn]
-        .iter()
-        .all(|&o| count(&m, o) <= count(first, o));
     // The images fill gaps inside phases: the phases and bounces stay what they were.
-    let kinds = |m: &physics::Measurement| m.phases.iter().map(|p| p.kind).collect::<Vec<_>>();
-    let same_story = kinds(&m) == kinds(first) && m.bounces.len() == first.bounces.len();
-    (no_worse && same_story).then_some((report, paths, points, m))
-}
-
-/// Most images a crowded start is searched for.
-const START_TRIALS: i64 = 60;
-
-/// Found images of the incline that seed the motion of a crowded start.
-const START_SEEDS: usize = 6;
-
-/// The crowded start of a roll ([`detect::chain::fit_chain`]): when the path begins on the
-/// incline, the flashes before its first image are predicted from the motion of its first
-/// images and tried against the pixels of the photo (`photo`: its file and the settings),
-/// one by one backwards until one is not there or the motion turns (the release). The images
-/// the pixels hold join the best path, found `predicted_and_confirmed`, and the physics
-/// (`measure` of points made by `timed`) runs again; kept only when no more checks fail or warn
-/// and the phases and bounces stay the same. `r_px` is the path's median radius. None when
-/// nothing was added or it was not kept.
-fn crowded_start(
-    photo: Option<(&Path, &MeasureSettings)>,
-    (report, paths, first): (&SpotReport, &PathResult, &physics::Measurement),
-    (timed, measure): (
-        impl Fn(&PathPoint) -> TimedPoint,
-        impl Fn(&[TimedPoint]) -> Result<physics::Measurement>,
-    ),
-    r_px: f64,
-) -> Option<(
-    SpotReport,
-    PathResult,
-    Vec<TimedPoint>,
-    physics::Measurement,
-)> {
-    let (photo_path, settings) = photo?;
-    let phase = first.phases.first()?;
-    let best = paths.paths.first()?;
-    if phase.kind != PhaseKind::Incline {
-        return None;
-    }
-    let n0 = best.points.first()?.n;
-    let seeds: Vec<&PathPoint> = best
-        .points
-        .iter()
-        .filter(|p| p.n <= phase.last_n)
-        .take(START_SEEDS)
-        .collect();
-    let found: Vec<(i64, [f64; 2])> = seeds
-        .iter()
-        .map(|p| ((p.n - n0) as i64, [p.x_px, p.y_px]))
-        .collect();
-    let start = detect::chain::Motion::through(&found)?;
-    let (w, h) = (report.width_px as f64, report.height_px as f64);
-    let v0 = start.velocity(0.0);
-    let trials: Vec<i64> = (1..=START_TRIALS)
-        .map(|k| -k)
-        .take_while(|&m| {
-            let [x, y] = start.at(m as f64);
-            // Three flashes past the turn of the first images' motion: the pixels' fit moves it.
-            let v = start.velocity(m as f64 + 3.0);
-            (0.0..w).contains(&x) && (0.0..h).contains(&y) && v[0] * v0[0] + v[1] * v0[1] > 0.0
-        })
-        .collect();
-    let reach = 2.0 * r_px + 3.0;
-    let near: Vec<[f64; 2]> = found
-        .iter()
-        .map(|f| f.1)
-        .chain(trials.iter().map(|&m| start.at(m as f64)))
-        .collect();
-    let others: Vec<[f64; 2]> = report
-        .spots
-        .iter()
-        .enumerate()
-        .filter(|(i, _)| !seeds.iter().any(|p| p.spot_index == *i))
-        .map(|(_, s)| [s.x_px, s.y_px])
-        .filter(|s| {
-            near.iter()
-                .any(|c| (s[0] - c[0]).hypot(s[1] - c[1]) < reach)
-        })
-        // A spot on the predicted course is some of the images tried, merged.
-        .filter(|s| {
-            !trials.iter().any(|&m| {
-                let c = start.at(m as f64);
-                (s[0] - c[0]).hypot(s[1] - c[1]) < r_px
-            })
-        })
-        .collect();
-    let load = |p: &Path| crate::image::load::load_colour(p, &settings.load).ok();
-    let rgb = load(photo_path)?;
-    let plate_rgb = match &settings.plate {
-        Some(p) => Some(load(p)?),
-        None => None,
-    };
-    let pixels = detect::chain::Pixels {
-        rgb: &rgb,
-        plate: plate_rgb.as_ref(),
-        tone: settings.spots.tone,
-    };
-    let one =
-        detect::chain::Template::learn(&pixels, &isolated_centres(report, paths, r_px), r_px)?;
-    let fit = detect::chain::fit_chain(&pixels, &one, &found, &trials, &others, r_px)?;
-    let k = fit.added.len();
-    if k == 0 {
-        return None;
-    }
-    let (mut report, mut paths) = (report.clone(), paths.clone());
-    // The images before the first take the first flash indices; the path's shift by as many.
-    let shift = k.saturating_sub(n0);
-    for p in &mut paths.paths[0].points {
-        p.n += shift;
-    }
-    for &(m, [x_px, y_px], sigma_px) in &fit.added {
-        let spot = Spot {
-            x_px,
-            y_px,
-            r_px,
-            sigma_px,
-            score: 0.0,
-            source: SpotSource::PredictedAndConfirmed,
-        };
-        // A stray on the image is a detection of the merged images it is one of: it becomes
-        // this image.
-        let merged = paths
-            .strays
-            .iter()
-            .position(|s| (s.x_px - x_px).hypot(s.y_px - y_px) < 0.5 * r_px);
-        let spot_index = match merged {
-            Some(i) => {
-                let index = paths.strays.remove(i).spot_index;
-                report.spots[index] = spot;
-                index
-            }
-            None => {
-                report.spots.push(spot);
-                report.spots.len() - 1
-            }
-        };
-        paths.paths[0].points.push(PathPoint {
-            n: (n0 as i64 + shift as i64 + m) as usize,
-            spot_index,
-            x_px,
-            y_px,
-            r_px,
-            sigma_px,
-        });
-    }
-    let path = &mut paths.paths[0];
-    path.points.sort_by_key(|p| p.n);
-    let points: Vec<TimedPoint> = path.points.iter().map(&timed).collect();
-    let paths = renumbered(paths, &points);
-    let m = measure(&points).ok()?;
     kept_if_no_worse(first, &m).then_some((report, paths, points, m))
-}
-
-/// Centres of the isolated images of the best path: its flashes before and after are on it
-/// (no unfound image beside it) and no spot of `report` lies within 2.2 radii (`r_px`).
-fn isolated_centres(report: &SpotReport, paths: &PathResult, r_px: f64) -> Vec<[f64; 2]> {
-    let Some(best) = paths.paths.first() else {
-        return Vec::new();
-    };
-    let on_path = |n: usize| best.points.iter().any(|p| p.n == n);
-    best.points
-        .iter()
-        .filter(|p| p.n > 0 && on_path(p.n - 1) && on_path(p.n + 1))
-        .filter(|p| {
-            report.spots.iter().enumerate().all(|(j, o)| {
-                j == p.spot_index || (o.x_px - p.x_px).hypot(o.y_px - p.y_px) > 2.2 * r_px
-            })
-        })
-        .map(|p| [p.x_px, p.y_px])
-        .collect()
 }
 
 /// A second run of the physics `m` on more images is kept when no more checks fail or warn
 /// than in `first` and the phases and bounces stay what they were.
-fn kept_if_no_worse(first: &physics::Measurement, m: &physics::Measurement) -> bool {
+pub(crate) fn kept_if_no_worse(first: &physics::Measurement, m: &physics::Measurement) -> bool {
     let no_worse = [CheckOutcome::Fail, CheckOutcome::Warn]
         .iter()
         .all(|&o| m.checks_with(o) <= first.checks_with(o));
@@ -779,7 +607,7 @@ fn kept_if_no_worse(first: &physics::Measurement, m: &physics::Measurement) -> b
 
 /// `paths` with its best path's flash indices taken from `recounted` (its points in the same
 /// order) and its missing flashes listed again.
-fn renumbered(mut paths: PathResult, recounted: &[TimedPoint]) -> PathResult {
+pub(crate) fn renumbered(mut paths: PathResult, recounted: &[TimedPoint]) -> PathResult {
     let best = &mut paths.paths[0];
     for (p, t) in best.points.iter_mut().zip(recounted) {
         p.n = t.n;

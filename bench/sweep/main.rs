@@ -286,8 +286,8 @@ fn photo_summary(s: &mut String, scored: &[Scored]) {
          right and none missed, yet a check warned or failed): {}{}.\n- {} photos with part of \
          the path out of the frame ({} of {} images not wholly inside); {} truth bounces inside the \
          exposure left out of scope (under 3 resolvable images on a side).\n- Second pass from \
-         the physics: {} images confirmed on {} photos, {} of them within half a radius of \
-         their own truth flash.\n- Flash index: every path image on the truth flash its `n` \
+         the physics and from the pixels along the motion: {} images confirmed on {} photos, {} \
+         of them within half a radius of their own truth flash{}.\n- Flash index: every path image on the truth flash its `n` \
          names (one constant offset) on {} of {} measured photos{}.",
         scored.len(),
         refused,
@@ -306,6 +306,18 @@ fn photo_summary(s: &mut String, scored: &[Scored]) {
         scored.iter().map(|x| x.confirmed).sum::<usize>(),
         scored.iter().filter(|x| x.confirmed > 0).count(),
         scored.iter().map(|x| x.confirmed_true).sum::<usize>(),
+        {
+            let off: Vec<u64> = scored
+                .iter()
+                .filter(|x| x.confirmed_true < x.confirmed)
+                .map(|x| x.seed)
+                .collect();
+            if off.is_empty() {
+                String::new()
+            } else {
+                format!(" (not all on seeds {off:?})")
+            }
+        },
         scored
             .iter()
             .filter(|x| x.index_consistent == Some(true))

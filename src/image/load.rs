@@ -197,6 +197,48 @@ pub fn load_colour(path: &Path, options: &LoadOptions) -> Result<image::RgbImage
     decode(path, &bytes, options, false).map(|img| img.to_rgb8())
 }
 
+/// A part of a photo in colour: stored values 0..1 at the file's own precision (16-bit samples
+/// stay 16-bit), its top-left pixel at (`x0`, `y0`) of the photo.
+pub struct ColourRegion {
+    /// Column of the region's first pixel in the photo.
+    pub x0: usize,
+    /// Row of the region's first pixel in the photo.
+    pub y0: usize,
+    /// The pixels.
+    pub image: image::Rgb32FImage,
+}
+
+/// Load the pixels `x0..=x1`, `y0..=y1` of a photo file in colour (cut at its edges), with the
+/// same checks, limits and EXIF orientation as [`load`]; the rest of the decoded photo is
+/// dropped at once.
+pub fn load_colour_region(
+    path: &Path,
+    options: &LoadOptions,
+    [x0, y0, x1, y1]: [usize; 4],
+) -> Result<ColourRegion> {
+    let bytes = read_checked(path, options)?;
+    let img = decode(path, &bytes, options, false)?;
+    let (w, h) = (img.width() as usize, img.height() as usize);
+    let (x1, y1) = (x1.min(w.saturating_sub(1)), y1.min(h.saturating_sub(1)));
+    if x0 > x1 || y0 > y1 {
+        return Err(decode_error(
+            path,
+            "the region asked for lies outside the photo",
+        ));
+    }
+    let crop = img.crop_imm(
+        x0 as u32,
+        y0 as u32,
+        (x1 - x0 + 1) as u32,
+        (y1 - y0 + 1) as u32,
+    );
+    Ok(ColourRegion {
+        x0,
+        y0,
+        image: crop.to_rgb32f(),
+    })
+}
+
 /// The one decoder: refuses empty, truncated, unknown or oversized images, applies the EXIF
 /// orientation; with `luma_only` a YCbCr JPEG's luma plane is decoded alone.
 fn decode(

@@ -1,0 +1,449 @@
+//! Crowded images found from the pixels along the path's motion ([`crate::detect::chain`]).
+//!
+//! Goes in: the photo's file and settings, the spots, the paths, the timed points and the first
+//! measurement. Comes out: the same with the images the pixels hold added to the best path (and
+//! to the spots, found `predicted_and_confirmed`), and the measurement run again on them; or
+//! everything as it was when nothing was added or the physics did not keep it.
+//!
+//! Two stretches are tried: the crowded start of a roll (the flashes before the first image of a
+//! path that begins on the incline, one by one backwards to the release), and each run of
+//! missing flashes inside a fitted phase (between the phase's images on both sides). Both fit
+//! the photo's own image of the ball along the phase's motion; the result is kept only when no
+//! more checks fail or warn and the phases and bounces stay the same
+//! ([`super::kept_if_no_worse`]).
+
+use super::{kept_if_no_worse, renumbered};
+use crate::calibrate::Calibration;
+use crate::detect::chain::{ChainFit, Motion, Pixels, Stretch, Template, ToPixel, fit_chain};
+use crate::detect::{Spot, SpotReport, SpotSource};
+use crate::error::Result;
+use crate::image::load::load_colour_region;
+use crate::physics::{self, PhaseKind, TimedPoint};
+use crate::pipeline::MeasureSettings;
+use crate::track::{BallPath, PathPoint, PathResult};
+use std::path::Path;
+
+/// Most images a crowded start is searched for.
+const START_TRIALS: i64 = 60;
+
+/// Found images of the incline that seed the motion of a crowded start.
+const START_SEEDS: usize = 6;
+
+/// Found images on each side of a run of missing flashes that seed its motion.
+const GAP_SEEDS: usize = 3;
+
+/// Longest run of missing flashes tried.
+const GAP_LONGEST: usize = 4;
+
+/// What the pipeline carries: spots, paths, timed points, measurement.
+type State = (
+    SpotReport,
+    PathResult,
+    Vec<TimedPoint>,
+    physics::Measurement,
+);
+
+/// The plane of motion in units of about a pixel: the calibration's world metres times its
+/// scale at the photo's centre.
+struct Plane<'a> {
+    calibration: &'a Calibration,
+    px_per_m: f64,
+}
+
+impl Plane<'_> {
+    fn of_px(&self, p: [f64; 2]) -> [f64; 2] {
+        let [x, y] = self.calibration.to_world(p[0], p[1]);
+        [x * self.px_per_m, y * self.px_per_m]
+    }
+
+    fn to_px(&self, u: [f64; 2]) -> [f64; 2] {
+        self.calibration
+            .to_pixel(u[0] / self.px_per_m, u[1] / self.px_per_m)
+    }
+
+    /// A 1-sigma `sigma` per axis at `u` in the plane, in the photo's pixels.
+    fn sigma_px(&self, u: [f64; 2], sigma: f64) -> f64 {
+        let at = self.to_px(u);
+        let step = |d: [f64; 2]| {
+            let q = self.to_px([u[0] + d[0], u[1] + d[1]]);
+            (q[0] - at[0]).hypot(q[1] - at[1])
+        };
+        0.5 * (step([sigma, 0.0]) + step([0.0, sigma]))
+    }
+}
+
+/// The crowded start, then the runs of missing flashes, each kept when the physics keeps it
+/// (see the module's doc). `photo` is None when the spots came without a photo; `calibration`
+/// maps pixels to the plane of motion; `timed` makes a path point a timed point, `measure` runs
+/// the physics, `r_px` is the path's median radius.
+pub(super) fn crowded(
+    photo: Option<(&Path, &MeasureSettings)>,
+    calibration: &Calibration,
+    state: State,
+    (timed, measure): (
+        impl Fn(&PathPoint) -> TimedPoint,
+        impl Fn(&[TimedPoint]) -> Result<physics::Measurement>,
+    ),
+    r_px: f64,
+) -> State {
+    let Some((photo_path, settings)) = photo else {
+        return state;
+    };
+    let wanted = |s: &State| start_wanted(s) || !gaps(s).is_empty();
+    if !wanted(&state) {
+        return state;
+    }
+    // The pixels around the best path, its ends' stretches included.
+    let Some(best) = state.1.paths.first() else {
+        return state;
+    };
+    let margin = 0.1 * (state.0.width_px.max(state.0.height_px) as f64) + 4.0 * r_px;
+    let lo = |f: fn(&PathPoint) -> f64| best.points.iter().map(f).fold(f64::INFINITY, f64::min);
+    let hi = |f: fn(&PathPoint) -> f64| best.points.iter().map(f).fold(0.0, f64::max);
+    let region = [
+        (lo(|p| p.x_px) - margin).max(0.0) as usize,
+        (lo(|p| p.y_px) - margin).max(0.0) as usize,
+        (hi(|p| p.x_px) + margin) as usize,
+        (hi(|p| p.y_px) + margin) as usize,
+    ];
+    let load = |p: &Path| load_colour_region(p, &settings.load, region).ok();
+    let Some(rgb) = load(photo_path) else {
+        return state;
+    };
+    let plate = match &settings.plate {
+        Some(p) => match load(p) {
+            Some(plate) => Some(plate),
+            None => return state,
+        },
+        None => None,
+    };
+    let pixels = Pixels {
+        rgb: &rgb,
+        plate: plate.as_ref(),
+        tone: settings.spots.tone,
+    };
+    let Some(one) = Template::learn(&pixels, &isolated_centres(&state.0, &state.1, r_px), r_px)
+    else {
+        return state;
+    };
+    let (w, h) = (state.0.width_px as f64, state.0.height_px as f64);
+    let plane = Plane {
+        calibration,
+        px_per_m: calibration.scale_px_per_m(w / 2.0, h / 2.0),
+    };
+    let to_px = |u: [f64; 2]| plane.to_px(u);
+    let try_with = |state: State, found: Vec<(i64, ChainFit)>| {
+        if found.iter().all(|(_, f)| f.added.is_empty()) {
+            return state;
+        }
+        let (report, paths) = with_images(&state.0, &state.1, &found, (&plane, r_px));
+        let points: Vec<TimedPoint> = paths.paths[0].points.iter().map(&timed).collect();
+        let paths = renumbered(paths, &points);
+        match measure(&points) {
+            Ok(m) if kept_if_no_worse(&state.3, &m) => (report, paths, points, m),
+            _ => state,
+        }
+    };
+    let started: Vec<(i64, ChainFit)> = start_stretch(&state, &plane, r_px)
+        .and_then(|(n0, stretch)| {
+            Some((n0, fit_chain(&pixels, &one, &stretch.borrow(&to_px), r_px)?))
+        })
+        .into_iter()
+        .collect();
+    let state = try_with(state, started);
+    let filled: Vec<(i64, ChainFit)> = gaps(&state)
+        .into_iter()
+        .filter_map(|run| {
+            let (n0, stretch) = gap_stretch(&state, &run, &plane, r_px)?;
+            Some((n0, fit_chain(&pixels, &one, &stretch.borrow(&to_px), r_px)?))
+        })
+        .collect();
+    try_with(state, filled)
+}
+
+/// A stretch with its own storage (a [`Stretch`] borrows it).
+struct Owned {
+    found: Vec<(i64, [f64; 2])>,
+    base: Vec<i64>,
+    trials: Vec<i64>,
+    others: Vec<[f64; 2]>,
+    stop_at_turn: bool,
+}
+
+impl Owned {
+    fn borrow<'a>(&'a self, to_px: ToPixel<'a>) -> Stretch<'a> {
+        Stretch {
+            found: &self.found,
+            base: self.base.clone(),
+            trials: &self.trials,
+            others: &self.others,
+            stop_at_turn: self.stop_at_turn,
+            to_px,
+        }
+    }
+}
+
+/// The path begins on the incline.
+fn start_wanted(state: &State) -> bool {
+    state
+        .3
+        .phases
+        .first()
+        .is_some_and(|p| p.kind == PhaseKind::Incline)
+}
+
+/// The crowded start's stretch (flash offsets from the path's first image, whose `n` comes
+/// with it): the first images of the incline as seeds, every flash between them on the motion,
+/// and the flashes before them to try, backwards while in the frame and short of three flashes
+/// past the turn of the seeds' motion.
+fn start_stretch(state: &State, plane: &Plane, r_px: f64) -> Option<(i64, Owned)> {
+    let (report, paths, _, first) = state;
+    let phase = first.phases.first()?;
+    let best = paths.paths.first()?;
+    if phase.kind != PhaseKind::Incline {
+        return None;
+    }
+    let n0 = best.points.first()?.n;
+    let seeds: Vec<&PathPoint> = best
+        .points
+        .iter()
+        .filter(|p| p.n <= phase.last_n)
+        .take(START_SEEDS)
+        .collect();
+    let found: Vec<(i64, [f64; 2])> = seeds
+        .iter()
+        .map(|p| ((p.n - n0) as i64, plane.of_px([p.x_px, p.y_px])))
+        .collect();
+    let start = Motion::through(&found)?;
+    let (w, h) = (report.width_px as f64, report.height_px as f64);
+    let v0 = start.velocity(0.0);
+    let trials: Vec<i64> = (1..=START_TRIALS)
+        .map(|k| -k)
+        .take_while(|&m| {
+            let [x, y] = plane.to_px(start.at(m as f64));
+            let v = start.velocity(m as f64 + 3.0);
+            (0.0..w).contains(&x) && (0.0..h).contains(&y) && v[0] * v0[0] + v[1] * v0[1] > 0.0
+        })
+        .collect();
+    let (lo, hi) = (found.first()?.0, found.last()?.0);
+    let predicted: Vec<[f64; 2]> = trials
+        .iter()
+        .map(|&m| plane.to_px(start.at(m as f64)))
+        .collect();
+    let others = others_near(report, &seeds, &predicted, r_px);
+    Some((
+        n0 as i64,
+        Owned {
+            found,
+            base: (lo..=hi).collect(),
+            trials,
+            others,
+            stop_at_turn: true,
+        },
+    ))
+}
+
+/// The runs of missing flashes of the best path inside a fitted phase (incline, flight or
+/// floor), each at most [`GAP_LONGEST`] long.
+fn gaps(state: &State) -> Vec<Vec<usize>> {
+    let (_, paths, _, m) = state;
+    let Some(best) = paths.paths.first() else {
+        return Vec::new();
+    };
+    let inside = |n: usize| {
+        m.phases.iter().any(|p| {
+            matches!(
+                p.kind,
+                PhaseKind::Incline | PhaseKind::Flight | PhaseKind::Floor
+            ) && p.first_n < n
+                && n < p.last_n
+        })
+    };
+    let mut runs: Vec<Vec<usize>> = Vec::new();
+    for &n in best.missing.iter().filter(|&&n| inside(n)) {
+        match runs.last_mut() {
+            Some(run) if run.last() == Some(&(n - 1)) => run.push(n),
+            _ => runs.push(vec![n]),
+        }
+    }
+    runs.retain(|r| r.len() <= GAP_LONGEST);
+    runs
+}
+
+/// A run of missing flashes as a stretch (flash offsets from the run's first flash, whose `n`
+/// comes with it): up to [`GAP_SEEDS`] images of its phase on each side as seeds, the run's
+/// flashes to try from both ends inwards. None without a seed on each side or three in all.
+fn gap_stretch(state: &State, run: &[usize], plane: &Plane, r_px: f64) -> Option<(i64, Owned)> {
+    let (report, paths, _, m) = state;
+    let best = paths.paths.first()?;
+    let (a, b) = (*run.first()?, *run.last()?);
+    let phase = m
+        .phases
+        .iter()
+        .find(|p| p.kind != PhaseKind::Bounce && p.first_n < a && b < p.last_n)?;
+    let in_phase = |p: &&PathPoint| phase.first_n <= p.n && p.n <= phase.last_n;
+    let before: Vec<&PathPoint> = best
+        .points
+        .iter()
+        .filter(in_phase)
+        .filter(|p| p.n < a)
+        .collect();
+    let after: Vec<&PathPoint> = best
+        .points
+        .iter()
+        .filter(in_phase)
+        .filter(|p| p.n > b)
+        .take(GAP_SEEDS)
+        .collect();
+    let before = &before[before.len().saturating_sub(GAP_SEEDS)..];
+    if before.is_empty() || after.is_empty() || before.len() + after.len() < 3 {
+        return None;
+    }
+    let seeds: Vec<&PathPoint> = before.iter().chain(&after).copied().collect();
+    let found: Vec<(i64, [f64; 2])> = seeds
+        .iter()
+        .map(|p| (p.n as i64 - a as i64, plane.of_px([p.x_px, p.y_px])))
+        .collect();
+    let offsets: Vec<i64> = (0..run.len() as i64).collect();
+    // From both ends inwards: the flash beside a seed first.
+    let mut trials = Vec::with_capacity(offsets.len());
+    let (mut i, mut j) = (0, offsets.len());
+    while i < j {
+        trials.push(offsets[i]);
+        i += 1;
+        if i < j {
+            j -= 1;
+            trials.push(offsets[j]);
+        }
+    }
+    let motion = Motion::through(&found)?;
+    let predicted: Vec<[f64; 2]> = trials
+        .iter()
+        .map(|&t| plane.to_px(motion.at(t as f64)))
+        .collect();
+    let others = others_near(report, &seeds, &predicted, r_px);
+    Some((
+        a as i64,
+        Owned {
+            base: found.iter().map(|f| f.0).collect(),
+            found,
+            trials,
+            others,
+            stop_at_turn: false,
+        },
+    ))
+}
+
+/// The spots within two radii and 3 px of the seeds or the `predicted` images (pixels), less
+/// the seeds themselves and the spots on a predicted image (some of the images tried, merged).
+fn others_near(
+    report: &SpotReport,
+    seeds: &[&PathPoint],
+    predicted: &[[f64; 2]],
+    r_px: f64,
+) -> Vec<[f64; 2]> {
+    let reach = 2.0 * r_px + 3.0;
+    let near: Vec<[f64; 2]> = seeds
+        .iter()
+        .map(|p| [p.x_px, p.y_px])
+        .chain(predicted.to_vec())
+        .collect();
+    report
+        .spots
+        .iter()
+        .enumerate()
+        .filter(|(i, _)| !seeds.iter().any(|p| p.spot_index == *i))
+        .map(|(_, s)| [s.x_px, s.y_px])
+        .filter(|s| {
+            near.iter()
+                .any(|c| (s[0] - c[0]).hypot(s[1] - c[1]) < reach)
+        })
+        .filter(|s| {
+            !predicted
+                .iter()
+                .any(|c| (s[0] - c[0]).hypot(s[1] - c[1]) < r_px)
+        })
+        .collect()
+}
+
+/// The spots and paths with the images of `found` (each fit with the `n` its offsets count
+/// from; its centres in `plane`) added to the best path and the spots, found
+/// `predicted_and_confirmed`. A flash before
+/// the path's first takes the first index and shifts the path's by as many. A stray on an added
+/// image is a detection of the merged images it is one of: it becomes that image.
+fn with_images(
+    report: &SpotReport,
+    paths: &PathResult,
+    found: &[(i64, ChainFit)],
+    (plane, r_px): (&Plane, f64),
+) -> (SpotReport, PathResult) {
+    let (mut report, mut paths) = (report.clone(), paths.clone());
+    let images: Vec<(i64, [f64; 2], f64)> = found
+        .iter()
+        .flat_map(|(n0, fit)| {
+            fit.added
+                .iter()
+                .map(move |&(m, c, s)| (n0 + m, plane.to_px(c), plane.sigma_px(c, s)))
+        })
+        .collect();
+    let lowest = images.iter().map(|i| i.0).min().unwrap_or(0).min(0);
+    let shift = (-lowest) as usize;
+    for p in &mut paths.paths[0].points {
+        p.n += shift;
+    }
+    for (n, [x_px, y_px], sigma_px) in images {
+        let spot = Spot {
+            x_px,
+            y_px,
+            r_px,
+            sigma_px,
+            score: 0.0,
+            source: SpotSource::PredictedAndConfirmed,
+        };
+        let merged = paths
+            .strays
+            .iter()
+            .position(|s| (s.x_px - x_px).hypot(s.y_px - y_px) < 0.5 * r_px);
+        let spot_index = match merged {
+            Some(i) => {
+                let index = paths.strays.remove(i).spot_index;
+                report.spots[index] = spot;
+                index
+            }
+            None => {
+                report.spots.push(spot);
+                report.spots.len() - 1
+            }
+        };
+        paths.paths[0].points.push(PathPoint {
+            n: (n + shift as i64) as usize,
+            spot_index,
+            x_px,
+            y_px,
+            r_px,
+            sigma_px,
+        });
+    }
+    let path: &mut BallPath = &mut paths.paths[0];
+    path.points.sort_by_key(|p| p.n);
+    (report, paths)
+}
+
+/// Centres of the isolated images of the best path: its flashes before and after are on it
+/// (no unfound image beside it) and no spot of `report` lies within 2.2 radii (`r_px`).
+fn isolated_centres(report: &SpotReport, paths: &PathResult, r_px: f64) -> Vec<[f64; 2]> {
+    let Some(best) = paths.paths.first() else {
+        return Vec::new();
+    };
+    let on_path = |n: usize| best.points.iter().any(|p| p.n == n);
+    best.points
+        .iter()
+        .filter(|p| p.n > 0 && on_path(p.n - 1) && on_path(p.n + 1))
+        .filter(|p| {
+            report.spots.iter().enumerate().all(|(j, o)| {
+                j == p.spot_index || (o.x_px - p.x_px).hypot(o.y_px - p.y_px) > 2.2 * r_px
+            })
+        })
+        .map(|p| [p.x_px, p.y_px])
+        .collect()
+}
