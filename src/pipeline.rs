@@ -165,6 +165,8 @@ pub fn measure_photo(photo_path: &Path, settings: &MeasureSettings) -> Result<Me
         .map(|p| crate::image::load::load(p, &settings.load))
         .transpose()?;
     let report = detect::find_spots(&photo, plate.as_ref(), &settings.spots, None)?;
+    // The grey photo is done with: the pixels along the motion are read in colour.
+    drop((photo, plate));
     measure_validated(photo_path, report, settings, true)
 }
 

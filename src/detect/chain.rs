@@ -29,42 +29,38 @@
 use crate::core::light::Tone;
 use crate::core::stats::MAD_TO_SIGMA;
 use crate::detect::shaded::{WindowPixel, pixel_correlation_factor};
-use crate::image::load::ColourRegion;
+use crate::image::load::ColourPhoto;
 use nalgebra::{SMatrix, SVector};
 use rayon::prelude::*;
 
-/// A region of a photo's colour pixels, with its clean plate's when there is one (the same
-/// region).
+/// A photo's colour pixels, with its clean plate's when there is one.
 pub struct Pixels<'a> {
-    /// The photo's region in colour.
-    pub rgb: &'a ColourRegion,
-    /// The clean plate's.
-    pub plate: Option<&'a ColourRegion>,
+    /// The photo in colour.
+    pub rgb: &'a ColourPhoto,
+    /// The clean plate in colour.
+    pub plate: Option<&'a ColourPhoto>,
     /// The photo's tone curve.
     pub tone: Tone,
 }
 
 impl Pixels<'_> {
-    /// The stored value of channel `c` at the photo's pixel (x, y), 0..1 (inside the region).
+    /// The stored value of channel `c` at the photo's pixel (x, y), 0..1.
     fn stored(&self, x: usize, y: usize, c: usize) -> f32 {
-        let r = self.rgb;
-        r.image.get_pixel((x - r.x0) as u32, (y - r.y0) as u32)[c]
+        self.rgb.at(x, y, c)
     }
 
     /// Linear light of channel `c` at (x, y), less the plate's.
     fn excess(&self, x: usize, y: usize, c: usize) -> f64 {
-        let plate = self.plate.map_or(0.0, |p| {
-            let v = p.image.get_pixel((x - p.x0) as u32, (y - p.y0) as u32)[c];
-            self.tone.to_linear(v)
-        });
+        let plate = self
+            .plate
+            .map_or(0.0, |p| self.tone.to_linear(p.at(x, y, c)));
         self.tone.to_linear(self.stored(x, y, c)) - plate
     }
 
-    /// The region's first and last columns and rows, in the photo.
+    /// The first and last columns and rows of the photo.
     fn bounds(&self) -> [f64; 4] {
-        let r = self.rgb;
-        let (w, h) = (r.image.width() as usize, r.image.height() as usize);
-        [r.x0, r.y0, r.x0 + w - 1, r.y0 + h - 1].map(|v| v as f64)
+        let (w, h) = self.rgb.size();
+        [0.0, 0.0, w as f64 - 1.0, h as f64 - 1.0]
     }
 }
 

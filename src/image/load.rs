@@ -197,45 +197,53 @@ pub fn load_colour(path: &Path, options: &LoadOptions) -> Result<image::RgbImage
     decode(path, &bytes, options, false).map(|img| img.to_rgb8())
 }
 
-/// A part of a photo in colour: stored values 0..1 at the file's own precision (16-bit samples
-/// stay 16-bit), its top-left pixel at (`x0`, `y0`) of the photo.
-pub struct ColourRegion {
-    /// Column of the region's first pixel in the photo.
-    pub x0: usize,
-    /// Row of the region's first pixel in the photo.
-    pub y0: usize,
-    /// The pixels.
-    pub image: image::Rgb32FImage,
+/// A photo in colour at the file's own precision (8-bit samples stay 8-bit, 16-bit stay 16-bit),
+/// for reading a few regions of it.
+pub enum ColourPhoto {
+    /// 8 bits a sample.
+    Rgb8(image::RgbImage),
+    /// 16 bits a sample.
+    Rgb16(image::ImageBuffer<image::Rgb<u16>, Vec<u16>>),
+    /// Floating point.
+    Rgb32F(image::Rgb32FImage),
 }
 
-/// Load the pixels `x0..=x1`, `y0..=y1` of a photo file in colour (cut at its edges), with the
-/// same checks, limits and EXIF orientation as [`load`]; the rest of the decoded photo is
-/// dropped at once.
-pub fn load_colour_region(
-    path: &Path,
-    options: &LoadOptions,
-    [x0, y0, x1, y1]: [usize; 4],
-) -> Result<ColourRegion> {
+impl ColourPhoto {
+    /// Width and height, pixels.
+    pub fn size(&self) -> (usize, usize) {
+        let (w, h) = match self {
+            ColourPhoto::Rgb8(i) => i.dimensions(),
+            ColourPhoto::Rgb16(i) => i.dimensions(),
+            ColourPhoto::Rgb32F(i) => i.dimensions(),
+        };
+        (w as usize, h as usize)
+    }
+
+    /// The stored value of channel `c` at (x, y), 0..1.
+    pub fn at(&self, x: usize, y: usize, c: usize) -> f32 {
+        let (x, y) = (x as u32, y as u32);
+        match self {
+            ColourPhoto::Rgb8(i) => i.get_pixel(x, y)[c] as f32 / 255.0,
+            ColourPhoto::Rgb16(i) => i.get_pixel(x, y)[c] as f32 / 65535.0,
+            ColourPhoto::Rgb32F(i) => i.get_pixel(x, y)[c],
+        }
+    }
+}
+
+/// Load a photo file in colour at its own precision, with the same checks, limits and EXIF
+/// orientation as [`load`].
+pub fn load_colour_exact(path: &Path, options: &LoadOptions) -> Result<ColourPhoto> {
     let bytes = read_checked(path, options)?;
     let img = decode(path, &bytes, options, false)?;
-    let (w, h) = (img.width() as usize, img.height() as usize);
-    let (x1, y1) = (x1.min(w.saturating_sub(1)), y1.min(h.saturating_sub(1)));
-    if x0 > x1 || y0 > y1 {
-        return Err(decode_error(
-            path,
-            "the region asked for lies outside the photo",
-        ));
-    }
-    let crop = img.crop_imm(
-        x0 as u32,
-        y0 as u32,
-        (x1 - x0 + 1) as u32,
-        (y1 - y0 + 1) as u32,
-    );
-    Ok(ColourRegion {
-        x0,
-        y0,
-        image: crop.to_rgb32f(),
+    Ok(match img {
+        DynamicImage::ImageRgb8(i) => ColourPhoto::Rgb8(i),
+        DynamicImage::ImageRgb16(i) => ColourPhoto::Rgb16(i),
+        DynamicImage::ImageRgb32F(i) => ColourPhoto::Rgb32F(i),
+        DynamicImage::ImageLuma16(_)
+        | DynamicImage::ImageLumaA16(_)
+        | DynamicImage::ImageRgba16(_) => ColourPhoto::Rgb16(img.into_rgb16()),
+        DynamicImage::ImageRgba32F(_) => ColourPhoto::Rgb32F(img.into_rgb32f()),
+        other => ColourPhoto::Rgb8(other.into_rgb8()),
     })
 }
 

@@ -17,7 +17,7 @@ use crate::calibrate::Calibration;
 use crate::detect::chain::{ChainFit, Motion, Pixels, Stretch, Template, ToPixel, fit_chain};
 use crate::detect::{Spot, SpotReport, SpotSource};
 use crate::error::Result;
-use crate::image::load::load_colour_region;
+use crate::image::load::load_colour_exact;
 use crate::physics::{self, PhaseKind, TimedPoint};
 use crate::pipeline::MeasureSettings;
 use crate::track::{BallPath, PathPoint, PathResult};
@@ -93,20 +93,7 @@ pub(super) fn crowded(
     if !wanted(&state) {
         return state;
     }
-    // The pixels around the best path, its ends' stretches included.
-    let Some(best) = state.1.paths.first() else {
-        return state;
-    };
-    let margin = 0.1 * (state.0.width_px.max(state.0.height_px) as f64) + 4.0 * r_px;
-    let lo = |f: fn(&PathPoint) -> f64| best.points.iter().map(f).fold(f64::INFINITY, f64::min);
-    let hi = |f: fn(&PathPoint) -> f64| best.points.iter().map(f).fold(0.0, f64::max);
-    let region = [
-        (lo(|p| p.x_px) - margin).max(0.0) as usize,
-        (lo(|p| p.y_px) - margin).max(0.0) as usize,
-        (hi(|p| p.x_px) + margin) as usize,
-        (hi(|p| p.y_px) + margin) as usize,
-    ];
-    let load = |p: &Path| load_colour_region(p, &settings.load, region).ok();
+    let load = |p: &Path| load_colour_exact(p, &settings.load).ok();
     let Some(rgb) = load(photo_path) else {
         return state;
     };
