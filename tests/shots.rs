@@ -174,6 +174,29 @@ fn check_incline(m: &Measurement, truth: &Truth) {
     );
 }
 
+/// Every path image found `predicted_and_confirmed` lies within 2 sigma (at least 0.02 px) and
+/// half a radius of the truth flash its `n` names (the path's first point on truth flash
+/// `first`); their number.
+fn check_added(m: &Measured, truth: &Truth, first: usize) -> usize {
+    let added: Vec<_> = m
+        .doc
+        .path
+        .iter()
+        .filter(|p| p.source == beadline::detect::SpotSource::PredictedAndConfirmed)
+        .collect();
+    for p in &added {
+        let t = &truth.flashes[p.n + first];
+        let error = (p.x_px - t.x_px).hypot(p.y_px - t.y_px);
+        assert!(
+            error <= (2.0 * p.sigma_px.max(0.02)).min(0.5 * t.r_px),
+            "flash {}: {error} px off, sigma {}",
+            t.n,
+            p.sigma_px
+        );
+    }
+    added.len()
+}
+
 /// The truth flashes in frame on the incline.
 fn incline_flashes(truth: &Truth) -> usize {
     truth
@@ -578,23 +601,8 @@ fn the_images_merged_at_the_start_of_a_roll_are_counted_and_placed_by_their_pixe
     let settings = settings(scene.strobe.rate_hz, scene.ball.diameter_m);
     let (m, truth, first) = measure_scene(&scene, &settings);
     assert_eq!(first, 0, "the path starts at the first flash");
-    let added: Vec<_> = m
-        .doc
-        .path
-        .iter()
-        .filter(|p| p.source == beadline::detect::SpotSource::PredictedAndConfirmed)
-        .collect();
-    assert!(added.len() >= 12, "{} images added", added.len());
-    for p in added {
-        let t = &truth.flashes[p.n + first];
-        let error = (p.x_px - t.x_px).hypot(p.y_px - t.y_px);
-        assert!(
-            error <= 2.0 * p.sigma_px.max(0.02),
-            "flash {}: {error} px off, sigma {}",
-            t.n,
-            p.sigma_px
-        );
-    }
+    let added = check_added(&m, &truth, first);
+    assert!(added >= 12, "{added} images added");
     check_incline(&m.doc.measurement, &truth);
 }
 
@@ -619,23 +627,7 @@ fn a_missing_flash_between_merged_images_is_found_from_its_pixels() {
     };
     let m = measure_photo(&photo, &settings).expect("a measurement");
     let first = check_path(&m.paths.paths[0], &truth);
-    let added: Vec<_> = m
-        .doc
-        .path
-        .iter()
-        .filter(|p| p.source == beadline::detect::SpotSource::PredictedAndConfirmed)
-        .collect();
-    assert!(!added.is_empty(), "no image added");
-    for p in added {
-        let t = &truth.flashes[p.n + first];
-        let error = (p.x_px - t.x_px).hypot(p.y_px - t.y_px);
-        assert!(
-            error <= (2.0 * p.sigma_px).min(0.5 * t.r_px),
-            "flash {}: {error} px off, sigma {}",
-            t.n,
-            p.sigma_px
-        );
-    }
+    assert!(check_added(&m, &truth, first) > 0, "no image added");
     assert!(m.doc.missing.is_empty(), "missing {:?}", m.doc.missing);
     check_incline(&m.doc.measurement, &truth);
 }
