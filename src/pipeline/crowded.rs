@@ -213,11 +213,7 @@ fn start_stretch(state: &State, plane: &Plane, r_px: f64) -> Option<(i64, Owned)
         })
         .collect();
     let (lo, hi) = (found.first()?.0, found.last()?.0);
-    let predicted: Vec<[f64; 2]> = trials
-        .iter()
-        .map(|&m| plane.to_px(start.at(m as f64)))
-        .collect();
-    let others = others_near(report, &seeds, &predicted, r_px);
+    let others = others_near(report, &seeds, (plane, &start, &trials), r_px);
     Some((
         n0 as i64,
         Owned {
@@ -304,11 +300,7 @@ fn gap_stretch(state: &State, run: &[usize], plane: &Plane, r_px: f64) -> Option
         }
     }
     let motion = Motion::through(&found)?;
-    let predicted: Vec<[f64; 2]> = trials
-        .iter()
-        .map(|&t| plane.to_px(motion.at(t as f64)))
-        .collect();
-    let others = others_near(report, &seeds, &predicted, r_px);
+    let others = others_near(report, &seeds, (plane, &motion, &trials), r_px);
     Some((
         a as i64,
         Owned {
@@ -321,14 +313,19 @@ fn gap_stretch(state: &State, run: &[usize], plane: &Plane, r_px: f64) -> Option
     ))
 }
 
-/// The spots within two radii and 3 px of the seeds or the `predicted` images (pixels), less
-/// the seeds themselves and the spots on a predicted image (some of the images tried, merged).
+/// The spots within two radii and 3 px of the seeds or of the images `motion` predicts at the
+/// `trials` offsets, less the seeds themselves and the spots on a predicted image (some of the
+/// images tried, merged).
 fn others_near(
     report: &SpotReport,
     seeds: &[&PathPoint],
-    predicted: &[[f64; 2]],
+    (plane, motion, trials): (&Plane, &Motion, &[i64]),
     r_px: f64,
 ) -> Vec<[f64; 2]> {
+    let predicted: Vec<[f64; 2]> = trials
+        .iter()
+        .map(|&m| plane.to_px(motion.at(m as f64)))
+        .collect();
     let reach = 2.0 * r_px + 3.0;
     let near: Vec<[f64; 2]> = seeds
         .iter()
