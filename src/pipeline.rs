@@ -265,12 +265,18 @@ fn image_checks(
     // Radii in metres at the final scale: the local scale of the calibration, corrected by the
     // ratio of the final scale to the calibration's own at the image centre.
     let rescale = calibration.scale_px_per_m(w / 2.0, h / 2.0) / m.scale_px_per_m.value;
-    let r_m: Vec<f64> = best
+    // Only a detected image measured its radius: one found from the pixels along the motion
+    // (detect::chain) was given the path's.
+    let measured: Vec<&PathPoint> = best
         .points
+        .iter()
+        .filter(|p| report.spots[p.spot_index].source == SpotSource::Detected)
+        .collect();
+    let r_m: Vec<f64> = measured
         .iter()
         .map(|p| p.r_px / calibration.scale_px_per_m(p.x_px, p.y_px) * rescale)
         .collect();
-    let flash_n: Vec<f64> = best.points.iter().map(|p| p.n as f64).collect();
+    let flash_n: Vec<f64> = measured.iter().map(|p| p.n as f64).collect();
     out.extend(physics::checks::radius_trend(&flash_n, &r_m));
     if let Some(d) = settings.ball_diameter_m
         && settings.scale != Some(ScaleSource::BallDiameter)

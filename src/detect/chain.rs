@@ -12,15 +12,17 @@
 //! are the backdrop plus one image of the ball per flash, up to where the channel clips. The
 //! image is the photo's own: its isolated images shifted onto their fitted centres and averaged
 //! on a half-pixel grid, per channel (an effective point-spread function, Anderson & King, PASP
-//! 112, 2000), so any shading, highlight or blur is in it. The images sit at
+//! 112, 2000), so any shading, highlight or blur is in it; in a photo with no isolated image,
+//! the parts of its images that no other image reaches. The images sit at
 //! c(m) = c0 + v m + a m^2 / 2 in the plane of motion for flash offset m (constant acceleration,
-//! equal flash intervals); their common brightness and a constant are solved linearly at every
+//! equal flash intervals; a stretch from rest holds the ball at the motion's turning point for
+//! the flashes before it, as a ball released from rest or held before its release); their common brightness and a constant are solved linearly at every
 //! step, per channel (variable projection, Golub & Pereyra, SIAM J. Numer. Anal. 10, 1973), the
 //! motion by Levenberg-Marquardt with a forward-difference Jacobian. Clipped samples are left
 //! out: a coloured ball's stack of images clips its strongest channel first, and the others
-//! still add the images up (a white ball's stack clips in all three and tells little). A
-//! predicted image is kept when adding it lowers the misfit by a clear margin,
-//! `n ln(RSS_without / RSS_with) >= 25`, n the samples over the correlation factor of their
+//! still add the images up (a white ball's stack clips in all three and tells little). The
+//! count is the number of least misfit, less the last images that do not each lower it by a
+//! clear margin against one image fewer, `n ln(RSS_without / RSS_with) >= 25`, n the samples over the correlation factor of their
 //! residuals: "no ball here" must lose by what a five-sigma detection would. An added centre's
 //! sigma holds the fit's covariance (scaled by the misfit), the move of the centres with one
 //! image more or fewer, the RMS miss of the found images (placed by their own fits), and the
@@ -80,6 +82,10 @@ const TEMPLATE_STEP: f64 = 0.5;
 /// Fewest isolated images a template is learned from.
 const TEMPLATE_MIN_IMAGES: usize = 5;
 
+/// Largest share of a template's nodes inside the disc with no sample of an image apart from the
+/// others within a node (they are filled from their neighbours).
+const TEMPLATE_MAX_UNREACHED: f64 = 0.05;
+
 /// A channel whose isolated images clip in more than this fraction of their samples is not used.
 const TEMPLATE_MAX_CLIPPED: f64 = 0.002;
 
@@ -91,6 +97,19 @@ impl Template {
     /// of its neighbours). None with fewer than five images inside the frame or when every
     /// channel clips.
     pub fn learn(pixels: &Pixels, centres: &[[f64; 2]], r_px: f64) -> Option<Template> {
+        Template::learn_apart(pixels, centres, &[], r_px)
+    }
+
+    /// [`Template::learn`] from images that overlap others: the samples within r + 1 of any of
+    /// `apart` (the other images' centres; their discs and blur) are left out, and a grid node
+    /// must be reached by a sample of some image (none is filled from its neighbours inside the
+    /// disc's reach). For a photo with no isolated image.
+    pub fn learn_apart(
+        pixels: &Pixels,
+        centres: &[[f64; 2]],
+        apart: &[[f64; 2]],
+        r_px: f64,
+    ) -> Option<Template> {
         let reach = r_px + OUTSIDE_PX;
         let ring = reach + OUTSIDE_PX;
         let half = (reach / TEMPLATE_STEP).ceil() as i64;
@@ -103,7 +122,7 @@ impl Template {
         if inside.len() < TEMPLATE_MIN_IMAGES {
             return None;
         }
-        let values = [0, 1, 2].map(|ch| learn_channel(pixels, &inside, ch, half, reach));
+        let values = [0, 1, 2].map(|ch| learn_channel(pixels, (&inside, apart), ch, half, reach));
         values
             .iter()
             .any(Option::is_some)
@@ -145,7 +164,7 @@ impl Template {
 /// One channel of a [`Template`] (see [`Template::learn`]); None when it clips.
 fn learn_channel(
     pixels: &Pixels,
-    inside: &[&[f64; 2]],
+    (inside, apart): (&[&[f64; 2]], &[[f64; 2]]),
     ch: usize,
     half: i64,
     reach: f64,
@@ -163,9 +182,21 @@ fn learn_channel(
         );
         let mut backdrop = Vec::new();
         let mut disc = Vec::new();
+        let reach_other = reach - OUTSIDE_PX + 1.0;
+        let others: Vec<&[f64; 2]> = apart
+            .iter()
+            .filter(|o| (o[0] - c[0]).hypot(o[1] - c[1]) > 0.5)
+            .collect();
         for y in y0..=y1 {
             for x in x0..=x1 {
                 let d = (x as f64 - c[0]).hypot(y as f64 - c[1]);
+                let (xf, yf) = (x as f64, y as f64);
+                if others
+                    .iter()
+                    .any(|o| (xf - o[0]).hypot(yf - o[1]) <= reach_other)
+                {
+                    continue;
+                }
                 if d > reach && d <= ring {
                     backdrop.push(pixels.excess(x, y, ch));
                 } else if d <= reach {
@@ -198,6 +229,24 @@ fn learn_channel(
         .zip(&count)
         .map(|(s, &n)| if n > 0 { s / n as f64 } else { f64::NAN })
         .collect();
+    let (unreached, disc) = (0..side * side).fold((0usize, 0usize), |(u, n), k| {
+        let (i, j) = ((k % side) as f64, (k / side) as f64);
+        let d = (i - half as f64).hypot(j - half as f64) * TEMPLATE_STEP;
+        let inner = d <= reach - OUTSIDE_PX;
+        // A node's pixel-sized neighbourhood (a photo's pixel reaches one node in four).
+        let near = |di: i64, dj: i64| {
+            let (a, b) = (i as i64 + di, j as i64 + dj);
+            (0..side as i64).contains(&a)
+                && (0..side as i64).contains(&b)
+                && count[b as usize * side + a as usize] > 0
+        };
+        let reached = (-1..=1).any(|di| (-1..=1).any(|dj| near(di, dj)));
+        (u + usize::from(inner && !reached), n + usize::from(inner))
+    });
+    let unreached = unreached as f64 > TEMPLATE_MAX_UNREACHED * disc as f64;
+    if !apart.is_empty() && unreached {
+        return None;
+    }
     fill_gaps(&mut values, side);
     values.iter().all(|v| v.is_finite()).then_some(values)
 }
@@ -251,6 +300,25 @@ impl Motion {
     /// The centre at flash offset `m`.
     pub fn at(&self, m: f64) -> [f64; 2] {
         [0, 1].map(|i| self.c0_px[i] + self.v_px[i] * m + 0.5 * self.a_px[i] * m * m)
+    }
+
+    /// The centre at flash offset `m` of a ball that, `from_rest`, rests where the motion turns
+    /// until it moves off: a flash before the turn finds it at the turning point (a roll from
+    /// rest, the ball held before its release). Without `from_rest`, [`Motion::at`].
+    pub fn placed(&self, m: f64, from_rest: bool) -> [f64; 2] {
+        self.at(if from_rest { m.max(self.turn()) } else { m })
+    }
+
+    /// The offset of least speed (where a roll from rest began); minus infinity for a motion
+    /// with no acceleration.
+    pub fn turn(&self) -> f64 {
+        let (v, a) = (self.v_px, self.a_px);
+        let aa = a[0] * a[0] + a[1] * a[1];
+        if aa > 1e-12 {
+            -(v[0] * a[0] + v[1] * a[1]) / aa
+        } else {
+            f64::NEG_INFINITY
+        }
     }
 
     /// The displacement per flash at offset `m`.
@@ -364,19 +432,22 @@ pub struct Stretch<'a> {
     pub trials: &'a [i64],
     /// Images of the photo near the stretch that are not on it (held where they are).
     pub others: &'a [[f64; 2]],
-    /// The trials stop where the motion turns: a roll from rest, whose images past the turning
-    /// point are no longer on the motion (a flight's apex is no turn of this kind).
-    pub stop_at_turn: bool,
+    /// The stretch begins at rest: a trial before the motion's turning point sits at it
+    /// ([`Motion::placed`]: a roll from rest; a flight's apex is no turn of this kind).
+    pub from_rest: bool,
     /// The plane of motion to the photo.
     pub to_px: ToPixel<'a>,
+    /// The motion to start from when the found images are fewer than three (none on the
+    /// motion: it was found by other means).
+    pub seed: Option<Motion>,
 }
 
-/// Fit the motion of `stretch` with the first k of its trials, for k = 0, 1, ... (until the
-/// fitted motion turns before the next, when it stops there), all on the same samples. The
-/// pixels hold the k of least misfit, as far as each of them lowered the misfit by the margin of
-/// the module's doc. `one` is the photo's image of the ball, `r_px` its radius. None when the
-/// stretch cannot be fitted (fewer than three found images, too few samples) or its fit moves a
-/// found image by more than a quarter of a radius.
+/// Fit the motion of `stretch` with the first k of its trials, for k = 0, 1, ..., all on the
+/// same samples (a stretch from rest puts the trials before the motion's turn at the turning
+/// point). The pixels hold the k of least misfit, as far as the last of them lowered the misfit
+/// by the margin of the module's doc. `one` is the photo's image of the ball, `r_px` its radius.
+/// None when the stretch cannot be fitted (fewer than three found images and no seed motion,
+/// too few samples) or its fit moves a found image by more than a quarter of a radius.
 pub fn fit_chain(
     pixels: &Pixels,
     one: &Template,
@@ -388,12 +459,17 @@ pub fn fit_chain(
         base,
         trials,
         others,
-        stop_at_turn,
+        from_rest,
         to_px,
+        seed,
     } = stretch;
-    let start = Motion::through(found)?;
+    let start = Motion::through(found).or(*seed)?;
     let mut centres: Vec<[f64; 2]> = found.iter().map(|f| to_px(f.1)).collect();
-    centres.extend(trials.iter().map(|&m| to_px(start.at(m as f64))));
+    centres.extend(
+        trials
+            .iter()
+            .map(|&m| to_px(start.placed(m as f64, *from_rest))),
+    );
     let window = window(pixels, one, &centres, r_px + OUTSIDE_PX);
     if window.len() < 30 {
         return None;
@@ -405,12 +481,9 @@ pub fn fit_chain(
         others,
         one,
         to_px: *to_px,
+        from_rest: *from_rest,
     };
-    let counting = Counting {
-        base,
-        trials,
-        stop_at_turn: *stop_at_turn,
-    };
+    let counting = Counting { base, trials };
     // Fitted once on every sample, and again without the outliers of that fit (an edge of the
     // backdrop the fit has no term for: the track under a rolling ball).
     let (first, _) = counting.count_and_fit(&model, start.params())?;
@@ -418,7 +491,7 @@ pub fn fit_chain(
     let mut lit: Vec<[f64; 2]> = base
         .iter()
         .chain(trials.iter())
-        .map(|&m| to_px(motion.at(m as f64)))
+        .map(|&m| to_px(motion.placed(m as f64, *from_rest)))
         .collect();
     lit.extend_from_slice(others);
     let window = without_outliers(&window, &first.res, |s| {
@@ -433,7 +506,7 @@ pub fn fit_chain(
     // The fit that holds the predicted images keeps the found ones where they were found.
     let motion = Motion::from_params(&best.p);
     let moved = found.iter().any(|&(o, c)| {
-        let at = motion.at(o as f64);
+        let at = motion.placed(o as f64, *from_rest);
         (at[0] - c[0]).hypot(at[1] - c[1]) > 0.25 * r_px
     });
     if moved {
@@ -446,7 +519,7 @@ pub fn fit_chain(
             motion,
         });
     }
-    let mut added = best.centres(kept, &window);
+    let mut added = best.centres(kept, &window, *from_rest);
     // The count is a model choice: the fit with one image more (or one fewer) moves the
     // centres by what that choice is worth, and their sigma holds it.
     let k = kept.len();
@@ -461,11 +534,11 @@ pub fn fit_chain(
     let missed = (found
         .iter()
         .map(|&(o, c)| {
-            let at = motion.at(o as f64);
+            let at = motion.placed(o as f64, *from_rest);
             (at[0] - c[0]).powi(2) + (at[1] - c[1]).powi(2)
         })
         .sum::<f64>()
-        / (2.0 * found.len() as f64))
+        / (2.0 * found.len().max(1) as f64))
         .sqrt();
     let fitted = Model {
         offsets: offsets.clone(),
@@ -488,7 +561,7 @@ pub fn fit_chain(
         return None;
     }
     for (m, c, sigma) in &mut added {
-        let o = other.at(*m as f64);
+        let o = other.placed(*m as f64, *from_rest);
         let shift = (c[0] - o[0]).hypot(c[1] - o[1]);
         // Fitted alone, the others held, the image may sit elsewhere than the motion puts it:
         // that disagreement (in the plane's units) is part of its uncertainty too.
@@ -504,11 +577,35 @@ pub fn fit_chain(
     Some(ChainFit { added, motion })
 }
 
+/// The misfit per sample of images of the ball at each of `images` (in the photo) to the pixels
+/// within a radius and 3 px of any of `around`, their brightness and a constant
+/// solved per channel: two accounts of the same pixels compared on the same samples. None with
+/// too few samples.
+pub fn misfit(
+    pixels: &Pixels,
+    one: &Template,
+    (images, around): (&[[f64; 2]], &[[f64; 2]]),
+    r_px: f64,
+) -> Option<f64> {
+    let window = window(pixels, one, around, r_px + OUTSIDE_PX);
+    if window.len() < 30 {
+        return None;
+    }
+    let model = Model {
+        window: &window,
+        offsets: Vec::new(),
+        others: images,
+        one,
+        to_px: &|u| u,
+        from_rest: false,
+    };
+    Some(model.residuals_at(images, &mut Vec::new())? / window.len() as f64)
+}
+
 /// What is counted: the offsets always on the motion and the trials in order.
 struct Counting<'a> {
     base: &'a [i64],
     trials: &'a [i64],
-    stop_at_turn: bool,
 }
 
 impl Counting<'_> {
@@ -529,8 +626,11 @@ impl Counting<'_> {
         };
         let mut k = usize::MAX;
         let mut fitted = None;
-        for _ in 0..ROUNDS {
-            let counted = self.count(model, &p)?;
+        for round in 0..ROUNDS {
+            let (least, counted) = self.count(model, &p)?;
+            // The motion it was held at may be off by a fraction of a radius: the first fit
+            // takes the count of least misfit, each image's share of it is judged after.
+            let counted = if round == 0 { least } else { counted };
             if counted == k {
                 break;
             }
@@ -558,16 +658,12 @@ impl Counting<'_> {
     }
 
     /// How many trials the pixels of `model`'s window hold with the motion held at `p`: the
-    /// number of least misfit, as far as each image up to it lowered the misfit by the margin.
-    /// With `stop_at_turn`, images past the motion's turning point are not tried.
-    fn count(&self, model: &Model, p: &[f64; NP]) -> Option<usize> {
-        let motion = Motion::from_params(p);
-        let v0 = motion.velocity(0.0);
-        let turned = |m: i64| {
-            let v = motion.velocity(m as f64);
-            self.stop_at_turn && v0[0] * v[0] + v0[1] * v[1] <= 0.0
-        };
-        let tried = self.trials.iter().take_while(|&&m| !turned(m)).count();
+    /// number of least misfit, and that number less the last images each of which did not lower
+    /// the misfit by the margin against one image fewer (judged against the best count's
+    /// misfit: judged from none upwards, the light of the images not yet counted swamps each
+    /// gain, and the 12 px start of the bench's `overlap_r12` counted none of its 9 images).
+    fn count(&self, model: &Model, p: &[f64; NP]) -> Option<(usize, usize)> {
+        let tried = self.trials.len();
         let mut res = Vec::new();
         let mut rss = Vec::with_capacity(tried + 1);
         for k in 0..=tried {
@@ -584,11 +680,11 @@ impl Counting<'_> {
         }
         .residuals(p, &mut res)?;
         let n_eff = model.window.len() as f64 / correlation_factor(model.window, &res);
-        Some(
-            (1..=k_best)
-                .take_while(|&k| n_eff * (rss[k - 1] / rss[k]).ln() >= MARGIN)
-                .count(),
-        )
+        let mut counted = k_best;
+        while counted > 0 && n_eff * (rss[counted - 1] / rss[counted]).ln() < MARGIN {
+            counted -= 1;
+        }
+        Some((k_best, counted))
     }
 }
 
@@ -703,6 +799,8 @@ struct Model<'a> {
     others: &'a [[f64; 2]],
     one: &'a Template,
     to_px: ToPixel<'a>,
+    /// The stretch begins at rest ([`Motion::placed`]).
+    from_rest: bool,
 }
 
 /// Where a fit ended: parameters, residual sum of squares, residuals, normal matrix.
@@ -716,7 +814,12 @@ struct Fitted {
 impl Fitted {
     /// The centres at `offsets` and their 1-sigma per axis from the fit's covariance (the
     /// Gauss-Newton one scaled by the residual variance and the samples' correlation factor).
-    fn centres(&self, offsets: &[i64], window: &[Sample]) -> Vec<(i64, [f64; 2], f64)> {
+    fn centres(
+        &self,
+        offsets: &[i64],
+        window: &[Sample],
+        from_rest: bool,
+    ) -> Vec<(i64, [f64; 2], f64)> {
         let dof = window.len().saturating_sub(NP + 3 * NL).max(1) as f64;
         let scale = self.rss / dof * correlation_factor(window, &self.res);
         let cov = self
@@ -728,7 +831,11 @@ impl Fitted {
         offsets
             .iter()
             .map(|&m| {
-                let mf = m as f64;
+                let mf = if from_rest {
+                    (m as f64).max(motion.turn())
+                } else {
+                    m as f64
+                };
                 let var = |axis: usize| {
                     let mut g = SVector::<f64, NP>::zeros();
                     g[axis] = 1.0;
@@ -758,7 +865,7 @@ impl Model<'_> {
             .offsets
             .iter()
             .filter(|&&m| Some(m) != without)
-            .map(|&m| (self.to_px)(motion.at(m as f64)))
+            .map(|&m| (self.to_px)(motion.placed(m as f64, self.from_rest)))
             .collect();
         centres.extend_from_slice(self.others);
         centres
@@ -768,7 +875,7 @@ impl Model<'_> {
     /// `p` puts them, Gauss-Newton with Marquardt's damping on its two coordinates.
     fn alone(&self, p: &[f64; NP], m: i64) -> Option<[f64; 2]> {
         let mut centres = self.centres(p, Some(m));
-        let mut q = (self.to_px)(Motion::from_params(p).at(m as f64));
+        let mut q = (self.to_px)(Motion::from_params(p).placed(m as f64, self.from_rest));
         let mut res = Vec::new();
         let mut rss_at = |q: [f64; 2], res: &mut Vec<f64>| {
             centres.push(q);

@@ -5,19 +5,25 @@
 //! to the spots, found `predicted_and_confirmed`), and the measurement run again on them; or
 //! everything as it was when nothing was added or the physics did not keep it.
 //!
-//! Two stretches are tried: the crowded start of a roll (the flashes before the first image of a
-//! path that begins on the incline, one by one backwards to the release), and each run of
-//! missing flashes inside a fitted phase (between the phase's images on both sides). Both fit
+//! Three stretches are tried: the crowded start of a roll (the flashes before the first image
+//! of a path that begins on the incline, backwards to the release and a few flashes at rest
+//! before it); the roll that led into a path that begins with a flight, when strays lie behind
+//! its first image (an incline whose images all merged, none on the path); and each run of
+//! missing flashes inside a fitted phase (between the phase's images on both sides). All fit
 //! the photo's own image of the ball along the phase's motion; the result is kept only when no
 //! more checks fail or warn and the phases and bounces stay the same
-//! ([`super::kept_if_no_worse`]).
+//! ([`super::kept_if_no_worse`]; for the roll led into a flight, an incline phase comes first
+//! and the others stay the same).
 
 use super::{kept_if_no_worse, renumbered};
 use crate::calibrate::Calibration;
-use crate::detect::chain::{ChainFit, Motion, Pixels, Stretch, Template, ToPixel, fit_chain};
+use crate::detect::chain::{
+    ChainFit, Motion, Pixels, Stretch, Template, ToPixel, fit_chain, misfit,
+};
 use crate::detect::{Spot, SpotReport, SpotSource};
 use crate::error::Result;
 use crate::image::load::load_colour_exact;
+use crate::physics::checks::CheckOutcome;
 use crate::physics::{self, PhaseKind, TimedPoint};
 use crate::pipeline::MeasureSettings;
 use crate::track::{BallPath, PathPoint, PathResult};
@@ -25,6 +31,15 @@ use std::path::Path;
 
 /// Most images a crowded start is searched for.
 const START_TRIALS: i64 = 60;
+
+/// Flashes tried before the turn of a crowded start's motion (the ball at rest where it turns).
+const AT_REST: f64 = 4.0;
+
+/// Tangent of the widest angle between the line from the first image of a path that begins with
+/// a flight back to a stray and the image's velocity, for the stray to be taken for an image of a
+/// roll that led into the flight: the flight's first image may come a whole flash after the
+/// launch, its velocity turned by gravity (up to about 20 degrees in the sweep's scenes).
+const LEAD_IN_CONE: f64 = 0.47;
 
 /// Found images of the incline that seed the motion of a crowded start.
 const START_SEEDS: usize = 6;
@@ -89,7 +104,7 @@ pub(super) fn crowded(
     let Some((photo_path, settings)) = photo else {
         return state;
     };
-    let wanted = |s: &State| start_wanted(s) || !gaps(s).is_empty();
+    let wanted = |s: &State| start_wanted(s) || lead_in_wanted(s) || !gaps(s).is_empty();
     if !wanted(&state) {
         return state;
     }
@@ -109,8 +124,13 @@ pub(super) fn crowded(
         plate: plate.as_ref(),
         tone: settings.spots.tone,
     };
-    let Some(one) = Template::learn(&pixels, &isolated_centres(&state.0, &state.1, r_px), r_px)
-    else {
+    let one =
+        Template::learn(&pixels, &isolated_centres(&state.0, &state.1, r_px), r_px).or_else(|| {
+            let spots: Vec<[f64; 2]> = state.0.spots.iter().map(|s| [s.x_px, s.y_px]).collect();
+            let apart = apart_centres(&state.0, &state.1, r_px);
+            Template::learn_apart(&pixels, &apart, &spots, r_px)
+        });
+    let Some(one) = one else {
         return state;
     };
     let (w, h) = (state.0.width_px as f64, state.0.height_px as f64);
@@ -119,15 +139,19 @@ pub(super) fn crowded(
         px_per_m: calibration.scale_px_per_m(w / 2.0, h / 2.0),
     };
     let to_px = |u: [f64; 2]| plane.to_px(u);
-    let try_with = |state: State, found: Vec<(i64, ChainFit)>| {
+    let try_with = |state: State, found: Vec<(i64, ChainFit)>, led_in: bool| {
         if found.iter().all(|(_, f)| f.added.is_empty()) {
             return state;
         }
         let (report, paths) = with_images(&state.0, &state.1, &found, (&plane, r_px));
         let points: Vec<TimedPoint> = paths.paths[0].points.iter().map(&timed).collect();
         let paths = renumbered(paths, &points);
+        let kept = |m: &physics::Measurement| match led_in {
+            false => kept_if_no_worse(&state.3, m),
+            true => led_in_kept(&state.3, m),
+        };
         match measure(&points) {
-            Ok(m) if kept_if_no_worse(&state.3, &m) => (report, paths, points, m),
+            Ok(m) if kept(&m) => (report, paths, points, m),
             _ => state,
         }
     };
@@ -137,7 +161,11 @@ pub(super) fn crowded(
         })
         .into_iter()
         .collect();
-    let state = try_with(state, started);
+    let state = try_with(state, started, false);
+    let state = match lead_in(&state, (&pixels, &one), &plane, r_px) {
+        Some((n0, fit, rolled)) => try_with(state, vec![(n0, fit)], rolled),
+        None => state,
+    };
     let filled: Vec<(i64, ChainFit)> = gaps(&state)
         .into_iter()
         .filter_map(|run| {
@@ -145,7 +173,7 @@ pub(super) fn crowded(
             Some((n0, fit_chain(&pixels, &one, &stretch.borrow(&to_px), r_px)?))
         })
         .collect();
-    try_with(state, filled)
+    try_with(state, filled, false)
 }
 
 /// A stretch with its own storage (a [`Stretch`] borrows it).
@@ -154,7 +182,8 @@ struct Owned {
     base: Vec<i64>,
     trials: Vec<i64>,
     others: Vec<[f64; 2]>,
-    stop_at_turn: bool,
+    from_rest: bool,
+    seed: Option<Motion>,
 }
 
 impl Owned {
@@ -164,8 +193,9 @@ impl Owned {
             base: self.base.clone(),
             trials: &self.trials,
             others: &self.others,
-            stop_at_turn: self.stop_at_turn,
+            from_rest: self.from_rest,
             to_px,
+            seed: self.seed,
         }
     }
 }
@@ -203,13 +233,11 @@ fn start_stretch(state: &State, plane: &Plane, r_px: f64) -> Option<(i64, Owned)
         .collect();
     let start = Motion::through(&found)?;
     let (w, h) = (report.width_px as f64, report.height_px as f64);
-    let v0 = start.velocity(0.0);
     let trials: Vec<i64> = (1..=START_TRIALS)
         .map(|k| -k)
         .take_while(|&m| {
-            let [x, y] = plane.to_px(start.at(m as f64));
-            let v = start.velocity(m as f64 + 3.0);
-            (0.0..w).contains(&x) && (0.0..h).contains(&y) && v[0] * v0[0] + v[1] * v0[1] > 0.0
+            let [x, y] = plane.to_px(start.placed(m as f64, true));
+            (0.0..w).contains(&x) && (0.0..h).contains(&y) && m as f64 >= start.turn() - AT_REST
         })
         .collect();
     let (lo, hi) = (found.first()?.0, found.last()?.0);
@@ -221,9 +249,239 @@ fn start_stretch(state: &State, plane: &Plane, r_px: f64) -> Option<(i64, Owned)
             base: (lo..=hi).collect(),
             trials,
             others,
-            stop_at_turn: true,
+            from_rest: true,
+            seed: None,
         },
     ))
+}
+
+/// What led into a path that begins with a flight, from the pixels before its first image: the
+/// flight itself, earlier (its own motion backwards: a slow throw's crowded start), or a roll
+/// from rest down an incline whose images all merged ([`lead_in_stretch`]). When both add
+/// images, the account of the pixels with the lesser misfit on the same samples (the path's
+/// images and each account's added images, over every added image) is taken. The fit with the
+/// `n` its offsets count from, and whether it is the roll.
+fn lead_in(
+    state: &State,
+    (pixels, one): (&Pixels, &Template),
+    plane: &Plane,
+    r_px: f64,
+) -> Option<(i64, ChainFit, bool)> {
+    let to_px = |u: [f64; 2]| plane.to_px(u);
+    let flight = flight_start_stretch(state, plane, r_px)
+        .and_then(|(n0, stretch)| {
+            Some((n0, fit_chain(pixels, one, &stretch.borrow(&to_px), r_px)?))
+        })
+        .filter(|(_, f)| !f.added.is_empty());
+    let roll = lead_in_stretch(state, plane, r_px)
+        .and_then(|(n0, stretch, witnesses)| {
+            let fit = fit_chain(pixels, one, &stretch.borrow(&to_px), r_px)?;
+            Some((n0, witnessed(fit, &witnesses, r_px)?))
+        })
+        .filter(|(_, f)| !f.added.is_empty());
+    let (flight, roll) = match (flight, roll) {
+        (None, None) => return None,
+        (Some((n0, f)), None) => return Some((n0, f, false)),
+        (None, Some((n0, f))) => return Some((n0, f, true)),
+        (Some(flight), Some(roll)) => (flight, roll),
+    };
+    let path: Vec<[f64; 2]> = state.1.paths[0]
+        .points
+        .iter()
+        .map(|p| [p.x_px, p.y_px])
+        .collect();
+    let added = |f: &ChainFit| -> Vec<[f64; 2]> {
+        f.added.iter().map(|(_, c, _)| plane.to_px(*c)).collect()
+    };
+    let around = [added(&flight.1), added(&roll.1)].concat();
+    let misfit_of = |f: &ChainFit| {
+        let images = [path.clone(), added(f)].concat();
+        misfit(pixels, one, (&images, &around), r_px).unwrap_or(f64::INFINITY)
+    };
+    if misfit_of(&roll.1) < misfit_of(&flight.1) {
+        Some((roll.0, roll.1, true))
+    } else {
+        Some((flight.0, flight.1, false))
+    }
+}
+
+/// The flashes before the first image of a path that begins with a flight, on the flight's
+/// own motion (flash offsets from the path's first image, whose `n` comes with it): its first
+/// images as seeds, every flash between them on the motion, the flashes before them to try,
+/// backwards while in the frame.
+fn flight_start_stretch(state: &State, plane: &Plane, r_px: f64) -> Option<(i64, Owned)> {
+    let (report, paths, _, m) = state;
+    let phase = m.phases.first()?;
+    let best = paths.paths.first()?;
+    if phase.kind != PhaseKind::Flight {
+        return None;
+    }
+    let n0 = best.points.first()?.n;
+    let seeds: Vec<&PathPoint> = best
+        .points
+        .iter()
+        .filter(|p| p.n <= phase.last_n)
+        .take(START_SEEDS)
+        .collect();
+    let found: Vec<(i64, [f64; 2])> = seeds
+        .iter()
+        .map(|p| ((p.n - n0) as i64, plane.of_px([p.x_px, p.y_px])))
+        .collect();
+    let motion = Motion::through(&found)?;
+    let (w, h) = (report.width_px as f64, report.height_px as f64);
+    let trials: Vec<i64> = (1..=START_TRIALS)
+        .map(|k| -k)
+        .take_while(|&m| {
+            let [x, y] = plane.to_px(motion.at(m as f64));
+            (0.0..w).contains(&x) && (0.0..h).contains(&y)
+        })
+        .collect();
+    if trials.is_empty() {
+        return None;
+    }
+    let (lo, hi) = (found.first()?.0, found.last()?.0);
+    let others = others_near(report, &seeds, (plane, &motion, &trials), r_px);
+    let owned = Owned {
+        found,
+        base: (lo..=hi).collect(),
+        trials,
+        others,
+        from_rest: false,
+        seed: None,
+    };
+    Some((n0 as i64, owned))
+}
+
+/// The path begins with a flight (the ball may have rolled down an incline the path missed).
+fn lead_in_wanted(state: &State) -> bool {
+    state
+        .3
+        .phases
+        .first()
+        .is_some_and(|p| p.kind == PhaseKind::Flight)
+}
+
+/// A roll from rest that leads into the flight a path begins with, as a stretch (flash offsets
+/// from the path's first image, whose `n` comes with it) and its witnesses: the strays behind
+/// the first image on the line of its velocity (within half a radius of it; the ball leaves a
+/// straight incline along it), the farthest taken for where the roll began. The motion starts
+/// from the first image at its velocity, accelerating along it from rest at that stray (a
+/// constant acceleration from rest covers the distance D in 2 D / v); every flash back to it
+/// and [`AT_REST`] more are tried; the first image is held where it was found. None without
+/// such a stray.
+fn lead_in_stretch(state: &State, plane: &Plane, r_px: f64) -> Option<(i64, Owned, Vec<[f64; 2]>)> {
+    let (report, paths, _, m) = state;
+    let phase = m.phases.first()?;
+    let best = paths.paths.first()?;
+    if phase.kind != PhaseKind::Flight {
+        return None;
+    }
+    let first = best.points.first()?;
+    let flight: Vec<(i64, [f64; 2])> = best
+        .points
+        .iter()
+        .filter(|p| p.n <= phase.last_n)
+        .take(START_SEEDS)
+        .map(|p| ((p.n - first.n) as i64, plane.of_px([p.x_px, p.y_px])))
+        .collect();
+    let v0 = Motion::through(&flight)?.velocity(0.0);
+    let speed = v0[0].hypot(v0[1]);
+    let c0 = plane.of_px([first.x_px, first.y_px]);
+    if speed < 1e-6 {
+        return None;
+    }
+    let back = [-v0[0] / speed, -v0[1] / speed];
+    let witnesses: Vec<[f64; 2]> = paths
+        .strays
+        .iter()
+        .map(|s| plane.of_px([s.x_px, s.y_px]))
+        .filter(|u| {
+            let d = [u[0] - c0[0], u[1] - c0[1]];
+            let along = d[0] * back[0] + d[1] * back[1];
+            let across = (d[0] - along * back[0]).hypot(d[1] - along * back[1]);
+            along > 0.5 * r_px && across < along * LEAD_IN_CONE + 0.5 * r_px
+        })
+        .collect();
+    let rest = *witnesses.iter().max_by(|a, b| {
+        let d = |u: &&[f64; 2]| (u[0] - c0[0]).hypot(u[1] - c0[1]);
+        d(a).total_cmp(&d(b))
+    })?;
+    let reach = (c0[0] - rest[0]).hypot(c0[1] - rest[1]);
+    let turn = 2.0 * reach / speed;
+    if turn > START_TRIALS as f64 {
+        return None;
+    }
+    let along = [(c0[0] - rest[0]) / reach, (c0[1] - rest[1]) / reach];
+    let seed = Motion {
+        c0_px: c0,
+        v_px: along.map(|u| u * speed),
+        a_px: along.map(|u| u * speed / turn),
+    };
+    let (w, h) = (report.width_px as f64, report.height_px as f64);
+    let trials: Vec<i64> = (1..=START_TRIALS)
+        .map(|k| -k)
+        .take_while(|&m| {
+            let [x, y] = plane.to_px(seed.placed(m as f64, true));
+            (0.0..w).contains(&x) && (0.0..h).contains(&y) && m as f64 >= -turn - AT_REST
+        })
+        .collect();
+    let near_witness = |s: &[f64; 2]| {
+        witnesses.iter().any(|u| {
+            let q = plane.to_px(*u);
+            (q[0] - s[0]).hypot(q[1] - s[1]) < 0.5
+        })
+    };
+    let mut others = others_near(report, &[first], (plane, &seed, &trials), r_px);
+    others.retain(|s| !near_witness(s));
+    others.push([first.x_px, first.y_px]);
+    let owned = Owned {
+        found: Vec::new(),
+        base: Vec::new(),
+        trials,
+        others,
+        from_rest: true,
+        seed: Some(seed),
+    };
+    Some((first.n as i64, owned, witnesses))
+}
+
+/// `fit` when each of the `witnesses` (found images of the stretch whose flashes were not
+/// known) lies within a quarter of a radius of one of its added images, their RMS miss per
+/// axis added to the images' sigmas; None otherwise.
+fn witnessed(mut fit: ChainFit, witnesses: &[[f64; 2]], r_px: f64) -> Option<ChainFit> {
+    let misses: Vec<f64> = witnesses
+        .iter()
+        .map(|w| {
+            fit.added
+                .iter()
+                .map(|(_, c, _)| (c[0] - w[0]).hypot(c[1] - w[1]))
+                .fold(f64::INFINITY, f64::min)
+        })
+        .collect();
+    if fit.added.is_empty() || misses.iter().any(|&d| d > 0.25 * r_px) {
+        return None;
+    }
+    let rms = (misses.iter().map(|d| d * d).sum::<f64>() / (2.0 * misses.len() as f64)).sqrt();
+    for (_, _, sigma) in &mut fit.added {
+        *sigma = sigma.hypot(rms);
+    }
+    Some(fit)
+}
+
+/// A run of the physics `m` on a path led in by a roll is kept when no more checks fail or
+/// warn than in `first`, an incline comes first and the phases after it and the bounces are
+/// `first`'s.
+fn led_in_kept(first: &physics::Measurement, m: &physics::Measurement) -> bool {
+    let no_worse = [CheckOutcome::Fail, CheckOutcome::Warn]
+        .iter()
+        .all(|&o| m.checks_with(o) <= first.checks_with(o));
+    let kinds = |p: &[physics::PhaseSpan]| p.iter().map(|p| p.kind).collect::<Vec<_>>();
+    no_worse
+        && m.phases
+            .first()
+            .is_some_and(|p| p.kind == PhaseKind::Incline)
+        && kinds(&m.phases[1..]) == kinds(&first.phases)
+        && m.bounces.len() == first.bounces.len()
 }
 
 /// The runs of missing flashes of the best path inside a fitted phase (incline, flight or
@@ -308,7 +566,8 @@ fn gap_stretch(state: &State, run: &[usize], plane: &Plane, r_px: f64) -> Option
             found,
             trials,
             others,
-            stop_at_turn: false,
+            from_rest: false,
+            seed: None,
         },
     ))
 }
@@ -411,6 +670,27 @@ fn with_images(
     let path: &mut BallPath = &mut paths.paths[0];
     path.points.sort_by_key(|p| p.n);
     (report, paths)
+}
+
+/// Centres of the images of the best path that stand apart: its flashes before and after are
+/// on it and no other spot lies within a radius (`r_px`) of it.
+fn apart_centres(report: &SpotReport, paths: &PathResult, r_px: f64) -> Vec<[f64; 2]> {
+    let Some(best) = paths.paths.first() else {
+        return Vec::new();
+    };
+    let on_path = |n: usize| best.points.iter().any(|p| p.n == n);
+    best.points
+        .iter()
+        .filter(|p| p.n > 0 && on_path(p.n - 1) && on_path(p.n + 1))
+        .filter(|p| {
+            report
+                .spots
+                .iter()
+                .enumerate()
+                .all(|(j, o)| j == p.spot_index || (o.x_px - p.x_px).hypot(o.y_px - p.y_px) > r_px)
+        })
+        .map(|p| [p.x_px, p.y_px])
+        .collect()
 }
 
 /// Centres of the isolated images of the best path: its flashes before and after are on it
