@@ -160,6 +160,7 @@ class Truth:
         overl = (d < xyr[:, None, 2] + xyr[None, :, 2]).any(axis=1) if len(f) > 1 \
             else np.zeros(len(f), bool)
         self.flashes = xyr[inside]
+        self.flash_n = np.array([int(q["n"]) for q in f], int)[inside]
         self.overlap = overl[inside]
         # In the target's scope: no other flash's centre nearer than 0.8 radius (images nearer
         # than that, at the very slow start, are nearly one image).
@@ -332,7 +333,7 @@ class Beadline:
     def measure_path(self, photo, truth_doc, plate=None):
         """Run `beadline measure PHOTO --rate R --ball-diameter D --format json` with the rate
         and the ball's diameter of the truth (what a user knows). Returns the path's (x, y) in
-        pixels, empty when measure refused the photo."""
+        pixels and their flash numbers `n`, empty when measure refused the photo."""
         cmd = [self.binary, "measure", str(photo), "--rate", repr(truth_doc["rate_hz"]),
                "--ball-diameter", repr(2.0 * truth_doc["ball_radius_m"]), "--format", "json"]
         if plate is not None:
@@ -341,8 +342,10 @@ class Beadline:
         try:
             doc = json.loads(p.stdout)
         except json.JSONDecodeError:
-            return np.zeros((0, 2))
-        return np.array([[q["x_px"], q["y_px"]] for q in doc.get("path", [])], float).reshape(-1, 2)
+            return np.zeros((0, 2)), np.zeros(0, int)
+        path = doc.get("path", [])
+        xy = np.array([[q["x_px"], q["y_px"]] for q in path], float).reshape(-1, 2)
+        return xy, np.array([q["n"] for q in path], int)
 
 
 # ----------------------------------------------------------------------------------------------
@@ -488,13 +491,17 @@ def run_reference(name, params, photo, rmin, rmax, plate=None):
     return det, time.perf_counter() - t0
 
 
-def path_match(truth, xy):
-    """The path's images against the truth, by the nearest neighbour's distance: per bin of
-    CROWDED_BINS and for images 0.8 radius or more from a neighbour, (found, total); and the
-    path's images that are no ball image (more than half a radius from every in-frame flash
-    not matched to another path image)."""
+def path_match(truth, path):
+    """The path's images (centres, flash numbers) against the truth, by the nearest
+    neighbour's distance: per bin of CROWDED_BINS and for images 0.8 radius or more from a
+    neighbour, (found, total) and the found images' centre errors; the path's images that are no
+    ball image (more than half a radius from every in-frame flash not matched to another path
+    image); and whether the path's flash numbers are the truth's less one constant."""
+    xy, n = path
     T = truth.flashes
     found = np.zeros(len(T), bool)
+    err = np.full((len(T), 2), np.nan)
+    offsets = set()
     false = 0
     if len(T) and len(xy):
         d = np.hypot(T[:, None, 0] - xy[None, :, 0], T[:, None, 1] - xy[None, :, 1])
@@ -502,16 +509,20 @@ def path_match(truth, xy):
         ri, ci = linear_sum_assignment(np.where(ok, d, 1e6))
         keep = ok[ri, ci]
         found[ri[keep]] = True
+        err[ri[keep]] = xy[ci[keep]] - T[ri[keep], :2]
+        offsets = set((truth.flash_n[ri[keep]] - n[ci[keep]]).tolist())
         near_outside = _near(np.c_[xy, np.ones(len(xy))], truth.outside)
         matched = np.zeros(len(xy), bool)
         matched[ci[keep]] = True
         false = int((~matched & ~near_outside).sum())
-    out = {"path_points": len(xy), "path_false": false}
+    out = {"path_points": len(xy), "path_false": false,
+           "path_numbered": len(offsets) <= 1}
     bins = list(CROWDED_BINS) + [(SCOPE_NN_R, np.inf)]
     for lo, hi in bins:
         inbin = (truth.nn_r >= lo) & (truth.nn_r < hi)
         out[f"path_n_{lo}"] = int(inbin.sum())
         out[f"path_tp_{lo}"] = int((inbin & found).sum())
+        out[f"path_err_{lo}"] = err[inbin & found]
     return out
 
 
@@ -613,6 +624,11 @@ def summarise(rows):
         for lo in [b[0] for b in CROWDED_BINS] + [SCOPE_NN_R]:
             n = sum(r[f"path_n_{lo}"] for r in ok)
             s[f"path_recall_{lo}"] = sum(r[f"path_tp_{lo}"] for r in ok) / n if n else np.nan
+            e = np.concatenate([r[f"path_err_{lo}"] for r in ok])
+            s[f"path_rms_{lo}"] = rms(e)
+        s["path_photos"] = len(ok)
+        s["path_numbered"] = sum(r["path_numbered"] for r in ok)
+        s["path_misnumbered"] = [r["photo"] for r in ok if not r["path_numbered"]]
         points = sum(r["path_points"] for r in ok)
         s["path_points"] = points
         s["path_false"] = sum(r["path_false"] for r in ok)
@@ -816,6 +832,18 @@ def crowded_target_lines(s, yes):
          f"({s[f'n_{c}']} images) | {yes(s[f'recall_{c}'] >= 0.95)} |",
          f"| centre RMS <= 0.15 px, neighbour {a}-{b} r (crowding issue) | "
          f"{fmt(s[f'rms_{a}'])} | {yes(s[f'rms_{a}'] <= 0.15)} |"]
+    if "path_points" in s:
+        L += [f"| recall >= 0.99, neighbour {a}-{b} r, the path of `measure` (crowding issue) | "
+              f"{fmt(s[f'path_recall_{a}'], '.4f')} | {yes(s[f'path_recall_{a}'] >= 0.99)} |",
+              f"| recall >= 0.95, neighbour {c}-{a} r, the path of `measure` (crowding issue) | "
+              f"{fmt(s[f'path_recall_{c}'], '.4f')} | {yes(s[f'path_recall_{c}'] >= 0.95)} |",
+              f"| centre RMS <= 0.15 px, neighbour {a}-{b} r, the path of `measure` (crowding "
+              f"issue) | {fmt(s[f'path_rms_{a}'])} | {yes(s[f'path_rms_{a}'] <= 0.15)} |",
+              f"| precision 1.000 on the path of `measure` (crowding issue) | "
+              f"{fmt(s['path_precision'], '.4f')} | {yes(s['path_false'] == 0)} |",
+              f"| flash numbers the truth's less one constant on every photo (crowding issue) | "
+              f"{s['path_numbered']} of {s['path_photos']} | "
+              f"{yes(s['path_numbered'] == s['path_photos'])} |"]
     if s.get("light_counted"):
         exact = s["light_exact"] / s["light_counted"]
         L.append(f"| light count exact on >= 98 % of groups (crowding issue) | {exact:.3f} "
@@ -933,11 +961,15 @@ def report(path, rows, frozen, calib_name, speed_rows, beadline, versions, elaps
               "physics: the images on the path against the truth, by the nearest neighbour's "
               "distance, and the path's images that are no ball image.", "",
               f"| path | recall, neighbour {a}-{b} r | recall, neighbour {c}-{a} r | recall, "
-              f"neighbour >= {SCOPE_NN_R} r | path images | not a ball image (precision) |",
-              "|---|---|---|---|---|---|",
+              f"neighbour >= {SCOPE_NN_R} r | RMS px, neighbour {a}-{b} r | path images | "
+              "not a ball image (precision) | flash numbers the truth's less one constant |",
+              "|---|---|---|---|---|---|---|---|",
               f"| beadline measure | {fmt(q[f'path_recall_{a}'])} | {fmt(q[f'path_recall_{c}'])} | "
-              f"{fmt(q[f'path_recall_{SCOPE_NN_R}'])} | {q['path_points']} | {q['path_false']} "
-              f"({fmt(q['path_precision'], '.4f')}) |"]
+              f"{fmt(q[f'path_recall_{SCOPE_NN_R}'])} | {fmt(q[f'path_rms_{a}'])} | "
+              f"{q['path_points']} | {q['path_false']} ({fmt(q['path_precision'], '.4f')}) | "
+              f"{q['path_numbered']} of {q['path_photos']} photos"
+              + (f" (not: {', '.join(q['path_misnumbered'])})" if q['path_misnumbered'] else "")
+              + " |"]
     scoped = [r for r in test_rows if r.get("in_scope", True)]
     L += ["", "## Within the target's scope", "",
           "The issue's targets cover images whose nearest neighbour's centre is at least "

@@ -41,6 +41,18 @@ const AT_REST: f64 = 4.0;
 /// launch, its velocity turned by gravity (up to about 20 degrees in the sweep's scenes).
 const LEAD_IN_CONE: f64 = 0.47;
 
+/// The roll from rest that led into a flight is started from its release time as the strays put
+/// it, and as 1.5 and 2 times as long ago: the flight's first image may come most of a flash
+/// after the launch, faster than the roll ended, and a roll started too fast fits the pixels with
+/// one image every other flash (sweep shot 168).
+const LEAD_IN_SLOWER: [f64; 3] = [1.0, 1.5, 2.0];
+
+/// Largest sigma of an image of a roll found before a flight, in radii: a new phase stands on
+/// images the pixels place well. Sweep shot 168 (an 18 px ball whose roll's 7 images lie 0.25 to
+/// 0.74 radius apart) fitted 3 images one every other flash with sigmas of 0.2-0.35 radius, and
+/// the path's flash numbers went 4 off; the bench's 30 px roll, right, had 0.01-0.03.
+const LEAD_IN_SIGMA: f64 = 0.1;
+
 /// Found images of the incline that seed the motion of a crowded start.
 const START_SEEDS: usize = 6;
 
@@ -241,7 +253,7 @@ fn start_stretch(state: &State, plane: &Plane, r_px: f64) -> Option<(i64, Owned)
         })
         .collect();
     let (lo, hi) = (found.first()?.0, found.last()?.0);
-    let others = others_near(report, &seeds, (plane, &start, &trials), r_px);
+    let others = others_near((report, best), &seeds, (plane, &start, &trials), r_px);
     Some((
         n0 as i64,
         Owned {
@@ -259,8 +271,9 @@ fn start_stretch(state: &State, plane: &Plane, r_px: f64) -> Option<(i64, Owned)
 /// flight itself, earlier (its own motion backwards: a slow throw's crowded start), or a roll
 /// from rest down an incline whose images all merged ([`lead_in_stretch`]). When both add
 /// images, the account of the pixels with the lesser misfit on the same samples (the path's
-/// images and each account's added images, over every added image) is taken. The fit with the
-/// `n` its offsets count from, and whether it is the roll.
+/// images and each account's added images, over every added image) is taken, a roll only when
+/// every image it adds has a sigma under [`LEAD_IN_SIGMA`] radius. The fit with the `n` its
+/// offsets count from, and whether it is the roll.
 fn lead_in(
     state: &State,
     (pixels, one): (&Pixels, &Template),
@@ -273,18 +286,25 @@ fn lead_in(
             Some((n0, fit_chain(pixels, one, &stretch.borrow(&to_px), r_px)?))
         })
         .filter(|(_, f)| !f.added.is_empty());
-    let roll = lead_in_stretch(state, plane, r_px)
-        .and_then(|(n0, stretch, witnesses)| {
-            let fit = fit_chain(pixels, one, &stretch.borrow(&to_px), r_px)?;
-            Some((n0, witnessed(fit, &witnesses, r_px)?))
-        })
-        .filter(|(_, f)| !f.added.is_empty());
-    let (flight, roll) = match (flight, roll) {
-        (None, None) => return None,
-        (Some((n0, f)), None) => return Some((n0, f, false)),
-        (None, Some((n0, f))) => return Some((n0, f, true)),
-        (Some(flight), Some(roll)) => (flight, roll),
+    let rolls = LEAD_IN_SLOWER.iter().filter_map(|&slower| {
+        let (n0, stretch, witnesses) = lead_in_stretch(state, plane, r_px, slower)?;
+        let fit = fit_chain(pixels, one, &stretch.borrow(&to_px), r_px)?;
+        Some((n0, witnessed(fit, &witnesses, r_px)?, true))
+    });
+    let accounts: Vec<(i64, ChainFit, bool)> = flight
+        .map(|(n0, f)| (n0, f, false))
+        .into_iter()
+        .chain(rolls)
+        .filter(|(_, f, _)| !f.added.is_empty())
+        .collect();
+    // A new phase stands on images the pixels place well.
+    let placed = |(n0, f, rolled): (i64, ChainFit, bool)| {
+        let fine = !rolled || f.added.iter().all(|a| a.2 <= LEAD_IN_SIGMA * r_px);
+        fine.then_some((n0, f, rolled))
     };
+    if accounts.len() < 2 {
+        return accounts.into_iter().next().and_then(placed);
+    }
     let path: Vec<[f64; 2]> = state.1.paths[0]
         .points
         .iter()
@@ -293,16 +313,16 @@ fn lead_in(
     let added = |f: &ChainFit| -> Vec<[f64; 2]> {
         f.added.iter().map(|(_, c, _)| plane.to_px(*c)).collect()
     };
-    let around = [added(&flight.1), added(&roll.1)].concat();
+    let around: Vec<[f64; 2]> = accounts.iter().flat_map(|(_, f, _)| added(f)).collect();
     let misfit_of = |f: &ChainFit| {
         let images = [path.clone(), added(f)].concat();
         misfit(pixels, one, (&images, &around), r_px).unwrap_or(f64::INFINITY)
     };
-    if misfit_of(&roll.1) < misfit_of(&flight.1) {
-        Some((roll.0, roll.1, true))
-    } else {
-        Some((flight.0, flight.1, false))
-    }
+    accounts
+        .into_iter()
+        .map(|a| (misfit_of(&a.1), a))
+        .min_by(|a, b| a.0.total_cmp(&b.0))
+        .and_then(|(_, a)| placed(a))
 }
 
 /// The flashes before the first image of a path that begins with a flight, on the flight's
@@ -340,7 +360,7 @@ fn flight_start_stretch(state: &State, plane: &Plane, r_px: f64) -> Option<(i64,
         return None;
     }
     let (lo, hi) = (found.first()?.0, found.last()?.0);
-    let others = others_near(report, &seeds, (plane, &motion, &trials), r_px);
+    let others = others_near((report, best), &seeds, (plane, &motion, &trials), r_px);
     let owned = Owned {
         found,
         base: (lo..=hi).collect(),
@@ -369,7 +389,12 @@ fn lead_in_wanted(state: &State) -> bool {
 /// constant acceleration from rest covers the distance D in 2 D / v); every flash back to it
 /// and [`AT_REST`] more are tried; the first image is held where it was found. None without
 /// such a stray.
-fn lead_in_stretch(state: &State, plane: &Plane, r_px: f64) -> Option<(i64, Owned, Vec<[f64; 2]>)> {
+fn lead_in_stretch(
+    state: &State,
+    plane: &Plane,
+    r_px: f64,
+    slower: f64,
+) -> Option<(i64, Owned, Vec<[f64; 2]>)> {
     let (report, paths, _, m) = state;
     let phase = m.phases.first()?;
     let best = paths.paths.first()?;
@@ -407,7 +432,7 @@ fn lead_in_stretch(state: &State, plane: &Plane, r_px: f64) -> Option<(i64, Owne
         d(a).total_cmp(&d(b))
     })?;
     let reach = (c0[0] - rest[0]).hypot(c0[1] - rest[1]);
-    let turn = 2.0 * reach / speed;
+    let turn = 2.0 * reach / speed * slower;
     if turn > START_TRIALS as f64 {
         return None;
     }
@@ -431,7 +456,7 @@ fn lead_in_stretch(state: &State, plane: &Plane, r_px: f64) -> Option<(i64, Owne
             (q[0] - s[0]).hypot(q[1] - s[1]) < 0.5
         })
     };
-    let mut others = others_near(report, &[first], (plane, &seed, &trials), r_px);
+    let mut others = others_near((report, best), &[first], (plane, &seed, &trials), r_px);
     others.retain(|s| !near_witness(s));
     others.push([first.x_px, first.y_px]);
     let owned = Owned {
@@ -558,7 +583,7 @@ fn gap_stretch(state: &State, run: &[usize], plane: &Plane, r_px: f64) -> Option
         }
     }
     let motion = Motion::through(&found)?;
-    let others = others_near(report, &seeds, (plane, &motion, &trials), r_px);
+    let others = others_near((report, best), &seeds, (plane, &motion, &trials), r_px);
     Some((
         a as i64,
         Owned {
@@ -573,10 +598,11 @@ fn gap_stretch(state: &State, run: &[usize], plane: &Plane, r_px: f64) -> Option
 }
 
 /// The spots within two radii and 3 px of the seeds or of the images `motion` predicts at the
-/// `trials` offsets, less the seeds themselves and the spots on a predicted image (some of the
-/// images tried, merged).
+/// `trials` offsets, less the seeds themselves and the strays on a predicted image (some of the
+/// images tried, merged). An image of the best path is another flash's, held even where a trial
+/// falls on it (a drop's rise passes over its fall, and a flight read backwards retraces it).
 fn others_near(
-    report: &SpotReport,
+    (report, best): (&SpotReport, &BallPath),
     seeds: &[&PathPoint],
     (plane, motion, trials): (&Plane, &Motion, &[i64]),
     r_px: f64,
@@ -591,21 +617,23 @@ fn others_near(
         .map(|p| [p.x_px, p.y_px])
         .chain(predicted.to_vec())
         .collect();
+    let on_path = |i: usize| best.points.iter().any(|p| p.spot_index == i);
     report
         .spots
         .iter()
         .enumerate()
         .filter(|(i, _)| !seeds.iter().any(|p| p.spot_index == *i))
-        .map(|(_, s)| [s.x_px, s.y_px])
-        .filter(|s| {
+        .filter(|(_, s)| {
             near.iter()
-                .any(|c| (s[0] - c[0]).hypot(s[1] - c[1]) < reach)
+                .any(|c| (s.x_px - c[0]).hypot(s.y_px - c[1]) < reach)
         })
-        .filter(|s| {
-            !predicted
-                .iter()
-                .any(|c| (s[0] - c[0]).hypot(s[1] - c[1]) < r_px)
+        .filter(|(i, s)| {
+            on_path(*i)
+                || !predicted
+                    .iter()
+                    .any(|c| (s.x_px - c[0]).hypot(s.y_px - c[1]) < r_px)
         })
+        .map(|(_, s)| [s.x_px, s.y_px])
         .collect()
 }
 
