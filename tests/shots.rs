@@ -689,3 +689,24 @@ fn an_incline_whose_images_all_merged_is_found_behind_the_flight() {
     assert!(added >= 22, "{added} images added");
     check_incline(&m.doc.measurement, &truth);
 }
+
+#[test]
+fn a_drop_s_merged_first_images_are_found_backwards_along_its_flight() {
+    // Sweep shot 197 (tests/data/drop_start_merged.toml, saved as JPEG quality 65 as the sweep
+    // saved it): a 4.5 mm ball dropped from rest at 115 Hz, its first images 0.18 to 0.84 radius
+    // apart. The path began at truth flash 4. Fitted backwards along the flight's own motion
+    // (the path's own images held where a trial falls on one), the first four are added, each
+    // within 2 sigma and half a radius of its truth, numbered as the truth numbers them.
+    let scene = test_scene("drop_start_merged");
+    let settings = MeasureSettings {
+        scale: Some(ScaleSource::Plane(
+            "tests/data/drop_start_merged.plane.toml".into(),
+        )),
+        ..settings(scene.strobe.rate_hz, scene.ball.diameter_m)
+    };
+    let (m, truth, first) = measure_scene_as(&scene, &settings, "drop.jpg");
+    assert_eq!(first, 0, "the path starts at the first flash");
+    let added = check_added(&m, &truth, first);
+    assert!(added >= 4, "{added} images added");
+    check_physics(&m.doc.measurement, &truth, first);
+}

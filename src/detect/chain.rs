@@ -544,19 +544,8 @@ pub fn fit_chain(
         offsets: offsets.clone(),
         ..model
     };
-    // The image's peak over the misfit, in the best channel: below MIN_SNR the pixels are
-    // too faint to place an image the detector could not.
-    let snr = (0..3)
-        .map(|c| {
-            let (n, sum) = window
-                .iter()
-                .zip(&best.res)
-                .filter(|(q, _)| q.channel == c)
-                .fold((0usize, 0.0), |(n, s), (_, r)| (n + 1, s + r * r));
-            let rms = (sum / n.max(1) as f64).sqrt();
-            one.peak(c) / rms
-        })
-        .fold(0.0, f64::max);
+    // Below MIN_SNR the pixels are too faint to place an image the detector could not.
+    let snr = peak_over_misfit(one, &window, &best.res);
     if snr.is_nan() || snr < MIN_SNR {
         return None;
     }
@@ -575,6 +564,21 @@ pub fn fit_chain(
         *sigma = sigma.hypot(shift).hypot(missed).hypot(apart);
     }
     Some(ChainFit { added, motion })
+}
+
+/// The image's peak light over the fit's RMS misfit `res` on `window`, in the best channel.
+fn peak_over_misfit(one: &Template, window: &[Sample], res: &[f64]) -> f64 {
+    (0..3)
+        .map(|c| {
+            let (n, sum) = window
+                .iter()
+                .zip(res)
+                .filter(|(q, _)| q.channel == c)
+                .fold((0usize, 0.0), |(n, s), (_, r)| (n + 1, s + r * r));
+            let rms = (sum / n.max(1) as f64).sqrt();
+            one.peak(c) / rms
+        })
+        .fold(0.0, f64::max)
 }
 
 /// The misfit per sample of images of the ball at each of `images` (in the photo) to the pixels

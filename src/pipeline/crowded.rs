@@ -53,6 +53,9 @@ const LEAD_IN_SLOWER: [f64; 3] = [1.0, 1.5, 2.0];
 /// the path's flash numbers went 4 off; the bench's 30 px roll, right, had 0.01-0.03.
 const LEAD_IN_SIGMA: f64 = 0.1;
 
+/// Most flashes tried before a flight's first image.
+const FLIGHT_END_TRIALS: i64 = 8;
+
 /// Found images of the incline that seed the motion of a crowded start.
 const START_SEEDS: usize = 6;
 
@@ -99,8 +102,8 @@ impl Plane<'_> {
     }
 }
 
-/// The crowded start, then the runs of missing flashes, each kept when the physics keeps it
-/// (see the module's doc). `photo` is None when the spots came without a photo; `calibration`
+/// The crowded start, then what led into a path that begins with a flight, then the runs of
+/// missing flashes, each kept when the physics keeps it (see the module's doc). `photo` is None when the spots came without a photo; `calibration`
 /// maps pixels to the plane of motion; `timed` makes a path point a timed point, `measure` runs
 /// the physics, `r_px` is the path's median radius.
 pub(super) fn crowded(
@@ -325,10 +328,13 @@ fn lead_in(
         .and_then(|(_, a)| placed(a))
 }
 
-/// The flashes before the first image of a path that begins with a flight, on the flight's
-/// own motion (flash offsets from the path's first image, whose `n` comes with it): its first
-/// images as seeds, every flash between them on the motion, the flashes before them to try,
-/// backwards while in the frame.
+/// The flashes before the first image of a path that begins with a flight, on the flight's own
+/// motion (flash offsets from that image, whose `n` comes with it): the flight's first images as
+/// seeds, every flash between them on the motion, the flashes before them to try, backwards
+/// while in the frame and off the path's images ([`FLIGHT_END_TRIALS`] at most). The same
+/// after a path's last flight image was tried and left out: on sweep shots 84, 126 and 212
+/// (drops whose rise passes over their fall) the image it added put a stray of another flash on
+/// the path's track, and `images_accounted` warned on right values.
 fn flight_start_stretch(state: &State, plane: &Plane, r_px: f64) -> Option<(i64, Owned)> {
     let (report, paths, _, m) = state;
     let phase = m.phases.first()?;
@@ -336,24 +342,31 @@ fn flight_start_stretch(state: &State, plane: &Plane, r_px: f64) -> Option<(i64,
     if phase.kind != PhaseKind::Flight {
         return None;
     }
-    let n0 = best.points.first()?.n;
     let seeds: Vec<&PathPoint> = best
         .points
         .iter()
         .filter(|p| p.n <= phase.last_n)
         .take(START_SEEDS)
         .collect();
+    let n0 = seeds.first()?.n;
     let found: Vec<(i64, [f64; 2])> = seeds
         .iter()
         .map(|p| ((p.n - n0) as i64, plane.of_px([p.x_px, p.y_px])))
         .collect();
     let motion = Motion::through(&found)?;
     let (w, h) = (report.width_px as f64, report.height_px as f64);
-    let trials: Vec<i64> = (1..=START_TRIALS)
+    // A flash the motion puts on an image of the path cannot be told from it (a drop read
+    // backwards retraces its fall; sweep shot 294 had 14 images added on its own).
+    let on_path = |[x, y]: [f64; 2]| {
+        best.points
+            .iter()
+            .any(|p| (p.x_px - x).hypot(p.y_px - y) < 0.5 * r_px)
+    };
+    let trials: Vec<i64> = (1..=FLIGHT_END_TRIALS)
         .map(|k| -k)
         .take_while(|&m| {
             let [x, y] = plane.to_px(motion.at(m as f64));
-            (0.0..w).contains(&x) && (0.0..h).contains(&y)
+            (0.0..w).contains(&x) && (0.0..h).contains(&y) && !on_path([x, y])
         })
         .collect();
     if trials.is_empty() {
