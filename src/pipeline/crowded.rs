@@ -139,12 +139,16 @@ pub(super) fn crowded(
         plate: plate.as_ref(),
         tone: settings.spots.tone,
     };
-    let one =
-        Template::learn(&pixels, &isolated_centres(&state.0, &state.1, r_px), r_px).or_else(|| {
-            let spots: Vec<[f64; 2]> = state.0.spots.iter().map(|s| [s.x_px, s.y_px]).collect();
-            let apart = apart_centres(&state.0, &state.1, r_px);
-            Template::learn_apart(&pixels, &apart, &spots, r_px)
-        });
+    let one = Template::learn(
+        &pixels,
+        &centres_apart(&state.0, &state.1, 2.2 * r_px),
+        r_px,
+    )
+    .or_else(|| {
+        let spots: Vec<[f64; 2]> = state.0.spots.iter().map(|s| [s.x_px, s.y_px]).collect();
+        let apart = centres_apart(&state.0, &state.1, r_px);
+        Template::learn_apart(&pixels, &apart, &spots, r_px)
+    });
     let Some(one) = one else {
         return state;
     };
@@ -713,30 +717,10 @@ fn with_images(
     (report, paths)
 }
 
-/// Centres of the images of the best path that stand apart: its flashes before and after are
-/// on it and no other spot lies within a radius (`r_px`) of it.
-fn apart_centres(report: &SpotReport, paths: &PathResult, r_px: f64) -> Vec<[f64; 2]> {
-    let Some(best) = paths.paths.first() else {
-        return Vec::new();
-    };
-    let on_path = |n: usize| best.points.iter().any(|p| p.n == n);
-    best.points
-        .iter()
-        .filter(|p| p.n > 0 && on_path(p.n - 1) && on_path(p.n + 1))
-        .filter(|p| {
-            report
-                .spots
-                .iter()
-                .enumerate()
-                .all(|(j, o)| j == p.spot_index || (o.x_px - p.x_px).hypot(o.y_px - p.y_px) > r_px)
-        })
-        .map(|p| [p.x_px, p.y_px])
-        .collect()
-}
-
-/// Centres of the isolated images of the best path: its flashes before and after are on it
-/// (no unfound image beside it) and no spot of `report` lies within 2.2 radii (`r_px`).
-fn isolated_centres(report: &SpotReport, paths: &PathResult, r_px: f64) -> Vec<[f64; 2]> {
+/// Centres of the images of the best path with no spot of `report` within `apart_px`: its
+/// flashes before and after are on it (no unfound image beside it). 2.2 radii: isolated; one
+/// radius: apart enough to show some of their disc free of any other.
+fn centres_apart(report: &SpotReport, paths: &PathResult, apart_px: f64) -> Vec<[f64; 2]> {
     let Some(best) = paths.paths.first() else {
         return Vec::new();
     };
@@ -746,7 +730,7 @@ fn isolated_centres(report: &SpotReport, paths: &PathResult, r_px: f64) -> Vec<[
         .filter(|p| p.n > 0 && on_path(p.n - 1) && on_path(p.n + 1))
         .filter(|p| {
             report.spots.iter().enumerate().all(|(j, o)| {
-                j == p.spot_index || (o.x_px - p.x_px).hypot(o.y_px - p.y_px) > 2.2 * r_px
+                j == p.spot_index || (o.x_px - p.x_px).hypot(o.y_px - p.y_px) > apart_px
             })
         })
         .map(|p| [p.x_px, p.y_px])
