@@ -640,8 +640,8 @@ struct Origin {
 }
 
 /// The origin of the reported frame from the first run `m` of the physics on `points` (input
-/// frame), whose results lie in `frame` (`radius_m` is the ball's radius in that frame): with a plane file, the plane's own origin; otherwise
-/// y = 0 at the floor line when the floor was found (else at the underside of the ball at its
+/// frame), whose results lie in `frame` (`radius_m` is the ball's radius in that frame): with a
+/// plane file, the plane's own origin; otherwise y = 0 at the floor line when the floor was found (else at the underside of the ball at its
 /// lowest image), and x = 0 at the ball's centre at the launch off the incline, else at its
 /// centre at the first bounce contact, else at its first image.
 fn origin_of(

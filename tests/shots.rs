@@ -673,9 +673,10 @@ fn a_small_ball_s_merged_start_is_counted_from_its_least_misfit() {
 fn an_incline_whose_images_all_merged_is_found_behind_the_flight() {
     // The bench's overlap_r30 scene: a 30 px ball on a 12 degree incline, the first 23 of its 24
     // incline images 0.02 to 0.65 radius apart. The detector's path began with the last (taken
-    // for the flight's first: no incline, no launch) and two blobs on the incline were strays. From the flight's first image back
-    // through the strays, the roll from rest is fitted to the pixels: every incline flash is on
-    // the path, the incline and the launch are measured and agree with the truth.
+    // for the flight's first: no incline, no launch) and two blobs on the incline were strays.
+    // From the flight's first image back through the strays, the roll from rest is fitted to
+    // the pixels: every incline flash is on the path, the incline and the launch are measured
+    // and agree with the truth.
     let scene = test_scene("incline_all_merged");
     let settings = settings(scene.strobe.rate_hz, scene.ball.diameter_m);
     let dir = common::tempdir();

@@ -16,14 +16,16 @@
 //! the parts of its images that no other image reaches. The images sit at
 //! c(m) = c0 + v m + a m^2 / 2 in the plane of motion for flash offset m (constant acceleration,
 //! equal flash intervals; a stretch from rest holds the ball at the motion's turning point for
-//! the flashes before it, as a ball released from rest or held before its release); their common brightness and a constant are solved linearly at every
-//! step, per channel (variable projection, Golub & Pereyra, SIAM J. Numer. Anal. 10, 1973), the
-//! motion by Levenberg-Marquardt with a forward-difference Jacobian. Clipped samples are left
+//! the flashes before it, as a ball released from rest or held before its release); their
+//! common brightness and a constant are solved linearly at every step, per channel (variable
+//! projection, Golub & Pereyra, SIAM J. Numer. Anal. 10, 1973), the motion by
+//! Levenberg-Marquardt with a forward-difference Jacobian. Clipped samples are left
 //! out: a coloured ball's stack of images clips its strongest channel first, and the others
 //! still add the images up (a white ball's stack clips in all three and tells little). The
 //! count is the number of least misfit, less the last images that do not each lower it by a
-//! clear margin against one image fewer, `n ln(RSS_without / RSS_with) >= 25`, n the samples over the correlation factor of their
-//! residuals: "no ball here" must lose by what a five-sigma detection would. An added centre's
+//! clear margin against one image fewer, `n ln(RSS_without / RSS_with) >= 25`, n the samples
+//! over the correlation factor of their residuals: "no ball here" must lose by what a
+//! five-sigma detection would. An added centre's
 //! sigma holds the fit's covariance (scaled by the misfit), the move of the centres with one
 //! image more or fewer, the RMS miss of the found images (placed by their own fits), and the
 //! distance to where the image sits when fitted alone.

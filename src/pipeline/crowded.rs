@@ -7,9 +7,10 @@
 //!
 //! Three stretches are tried: the crowded start of a roll (the flashes before the first image
 //! of a path that begins on the incline, backwards to the release and a few flashes at rest
-//! before it); the roll that led into a path that begins with a flight, when strays lie behind
-//! its first image (an incline whose images all merged, none on the path); and each run of
-//! missing flashes inside a fitted phase (between the phase's images on both sides). All fit
+//! before it); what led into a path that begins with a flight (that flight, earlier, or a roll
+//! from rest through the strays behind its first image: an incline whose images all merged,
+//! none on the path; whichever misfits the pixels less); and each run of missing flashes inside
+//! a fitted phase (between the phase's images on both sides). All fit
 //! the photo's own image of the ball along the phase's motion; the result is kept only when no
 //! more checks fail or warn and the phases and bounces stay the same
 //! ([`super::kept_if_no_worse`]; for the roll led into a flight, an incline phase comes first
@@ -103,9 +104,10 @@ impl Plane<'_> {
 }
 
 /// The crowded start, then what led into a path that begins with a flight, then the runs of
-/// missing flashes, each kept when the physics keeps it (see the module's doc). `photo` is None when the spots came without a photo; `calibration`
-/// maps pixels to the plane of motion; `timed` makes a path point a timed point, `measure` runs
-/// the physics, `r_px` is the path's median radius.
+/// missing flashes, each kept when the physics keeps it (see the module's doc). `photo` is
+/// None when the spots came without a photo; `calibration` maps pixels to the plane of motion;
+/// `timed` makes a path point a timed point, `measure` runs the physics, `r_px` is the path's
+/// median radius.
 pub(super) fn crowded(
     photo: Option<(&Path, &MeasureSettings)>,
     calibration: &Calibration,
@@ -400,12 +402,13 @@ fn lead_in_wanted(state: &State) -> bool {
 
 /// A roll from rest that leads into the flight a path begins with, as a stretch (flash offsets
 /// from the path's first image, whose `n` comes with it) and its witnesses: the strays behind
-/// the first image on the line of its velocity (within half a radius of it; the ball leaves a
-/// straight incline along it), the farthest taken for where the roll began. The motion starts
-/// from the first image at its velocity, accelerating along it from rest at that stray (a
-/// constant acceleration from rest covers the distance D in 2 D / v); every flash back to it
-/// and [`AT_REST`] more are tried; the first image is held where it was found. None without
-/// such a stray.
+/// the first image near the line of its velocity (within [`LEAD_IN_CONE`] of it and half a
+/// radius; the ball leaves a straight incline along it), the farthest taken for where the roll
+/// began. The motion starts from the first image at its speed, towards it from that stray,
+/// accelerating from rest there (a constant acceleration from rest covers the distance D in
+/// 2 D / v), the release `slower` times as long ago; every flash back to the release and
+/// [`AT_REST`] more are tried; the first image is held where it was found. None without such a
+/// stray.
 fn lead_in_stretch(
     state: &State,
     plane: &Plane,
