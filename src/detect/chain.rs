@@ -1063,4 +1063,38 @@ mod tests {
         );
         assert!(Motion::through(&points[..2]).is_none());
     }
+
+    #[test]
+    fn a_ball_released_from_rest_sits_at_its_release_point_before_it() {
+        // Exact kinematics: released at rest from (40, 20) at flash offset -6.5 with an
+        // acceleration of (0.8, 0.3) per flash squared, c(m) = (40, 20) + a (m + 6.5)^2 / 2.
+        let (m0, a) = (-6.5, [0.8, 0.3]);
+        let rest = [40.0, 20.0];
+        let motion = Motion {
+            c0_px: [0, 1].map(|i| rest[i] + 0.5 * a[i] * m0 * m0),
+            v_px: [0, 1].map(|i| -a[i] * m0),
+            a_px: a,
+        };
+        assert!((motion.turn() - m0).abs() < 1e-12, "{}", motion.turn());
+        for m in [-20.0, -7.0, -6.5] {
+            let p = motion.placed(m, true);
+            assert!(
+                (p[0] - 40.0).abs() < 1e-9 && (p[1] - 20.0).abs() < 1e-9,
+                "{m}: {p:?}"
+            );
+        }
+        // After the release, and without `from_rest`, the motion itself.
+        let after = motion.placed(-2.0, true);
+        assert!(
+            (after[0] - (40.0 + 0.4 * 4.5 * 4.5)).abs() < 1e-9,
+            "{after:?}"
+        );
+        assert_eq!(motion.placed(-9.0, false), motion.at(-9.0));
+        // No acceleration: no turn.
+        let steady = Motion {
+            a_px: [0.0, 0.0],
+            ..motion
+        };
+        assert_eq!(steady.placed(-9.0, true), steady.at(-9.0));
+    }
 }
