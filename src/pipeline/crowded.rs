@@ -230,28 +230,56 @@ fn start_wanted(state: &State) -> bool {
         .is_some_and(|p| p.kind == PhaseKind::Incline)
 }
 
-/// The crowded start's stretch (flash offsets from the path's first image, whose `n` comes
-/// with it): the first images of the incline as seeds, every flash between them on the motion,
-/// and the flashes before them to try, backwards while in the frame and short of three flashes
-/// past the turn of the seeds' motion.
-fn start_stretch(state: &State, plane: &Plane, r_px: f64) -> Option<(i64, Owned)> {
-    let (report, paths, _, first) = state;
-    let phase = first.phases.first()?;
-    let best = paths.paths.first()?;
-    if phase.kind != PhaseKind::Incline {
+/// The first phase of a path and its first images in it.
+struct Opening<'a> {
+    /// The best path.
+    best: &'a BallPath,
+    /// The flash index of the path's first image.
+    n0: usize,
+    /// The path's first images in the phase, [`START_SEEDS`] at most.
+    seeds: Vec<&'a PathPoint>,
+    /// Their flash offsets from the first and their centres in the plane of motion.
+    found: Vec<(i64, [f64; 2])>,
+}
+
+/// The opening of the best path of `state` when its first phase is of `kind`.
+fn opening<'a>(state: &'a State, kind: PhaseKind, plane: &Plane) -> Option<Opening<'a>> {
+    let phase = state.3.phases.first()?;
+    let best = state.1.paths.first()?;
+    if phase.kind != kind {
         return None;
     }
-    let n0 = best.points.first()?.n;
     let seeds: Vec<&PathPoint> = best
         .points
         .iter()
         .filter(|p| p.n <= phase.last_n)
         .take(START_SEEDS)
         .collect();
-    let found: Vec<(i64, [f64; 2])> = seeds
+    let n0 = seeds.first()?.n;
+    let found = seeds
         .iter()
         .map(|p| ((p.n - n0) as i64, plane.of_px([p.x_px, p.y_px])))
         .collect();
+    Some(Opening {
+        best,
+        n0,
+        seeds,
+        found,
+    })
+}
+
+/// The crowded start's stretch (flash offsets from the path's first image, whose `n` comes
+/// with it): the first images of the incline as seeds, every flash between them on the motion,
+/// and the flashes before them to try, backwards while in the frame and short of three flashes
+/// past the turn of the seeds' motion.
+fn start_stretch(state: &State, plane: &Plane, r_px: f64) -> Option<(i64, Owned)> {
+    let report = &state.0;
+    let Opening {
+        best,
+        n0,
+        seeds,
+        found,
+    } = opening(state, PhaseKind::Incline, plane)?;
     let start = Motion::through(&found)?;
     let (w, h) = (report.width_px as f64, report.height_px as f64);
     let trials: Vec<i64> = (1..=START_TRIALS)
@@ -342,23 +370,13 @@ fn lead_in(
 /// (drops whose rise passes over their fall) the image it added put a stray of another flash on
 /// the path's track, and `images_accounted` warned on right values.
 fn flight_start_stretch(state: &State, plane: &Plane, r_px: f64) -> Option<(i64, Owned)> {
-    let (report, paths, _, m) = state;
-    let phase = m.phases.first()?;
-    let best = paths.paths.first()?;
-    if phase.kind != PhaseKind::Flight {
-        return None;
-    }
-    let seeds: Vec<&PathPoint> = best
-        .points
-        .iter()
-        .filter(|p| p.n <= phase.last_n)
-        .take(START_SEEDS)
-        .collect();
-    let n0 = seeds.first()?.n;
-    let found: Vec<(i64, [f64; 2])> = seeds
-        .iter()
-        .map(|p| ((p.n - n0) as i64, plane.of_px([p.x_px, p.y_px])))
-        .collect();
+    let report = &state.0;
+    let Opening {
+        best,
+        n0,
+        seeds,
+        found,
+    } = opening(state, PhaseKind::Flight, plane)?;
     let motion = Motion::through(&found)?;
     let (w, h) = (report.width_px as f64, report.height_px as f64);
     // A flash the motion puts on an image of the path cannot be told from it (a drop read
@@ -415,21 +433,12 @@ fn lead_in_stretch(
     r_px: f64,
     slower: f64,
 ) -> Option<(i64, Owned, Vec<[f64; 2]>)> {
-    let (report, paths, _, m) = state;
-    let phase = m.phases.first()?;
-    let best = paths.paths.first()?;
-    if phase.kind != PhaseKind::Flight {
-        return None;
-    }
-    let first = best.points.first()?;
-    let flight: Vec<(i64, [f64; 2])> = best
-        .points
-        .iter()
-        .filter(|p| p.n <= phase.last_n)
-        .take(START_SEEDS)
-        .map(|p| ((p.n - first.n) as i64, plane.of_px([p.x_px, p.y_px])))
-        .collect();
-    let v0 = Motion::through(&flight)?.velocity(0.0);
+    let (report, paths) = (&state.0, &state.1);
+    let Opening {
+        best, seeds, found, ..
+    } = opening(state, PhaseKind::Flight, plane)?;
+    let first = *seeds.first()?;
+    let v0 = Motion::through(&found)?.velocity(0.0);
     let speed = v0[0].hypot(v0[1]);
     let c0 = plane.of_px([first.x_px, first.y_px]);
     if speed < 1e-6 {
