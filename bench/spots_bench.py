@@ -37,6 +37,7 @@ import subprocess
 import sys
 import tempfile
 import time
+import tomllib
 
 import cv2
 import numpy as np
@@ -338,6 +339,9 @@ class Beadline:
                "--ball-diameter", repr(2.0 * truth_doc["ball_radius_m"]), "--format", "json"]
         if plate is not None:
             cmd += ["--plate", str(plate)]
+        plane = plane_file(photo, truth_doc)
+        if plane is not None:
+            cmd += ["--plane", str(plane)]
         p = subprocess.run(cmd, capture_output=True, text=True)
         try:
             doc = json.loads(p.stdout)
@@ -346,6 +350,33 @@ class Beadline:
         path = doc.get("path", [])
         xy = np.array([[q["x_px"], q["y_px"]] for q in path], float).reshape(-1, 2)
         return xy, np.array([q["n"] for q in path], int)
+
+
+def plane_file(photo, truth_doc):
+    """For a tilted camera, the plane file a user would give: six ball centres of the truth
+    spread over the path, pixels beside metres in the plane of motion (what a user measures on a
+    board held in that plane), with the lens's distortion of the scene. None for a camera square to the plane (no tilt in its scene)."""
+    stamp = photo.with_suffix(".scene")
+    if not stamp.exists():
+        return None
+    text = "\n".join(l for l in stamp.read_text().splitlines() if l.strip() != "plate")
+    camera = tomllib.loads(text).get("camera", {})
+    tilt = camera.get("tilt_deg", 0.0)
+    flashes = [f for f in truth_doc["flashes"] if f.get("in_frame")]
+    if tilt == 0.0 or len(flashes) < 6:
+        return None
+    order = sorted(range(len(flashes)), key=lambda i: flashes[i]["t_s"])
+    picks = [flashes[order[round(k * (len(order) - 1) / 5)]] for k in range(6)]
+    lines = ["# plane points: six truth ball centres of the photo (bench/spots_bench.py), and",
+             "# the lens's radial distortion as the scene has it (a user's lens calibration)",
+             f"k1 = {camera.get('k1', 0.0)!r}", f"k2 = {camera.get('k2', 0.0)!r}",
+             f"focal_px = {camera.get('focal_px', camera.get('width_px', 1))!r}"]
+    for f in picks:
+        lines += ["[[points]]", f"x_px = {f['x_px']!r}", f"y_px = {f['y_px']!r}",
+                  f"x_m = {f['x_m']!r}", f"y_m = {f['y_m']!r}"]
+    out = photo.with_name(photo.stem + ".plane.toml")
+    out.write_text("\n".join(lines) + "\n")
+    return out
 
 
 # ----------------------------------------------------------------------------------------------
