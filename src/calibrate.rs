@@ -409,8 +409,7 @@ pub struct PlaneFile {
 impl PlaneFile {
     /// Parse a plane file; `path` names it in errors.
     pub fn from_toml(text: &str, path: &Path) -> Result<Self> {
-        let plane: PlaneFile = toml::from_str(text)
-            .map_err(|e| Error::config(path, format!("invalid plane file: {}", e.message())))?;
+        let plane: PlaneFile = toml::from_str(text).map_err(|e| Error::toml(path, text, &e))?;
         if plane.points.len() < 4 {
             return Err(Error::config(
                 path,

@@ -170,6 +170,25 @@ impl Error {
         }
     }
 
+    /// A TOML file that does not parse or does not fit its layout: the file, then the line, the
+    /// column and the key (`section.key`, from the text at the error's position) before the
+    /// parser's message.
+    pub fn toml(path: &Path, text: &str, e: &toml::de::Error) -> Self {
+        let mut place = String::new();
+        if let Some(span) = e.span() {
+            let start = span.start.min(text.len());
+            let before = &text[..start];
+            let line = before.matches('\n').count() + 1;
+            let column = before.len() - before.rfind('\n').map_or(0, |i| i + 1) + 1;
+            place = format!("line {line}, column {column}");
+            if let Some(key) = toml_key_at(text, line) {
+                place.push_str(&format!(", key {key}"));
+            }
+            place.push_str(": ");
+        }
+        Error::config(path, format!("{place}{}", e.message().trim()))
+    }
+
     /// A refused setting.
     pub fn setting(name: &str, message: impl Into<String>) -> Self {
         Error::Setting {
@@ -217,3 +236,24 @@ pub(crate) fn positive(v: f64, name: &str) -> Result<()> {
 
 /// Result type of the library.
 pub type Result<T> = std::result::Result<T, Error>;
+
+/// The key written on `line` (1-based) of a TOML text, with the table it sits in
+/// (`ball.markings`); None when that line holds no `key =`.
+fn toml_key_at(text: &str, line: usize) -> Option<String> {
+    let lines: Vec<&str> = text.lines().collect();
+    let here = lines.get(line.checked_sub(1)?)?;
+    let key = here.split_once('=')?.0.trim();
+    if key.is_empty() || key.starts_with('[') || key.starts_with('#') {
+        return None;
+    }
+    let table = lines[..line - 1]
+        .iter()
+        .rev()
+        .map(|l| l.trim())
+        .find(|l| l.starts_with('['))
+        .map(|l| l.trim_matches(|c| c == '[' || c == ']').trim().to_string());
+    Some(match table {
+        Some(t) if !t.is_empty() => format!("{t}.{key}"),
+        _ => key.to_string(),
+    })
+}

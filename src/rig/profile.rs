@@ -75,12 +75,7 @@ pub struct Profile {
 impl Profile {
     /// Parse profile text; `path` names the file in errors.
     pub fn parse(text: &str, path: &Path) -> Result<Profile> {
-        toml::from_str(text).map_err(|e| {
-            Error::config(
-                path,
-                e.to_string().trim().replace('\n', " ").replace("  ", " "),
-            )
-        })
+        toml::from_str(text).map_err(|e| Error::toml(path, text, &e))
     }
 
     /// Read and parse a profile file. Relative `plate` and `plane` paths are taken from the
