@@ -37,6 +37,8 @@ def _toml_value(v):
         return repr(v)
     if isinstance(v, str):
         return json.dumps(v)
+    if isinstance(v, list) and all(isinstance(x, (int, float)) for x in v):
+        return "[" + ", ".join(_toml_value(float(x)) for x in v) + "]"
     raise TypeError(v)
 
 

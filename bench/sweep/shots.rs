@@ -22,7 +22,7 @@ use beadline::core::units::STANDARD_GRAVITY_MPS2;
 use beadline::pipeline::{MeasureSettings, ScaleSource};
 use beadline::synth::camera::Projection;
 use beadline::synth::scene::{
-    Ball, Camera, Distractor, Flight, Floor, Incline, PhotoLook, Scene, Start, Strobe,
+    Ball, Camera, Distractor, Flight, Floor, Incline, Markings, PhotoLook, Scene, Start, Strobe,
 };
 use beadline::synth::sim::Motion;
 use rand::{RngExt, SeedableRng};
@@ -167,6 +167,7 @@ fn draw_motion(rng: &mut ChaCha8Rng) -> Motion0 {
                 y_m: h,
                 vx_mps: vx,
                 vy_mps: vy,
+                spin_hz: 0.0,
             };
             let ff = uni(rng, 0.0, 0.3) * fall_s;
             (Some(start), None, ff, (2.0 * g * h + vy * vy).sqrt())
@@ -194,6 +195,7 @@ fn draw_motion(rng: &mut ChaCha8Rng) -> Motion0 {
                 bottom_height_m: hb,
                 bottom_x_m: 0.0,
                 rolling_resistance: c,
+                slip: 0.0,
             };
             let vy = v * th.sin();
             (None, Some(inc), frac * t1, (vy * vy + 2.0 * g * hb).sqrt())
@@ -249,6 +251,10 @@ fn scene_of(m: &Motion0, d_m: f64, seed: u64) -> Scene {
             diameter_m: d_m,
             build: m.build,
             inner_diameter_m: None,
+            markings: Markings::None,
+            marking_albedo: 1.0,
+            marking_width: 0.1,
+            orientation_deg: 0.0,
         },
         incline: m.incline.clone(),
         start,
@@ -257,6 +263,8 @@ fn scene_of(m: &Motion0, d_m: f64, seed: u64) -> Scene {
             drag_per_m: m.drag_per_m,
         },
         floor: m.floor.clone(),
+        depth: None,
+        backdrop_shapes: Vec::new(),
         strobe: Strobe {
             rate_hz: m.rate_hz,
             first_flash_s: m.first_flash_s,

@@ -28,7 +28,7 @@ pub mod sim;
 use crate::core::light::{Polarity, Tone};
 use crate::error::{Error, Result};
 use camera::Projection;
-use paint::{Clip, Finish, Stamp};
+use paint::{Clip, Finish, Lighting, Pattern, Stamp};
 use scene::Scene;
 use serde::{Deserialize, Serialize};
 use sim::{BounceEvent, LaunchEvent, Motion, Phase};
@@ -60,6 +60,14 @@ pub struct FlashTruth {
     pub arc: usize,
     /// The whole image lies inside the frame.
     pub in_frame: bool,
+    /// The ball's turn about the axis toward the camera since release, degrees,
+    /// counter-clockwise positive as seen in the photo (unwrapped; the scene's
+    /// `ball.orientation_deg` at release).
+    #[serde(default)]
+    pub spin_angle_deg: f64,
+    /// How far the ball has left the plane of motion toward the camera, metres.
+    #[serde(default)]
+    pub depth_m: f64,
 }
 
 /// A distractor as painted.
@@ -106,6 +114,9 @@ pub struct Truth {
     pub distractors: Vec<DistractorTruth>,
     /// Mirror images of the ball in a glossy floor (centres, pixels).
     pub reflections: Vec<DistractorTruth>,
+    /// What is printed on the ball.
+    #[serde(default)]
+    pub markings: scene::Markings,
 }
 
 /// A rendered photo: channel values 0..1 (sRGB or linear as the scene says) and its truth.
@@ -161,6 +172,9 @@ struct Shot<'a> {
     flash: f64,
     total_weight: f64,
     with_ball: bool,
+    lighting: Lighting,
+    pattern: Option<Pattern>,
+    camera_distance_m: f64,
 }
 
 /// What the flashes leave: the stamps to paint and the truth of each image.
@@ -198,7 +212,17 @@ impl<'a> Shot<'a> {
             Polarity::Dark => backdrop_level / n_flash,
         });
         let total_weight = flash * n_flash + p.ambient_exposure;
+        let b = &scene.ball;
         Shot {
+            lighting: Lighting {
+                dir: p.light_dir,
+                fill: p.fill,
+                gloss: p.gloss,
+                gloss_power: p.gloss_power,
+                gloss_dir: p.gloss_dir,
+            },
+            pattern: Pattern::new(b.markings, b.marking_albedo, b.marking_width, scene.seed),
+            camera_distance_m: scene.camera_distance_m(),
             scene,
             proj,
             motion,
@@ -215,12 +239,43 @@ impl<'a> Shot<'a> {
         }
     }
 
+    /// How far the ball has left the plane of motion toward the camera at time `t`, metres.
+    fn depth_m(&self, t: f64) -> f64 {
+        self.scene
+            .depth
+            .as_ref()
+            .map_or(0.0, |d| d.toward_camera_mps * t.max(0.0))
+    }
+
+    /// A pixel of the plane of motion moved by perspective for a ball `depth_m` toward the
+    /// camera: scaled by D / (D - z) about the image centre (exact for a camera square to the
+    /// plane; about the image centre also under the tilt model). Comes out with that scale.
+    fn toward_camera(&self, c: [f64; 2], depth_m: f64) -> ([f64; 2], f64) {
+        if depth_m == 0.0 {
+            return (c, 1.0);
+        }
+        let d = self.camera_distance_m;
+        let k = d / (d - depth_m);
+        let (cx, cy) = ((self.w as f64 - 1.0) / 2.0, (self.h as f64 - 1.0) / 2.0);
+        ([cx + (c[0] - cx) * k, cy + (c[1] - cy) * k], k)
+    }
+
     /// The ball's state, image centre and image radius at time `t`.
     fn image_of(&self, t: f64) -> (sim::MotionPoint, [f64; 2], f64) {
         let m = self.motion.at(t);
-        let c = self.proj.to_pixel(m.x_m, m.y_m);
-        let r = self.r_m * self.proj.scale_px_per_m(m.x_m, m.y_m);
+        let (c, k) = self.toward_camera(self.proj.to_pixel(m.x_m, m.y_m), self.depth_m(t));
+        let r = self.r_m * self.proj.scale_px_per_m(m.x_m, m.y_m) * k;
         (m, c, r)
+    }
+
+    /// The markings of an image of the ball turned by `turn_rad` (seen in the floor's mirror
+    /// when `mirror`).
+    fn marks(&self, turn_rad: f64, mirror: bool) -> Option<paint::Marks> {
+        self.pattern.map(|pattern| paint::Marks {
+            pattern,
+            turn_rad,
+            mirror,
+        })
     }
 
     /// The floor plate's clip of a mirror image near `x_m`.
@@ -280,12 +335,15 @@ impl<'a> Shot<'a> {
                     weight: flash / subs as f64,
                     albedo: ball_albedo,
                     rgb: p.ball_rgb,
-                    light: p.shading.then_some(p.light_dir),
+                    light: p.shading.then_some(self.lighting),
+                    marks: self.marks(ms.spin_rad, false),
                     occludes: true,
                     clip: None,
                 });
                 if scene.floor.glossy {
-                    let mc = proj.to_pixel(ms.x_m, -ms.y_m);
+                    let mc = self
+                        .toward_camera(proj.to_pixel(ms.x_m, -ms.y_m), self.depth_m(ts))
+                        .0;
                     stamps.push(Stamp {
                         x_px: mc[0],
                         y_px: mc[1],
@@ -294,11 +352,8 @@ impl<'a> Shot<'a> {
                         albedo: ball_albedo,
                         rgb: p.ball_rgb,
                         // The mirror world's light comes from the mirrored side.
-                        light: p.shading.then_some([
-                            p.light_dir[0],
-                            -p.light_dir[1],
-                            p.light_dir[2],
-                        ]),
+                        light: p.shading.then_some(self.lighting.mirrored()),
+                        marks: self.marks(ms.spin_rad, true),
                         occludes: false,
                         clip: Some(floor_clip(ms.x_m)),
                     });
@@ -309,7 +364,9 @@ impl<'a> Shot<'a> {
                 && c[0] + r <= w as f64 - 0.5
                 && c[1] + r <= h as f64 - 0.5;
             if scene.floor.glossy {
-                let mc = proj.to_pixel(m.x_m, -m.y_m);
+                let mc = self
+                    .toward_camera(proj.to_pixel(m.x_m, -m.y_m), self.depth_m(t))
+                    .0;
                 reflections.push(DistractorTruth {
                     x_px: mc[0],
                     y_px: mc[1],
@@ -327,6 +384,8 @@ impl<'a> Shot<'a> {
                 phase: m.phase,
                 arc: m.arc,
                 in_frame,
+                spin_angle_deg: m.spin_rad.to_degrees(),
+                depth_m: self.depth_m(t),
             });
         }
         Flashes {
@@ -357,14 +416,14 @@ impl<'a> Shot<'a> {
                 let dt = (STREAK_STEP_PX / speed_px.max(1e-9))
                     .min(t_end - t)
                     .min(0.01);
-                samples.push((c, r, dt));
+                samples.push((c, r, dt, m.spin_rad));
                 t += dt;
                 if samples.len() > 2_000_000 {
                     break;
                 }
             }
             let span = t_end - t0;
-            for (c, r, dt) in samples {
+            for (c, r, dt, turn) in samples {
                 stamps.push(Stamp {
                     x_px: c[0],
                     y_px: c[1],
@@ -373,6 +432,7 @@ impl<'a> Shot<'a> {
                     albedo: ball_albedo,
                     rgb: p.ball_rgb,
                     light: None,
+                    marks: self.marks(turn, false),
                     occludes: true,
                     clip: None,
                 });
@@ -393,7 +453,8 @@ impl<'a> Shot<'a> {
                 weight: total_weight,
                 albedo: d.albedo,
                 rgb: [1.0, 1.0, 1.0],
-                light: p.shading.then_some(p.light_dir),
+                light: p.shading.then_some(self.lighting),
+                marks: None,
                 occludes: true,
                 clip: None,
             });
@@ -426,6 +487,16 @@ impl<'a> Shot<'a> {
                 base * p.backdrop_rgb[1],
                 base * p.backdrop_rgb[2],
             ];
+            for sh in &scene.backdrop_shapes {
+                let cover = |d: f64, half: f64| (half - d.abs() + 0.5).clamp(0.0, 1.0);
+                let c = cover(xf - sh.x_px, sh.width_px / 2.0)
+                    * cover(yf - sh.y_px, sh.height_px / 2.0);
+                if c > 0.0 {
+                    for o in out.iter_mut() {
+                        *o = *o * (1.0 - c) + sh.level * c;
+                    }
+                }
+            }
             if p.draw_rig {
                 let wp = proj.to_world(xf, yf);
                 let scale = cam.px_per_m;
@@ -487,6 +558,7 @@ fn render_with(scene: &Scene, with_ball: bool) -> Rendered {
         flashes,
         distractors,
         reflections,
+        markings: scene.ball.markings,
     };
     Rendered {
         width: cam.width_px,

@@ -1,5 +1,7 @@
 //! Painting the photograph: a long exposure in linear light. Each flash lights the ball (painted
-//! with the exact area of the disc inside every pixel, shaded as a lit sphere with a highlight) and
+//! with the exact area of the disc inside every pixel, shaded as a lit sphere: Lambertian with a
+//! diffuse fill and a Blinn-Phong highlight, J. F. Blinn, "Models of light reflection for
+//! computer synthesized pictures", SIGGRAPH 1977; its printed markings turned with the ball) and
 //! the backdrop where the ball does not hide it; ambient light over the whole exposure adds the
 //! backdrop and a faint streak along the path. Then vignetting, photon and read noise, the tone
 //! curve and quantisation.
@@ -9,6 +11,7 @@
 //! computed in closed form (integral of sqrt(r^2 - x^2), inclusion-exclusion over the pixel's
 //! corners), so the painted centroid and area are exact up to rounding.
 
+use super::scene::Markings;
 use crate::core::geometry::{disc_coverage, sphere_normal};
 use rand::{RngExt, SeedableRng};
 use rand_chacha::ChaCha8Rng;
@@ -41,30 +44,150 @@ pub struct Stamp {
     pub albedo: f64,
     /// Colour multipliers.
     pub rgb: [f64; 3],
-    /// Direction towards the flash, camera frame (x right, y down, z towards the camera), for a
-    /// lit sphere; None paints a flat disc.
-    pub light: Option<[f64; 3]>,
+    /// How a lit sphere is shaded; None paints a flat disc.
+    pub light: Option<Lighting>,
+    /// What is printed on the ball and how far it has turned; None for a plain ball.
+    pub marks: Option<Marks>,
     /// Hides the backdrop (false for a mirror image, which only adds light).
     pub occludes: bool,
     /// Optional clip.
     pub clip: Option<Clip>,
 }
 
-/// Fraction of the light that is diffuse fill.
-const FILL: f64 = 0.3;
+/// How a lit sphere is shaded. Directions are in the camera frame (x right, y down, z towards
+/// the camera).
+#[derive(Debug, Clone, Copy)]
+pub struct Lighting {
+    /// Direction towards the flash.
+    pub dir: [f64; 3],
+    /// Fraction of the light that is diffuse fill.
+    pub fill: f64,
+    /// Strength of the highlight.
+    pub gloss: f64,
+    /// Blinn-Phong exponent of the highlight.
+    pub gloss_power: f64,
+    /// Direction towards the source of the highlight (None: the flash).
+    pub gloss_dir: Option<[f64; 3]>,
+}
+
+impl Lighting {
+    /// The same light seen in a mirror floor (the mirrored side lights the mirror world).
+    pub fn mirrored(self) -> Lighting {
+        let flip = |d: [f64; 3]| [d[0], -d[1], d[2]];
+        Lighting {
+            dir: flip(self.dir),
+            gloss_dir: self.gloss_dir.map(flip),
+            ..self
+        }
+    }
+}
+
+fn unit(v: [f64; 3]) -> [f64; 3] {
+    let n = (v[0] * v[0] + v[1] * v[1] + v[2] * v[2]).sqrt();
+    [v[0] / n, v[1] / n, v[2] / n]
+}
 
 /// Shading of a lit sphere with surface normal `n` (a unit vector to the camera is +z).
-fn shade(n: [f64; 3], light: [f64; 3]) -> f64 {
-    let ln = (light[0] * light[0] + light[1] * light[1] + light[2] * light[2]).sqrt();
-    let l = [light[0] / ln, light[1] / ln, light[2] / ln];
+fn shade(n: [f64; 3], light: &Lighting) -> f64 {
+    let l = unit(light.dir);
     let [nx, ny, nz] = n;
     let lambert = (nx * l[0] + ny * l[1] + nz * l[2]).max(0.0);
-    let hv = [l[0], l[1], l[2] + 1.0];
+    let g = light.gloss_dir.map_or(l, unit);
+    let hv = [g[0], g[1], g[2] + 1.0];
     let hn = (hv[0] * hv[0] + hv[1] * hv[1] + hv[2] * hv[2]).sqrt();
-    let spec = ((nx * hv[0] + ny * hv[1] + nz * hv[2]) / hn)
-        .max(0.0)
-        .powi(40);
-    FILL + (1.0 - FILL) * lambert + 0.35 * spec
+    let cos_h = ((nx * hv[0] + ny * hv[1] + nz * hv[2]) / hn).max(0.0);
+    let p = light.gloss_power;
+    let spec = if p == p.round() && p <= 1e4 {
+        cos_h.powi(p as i32)
+    } else {
+        cos_h.powf(p)
+    };
+    light.fill + (1.0 - light.fill) * lambert + light.gloss * spec
+}
+
+/// What is printed on the ball: great-circle lines and a round patch, in the ball's own frame
+/// (the camera frame when the ball has not turned).
+#[derive(Debug, Clone, Copy)]
+pub struct Pattern {
+    /// Unit normals of the great circles the lines run along.
+    lines: [[f64; 3]; 5],
+    /// How many of `lines` are used.
+    n_lines: usize,
+    /// Centre of the round patch (unit vector) and its angular radius, radians.
+    dot: Option<([f64; 3], f64)>,
+    /// Half-width of a line on the unit sphere.
+    half_width: f64,
+    /// Brightness of the markings relative to the surface.
+    albedo: f64,
+}
+
+impl Pattern {
+    /// The pattern of a kind of markings; `width` is a line's width as a fraction of the radius
+    /// (a patch's radius is three times it); `seed` draws the panel lines. None for a plain ball.
+    pub fn new(kind: Markings, albedo: f64, width: f64, seed: u64) -> Option<Pattern> {
+        let mut lines = [[0.0; 3]; 5];
+        let (n_lines, dot) = match kind {
+            Markings::None => return None,
+            Markings::Seams => {
+                lines[0] = unit([1.0, 0.15, 0.35]);
+                lines[1] = unit([0.2, 1.0, -0.3]);
+                lines[2] = unit([0.7, -0.6, 0.45]);
+                (3, None)
+            }
+            Markings::Band => {
+                lines[0] = [0.0, 1.0, 0.0];
+                (1, None)
+            }
+            Markings::Dot => (0, Some((unit([0.45, -0.25, 0.86]), 3.0 * width))),
+            Markings::Panels => {
+                let mut rng = ChaCha8Rng::seed_from_u64(seed ^ 0x7A11_E15E);
+                for l in lines.iter_mut() {
+                    let a: f64 = rng.random::<f64>() * std::f64::consts::TAU;
+                    let z: f64 = rng.random::<f64>() * 1.2 - 0.6;
+                    *l = unit([a.cos(), a.sin(), z]);
+                }
+                (5, None)
+            }
+        };
+        Some(Pattern {
+            lines,
+            n_lines,
+            dot,
+            half_width: width / 2.0,
+            albedo,
+        })
+    }
+
+    /// Brightness factor (albedo..1) at camera-frame normal `n` of a ball of `r_px` with the
+    /// turn and mirroring of `marks`, with edges about one pixel soft.
+    fn factor(&self, n: [f64; 3], r_px: f64, marks: Marks) -> f64 {
+        let n = if marks.mirror { [n[0], -n[1], n[2]] } else { n };
+        // Undo the turn: as seen in the photo (y down), counter-clockwise by t maps (x, y) to
+        // (x cos t + y sin t, -x sin t + y cos t); its inverse gives the ball's own frame.
+        let (s, c) = marks.turn_rad.sin_cos();
+        let b = [c * n[0] - s * n[1], s * n[0] + c * n[1], n[2]];
+        let mut ink: f64 = 0.0;
+        for a in &self.lines[..self.n_lines] {
+            let d = (b[0] * a[0] + b[1] * a[1] + b[2] * a[2]).abs();
+            ink = ink.max(((self.half_width - d) * r_px + 0.5).clamp(0.0, 1.0));
+        }
+        if let Some((d, rho)) = self.dot {
+            let cos_a = (b[0] * d[0] + b[1] * d[1] + b[2] * d[2]).clamp(-1.0, 1.0);
+            ink = ink.max(((rho - cos_a.acos()) * r_px + 0.5).clamp(0.0, 1.0));
+        }
+        1.0 - (1.0 - self.albedo) * ink
+    }
+}
+
+/// The markings of one image: the pattern and the ball's turn at that moment.
+#[derive(Debug, Clone, Copy)]
+pub struct Marks {
+    /// What is printed.
+    pub pattern: Pattern,
+    /// The ball's turn, radians, counter-clockwise positive as seen in the photo.
+    pub turn_rad: f64,
+    /// Seen in a mirror floor: the ball's image flipped top to bottom.
+    pub mirror: bool,
 }
 
 /// Accumulated light of one image row: ball light (RGB) and backdrop occlusion.
@@ -142,10 +265,12 @@ pub fn paint(width: usize, height: usize, stamps: &[Stamp]) -> Exposure {
                     if coverage <= 0.0 {
                         continue;
                     }
-                    let sh = s
-                        .light
-                        .map_or(1.0, |l| shade(sphere_normal(dx, dy, s.r_px, disc), l));
-                    let v = s.weight * coverage * s.albedo * sh;
+                    let normal = || sphere_normal(dx, dy, s.r_px, disc);
+                    let sh = s.light.as_ref().map_or(1.0, |l| shade(normal(), l));
+                    let ink = s
+                        .marks
+                        .map_or(1.0, |m| m.pattern.factor(normal(), s.r_px, m));
+                    let v = s.weight * coverage * s.albedo * sh * ink;
                     for (l, tint) in lp.iter_mut().zip(s.rgb) {
                         *l += (v * tint) as f32;
                     }

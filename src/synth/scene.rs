@@ -43,6 +43,12 @@ pub struct Scene {
     /// Round objects that are not the ball.
     #[serde(default)]
     pub distractors: Vec<Distractor>,
+    /// Motion toward the camera, out of the plane the camera is set up for.
+    #[serde(default)]
+    pub depth: Option<Depth>,
+    /// Flat bright or dark objects on the backdrop, behind the ball's path.
+    #[serde(default)]
+    pub backdrop_shapes: Vec<BackdropShape>,
     /// The flash unit's limits (used by `beadline plan`; the renderer ignores it).
     #[serde(default)]
     pub flash_unit: Option<FlashUnit>,
@@ -116,6 +122,44 @@ pub struct Ball {
     /// Inner diameter of a thick shell, metres.
     #[serde(default)]
     pub inner_diameter_m: Option<f64>,
+    /// What is printed on the ball (default none: a plain ball).
+    #[serde(default)]
+    pub markings: Markings,
+    /// Brightness of the markings relative to the ball's surface, 0..1 (0: black lines).
+    #[serde(default = "default_marking_albedo")]
+    pub marking_albedo: f64,
+    /// Width of a marking line (or radius of a dot), as a fraction of the ball's radius.
+    #[serde(default = "default_marking_width")]
+    pub marking_width: f64,
+    /// The ball's turn about the axis toward the camera at release, degrees, counter-clockwise
+    /// positive as seen in the photo.
+    #[serde(default)]
+    pub orientation_deg: f64,
+}
+
+/// What is printed on the ball: lines and patches on its surface that turn with it.
+#[derive(Debug, Clone, Copy, Default, PartialEq, Eq, Serialize, Deserialize)]
+#[serde(rename_all = "lowercase")]
+pub enum Markings {
+    /// A plain ball.
+    #[default]
+    None,
+    /// Three seam lines on great circles, crossing on the ball's face (a ball with panels
+    /// sewn together).
+    Seams,
+    /// One band around the ball on a great circle (it looks the same turned half a turn).
+    Band,
+    /// One round printed patch off the centre of the ball's face.
+    Dot,
+    /// Five panel lines on great circles drawn from the scene's seed.
+    Panels,
+}
+
+fn default_marking_albedo() -> f64 {
+    0.25
+}
+fn default_marking_width() -> f64 {
+    0.1
 }
 
 impl Ball {
@@ -149,6 +193,9 @@ pub struct Incline {
     /// Rolling-resistance coefficient (dimensionless, resisting force / normal force).
     #[serde(default)]
     pub rolling_resistance: f64,
+    /// Slip of the spin on the slope: omega r = (1 - slip) v (0: rolling without slipping).
+    #[serde(default)]
+    pub slip: f64,
 }
 
 /// A free start: position of the ball's centre and its velocity at t = 0.
@@ -165,6 +212,10 @@ pub struct Start {
     /// Initial vertical velocity (up positive), m/s.
     #[serde(default)]
     pub vy_mps: f64,
+    /// Initial spin about the axis toward the camera, turns per second, counter-clockwise
+    /// positive as seen in the photo.
+    #[serde(default)]
+    pub spin_hz: f64,
 }
 
 /// Free flight.
@@ -364,6 +415,20 @@ pub struct PhotoLook {
     /// the default is a flash up and to the left of the lens, about 27 degrees off its axis.
     #[serde(default = "default_light")]
     pub light_dir: [f64; 3],
+    /// Fraction of the flash's light on the ball that is diffuse fill, 0..1 (low with a flash
+    /// beside the rig: the ball shows a crescent).
+    #[serde(default = "default_fill")]
+    pub fill: f64,
+    /// Strength of the glossy highlight (Blinn-Phong specular term), 0 for a matte ball.
+    #[serde(default = "default_gloss")]
+    pub gloss: f64,
+    /// Blinn-Phong exponent of the highlight (higher: smaller, sharper).
+    #[serde(default = "default_gloss_power")]
+    pub gloss_power: f64,
+    /// Direction toward the light source that makes the highlight, camera frame (default: the
+    /// flash's `light_dir`).
+    #[serde(default)]
+    pub gloss_dir: Option<[f64; 3]>,
     /// Sensor noise on (photon + read noise).
     #[serde(default = "yes")]
     pub noise: bool,
@@ -404,6 +469,15 @@ fn yes() -> bool {
 }
 fn default_light() -> [f64; 3] {
     [-0.3, -0.4, 1.0]
+}
+fn default_fill() -> f64 {
+    0.3
+}
+fn default_gloss() -> f64 {
+    0.35
+}
+fn default_gloss_power() -> f64 {
+    40.0
 }
 fn default_ambient() -> f64 {
     0.03
@@ -446,6 +520,37 @@ impl Default for PhotoLook {
     fn default() -> Self {
         toml::from_str("").expect("every photo field has a default")
     }
+}
+
+/// Motion toward the camera: the ball leaves the plane of motion at a constant speed from its
+/// release, so its image grows (moving toward the camera) or shrinks by perspective about the
+/// image centre: scale D / (D - z) for a camera D metres from the plane.
+#[derive(Debug, Clone, Serialize, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct Depth {
+    /// Speed toward the camera, m/s (negative: away from it).
+    pub toward_camera_mps: f64,
+    /// Distance from the camera to the plane of motion, metres (default: the focal length in
+    /// pixels over the scale in pixels per metre).
+    #[serde(default)]
+    pub camera_distance_m: Option<f64>,
+}
+
+/// A flat rectangle on the backdrop (a panel, a lamp, a bright sign), with soft edges of one
+/// pixel.
+#[derive(Debug, Clone, Serialize, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct BackdropShape {
+    /// Centre x, pixels.
+    pub x_px: f64,
+    /// Centre y, pixels.
+    pub y_px: f64,
+    /// Width, pixels.
+    pub width_px: f64,
+    /// Height, pixels.
+    pub height_px: f64,
+    /// Linear brightness it reaches over the whole exposure, 0..1 (replaces the backdrop's).
+    pub level: f64,
 }
 
 /// A round object that is not the ball, placed in pixels.
@@ -505,10 +610,7 @@ impl Check<'_> {
 impl Scene {
     /// Parse and validate a scene from TOML text; `path` names the source in errors.
     pub fn from_toml(text: &str, path: &Path) -> Result<Scene> {
-        let scene: Scene = toml::from_str(text).map_err(|e| {
-            let msg = e.message().to_string();
-            Error::config(path, format!("invalid scene: {msg}"))
-        })?;
+        let scene: Scene = toml::from_str(text).map_err(|e| Error::toml(path, text, &e))?;
         scene.validate(path)?;
         Ok(scene)
     }
@@ -525,7 +627,66 @@ impl Scene {
         self.check_motion(&ck)?;
         self.check_strobe_and_camera(&ck)?;
         self.check_photo(&ck)?;
+        self.check_real_ball(&ck)?;
         self.check_planning(&ck)
+    }
+
+    /// The markings, the spin, the motion in depth and the backdrop's shapes.
+    fn check_real_ball(&self, ck: &Check) -> Result<()> {
+        let b = &self.ball;
+        ck.unit("ball.marking_albedo", b.marking_albedo)?;
+        if !(b.marking_width.is_finite() && b.marking_width > 0.0 && b.marking_width <= 1.0) {
+            return ck.bad(
+                "ball.marking_width",
+                "must be above 0 and at most 1 (of the radius)",
+            );
+        }
+        ck.finite("ball.orientation_deg", b.orientation_deg)?;
+        if let Some(inc) = &self.incline
+            && !(inc.slip.is_finite() && inc.slip.abs() <= 1.0)
+        {
+            return ck.bad("incline.slip", "must be between -1 and 1");
+        }
+        if let Some(s) = &self.start
+            && !(s.spin_hz.is_finite() && s.spin_hz.abs() <= 1000.0)
+        {
+            return ck.bad("start.spin_hz", "must be within +-1000 turns per second");
+        }
+        if let Some(d) = &self.depth {
+            if !(d.toward_camera_mps.is_finite() && d.toward_camera_mps.abs() <= 100.0) {
+                return ck.bad("depth.toward_camera_mps", "must be within +-100 m/s");
+            }
+            let dist = self.camera_distance_m();
+            if let Some(v) = d.camera_distance_m {
+                ck.positive("depth.camera_distance_m", v)?;
+            }
+            let t_end = self.strobe.first_flash_s + self.strobe.exposure_s;
+            if d.toward_camera_mps * t_end > 0.75 * dist {
+                return ck.bad(
+                    "depth.toward_camera_mps",
+                    "the ball would come within a quarter of the camera's distance",
+                );
+            }
+        }
+        for sh in &self.backdrop_shapes {
+            for (key, v) in [("x_px", sh.x_px), ("y_px", sh.y_px)] {
+                ck.finite(&format!("backdrop_shapes.{key}"), v)?;
+            }
+            ck.positive("backdrop_shapes.width_px", sh.width_px)?;
+            ck.positive("backdrop_shapes.height_px", sh.height_px)?;
+            ck.unit("backdrop_shapes.level", sh.level)?;
+        }
+        Ok(())
+    }
+
+    /// Distance from the camera to the plane of motion, metres: the depth section's, else the
+    /// focal length in pixels (default the image width) over the scale.
+    pub fn camera_distance_m(&self) -> f64 {
+        let c = &self.camera;
+        self.depth
+            .as_ref()
+            .and_then(|d| d.camera_distance_m)
+            .unwrap_or(c.focal_px.unwrap_or(c.width_px as f64) / c.px_per_m)
     }
 
     /// The ball, the incline or the start, the flight and the floor.
@@ -682,6 +843,18 @@ impl Scene {
                 "photo.light_dir",
                 "must be finite with z > 0 (the flash is on the camera's side)",
             );
+        }
+        ck.unit("photo.fill", p.fill)?;
+        if !(p.gloss.is_finite() && (0.0..=10.0).contains(&p.gloss)) {
+            return ck.bad("photo.gloss", "must be between 0 and 10");
+        }
+        if !(p.gloss_power.is_finite() && (1.0..=10000.0).contains(&p.gloss_power)) {
+            return ck.bad("photo.gloss_power", "must be between 1 and 10000");
+        }
+        if let Some(g) = p.gloss_dir
+            && !(g.iter().all(|v| v.is_finite()) && g[2] > 0.0)
+        {
+            return ck.bad("photo.gloss_dir", "must be finite with z > 0");
         }
         if p.bit_depth != 8 && p.bit_depth != 16 {
             return ck.bad("photo.bit_depth", "must be 8 or 16");

@@ -7,6 +7,14 @@
 //! Goes in: a [`Scene`]. Comes out: a [`Motion`] that gives the ball's centre at any time, with the
 //! bounce and launch events. Rolling without slipping on an incline of angle theta with a rolling
 //! resistance c: a = g (sin theta - c cos theta) / (1 + k) (standard rigid-body mechanics).
+//!
+//! Spin (about the axis toward the camera, counter-clockwise positive as seen in the photo): on
+//! the incline omega r = (1 - slip) v (rolling without slipping at slip 0); constant in flight
+//! (no aerodynamic torque); at a bounce the angular momentum about the contact point is conserved
+//! (the normal and friction impulses both act through it), so with I = k m r^2 the spin after is
+//! omega_out = omega_in + (vx_out - vx_in) / (k r) for the horizontal velocity change the floor's
+//! tangential ratio sets (rigid-body impact mechanics: R. Garwin, "Kinematics of an ultraelastic
+//! rough ball", Am. J. Phys. 37, 88 (1969), from memory); rolling along the floor, omega r = -vx.
 
 use super::scene::Scene;
 use crate::physics::dynamics::{QuadraticDrag, SpeedNorm};
@@ -39,6 +47,9 @@ pub struct MotionPoint {
     pub phase: Phase,
     /// Flight arc number: 0 before the first bounce, k after the k-th.
     pub arc: usize,
+    /// Turn of the ball about the axis toward the camera since t = 0, radians, counter-clockwise
+    /// positive as seen in the photo (unwrapped).
+    pub spin_rad: f64,
 }
 
 /// One bounce on the floor.
@@ -54,6 +65,12 @@ pub struct BounceEvent {
     pub rebound_velocity_mps: [f64; 2],
     /// Normal restitution used, -vy_out / vy_in.
     pub restitution: f64,
+    /// Spin just before contact, turns per second, counter-clockwise positive as seen.
+    #[serde(default)]
+    pub spin_before_hz: f64,
+    /// Spin just after contact, turns per second.
+    #[serde(default)]
+    pub spin_after_hz: f64,
 }
 
 /// The ball leaving the incline (or the free start).
@@ -75,12 +92,15 @@ pub struct LaunchEvent {
 
 #[derive(Debug, Clone)]
 enum Segment {
-    /// Rolling down the incline from rest at t = 0: centre = c0 + dir * a t^2 / 2.
+    /// Rolling down the incline from rest at t = 0: centre = c0 + dir * a t^2 / 2; the ball
+    /// turns by -(1 - slip) s / r for a distance s rolled (clockwise, descending to the right).
     Incline {
         t1: f64,
         c0: [f64; 2],
         dir: [f64; 2],
         accel: f64,
+        turn_per_m: f64,
+        spin0_rad: f64,
     },
     /// Free flight from (t0, p0, v0); `samples` holds (t, x, y, vx, vy) when drag is on.
     Flight {
@@ -90,6 +110,8 @@ enum Segment {
         v0: [f64; 2],
         arc: usize,
         samples: Vec<[f64; 5]>,
+        spin0_rad: f64,
+        omega_radps: f64,
     },
     /// Rolling along the floor at constant speed.
     Floor {
@@ -97,6 +119,7 @@ enum Segment {
         p0: [f64; 2],
         vx: f64,
         arc: usize,
+        spin0_rad: f64,
     },
 }
 
@@ -105,6 +128,7 @@ enum Segment {
 pub struct Motion {
     segments: Vec<Segment>,
     gravity_mps2: f64,
+    radius_m: f64,
     /// Every bounce in time order.
     pub bounces: Vec<BounceEvent>,
     /// The launch (end of the incline, or the free start at t = 0).
@@ -184,16 +208,21 @@ fn fly_with_drag(
     (hi, [st[0], r], [st[2], st[3]], samples)
 }
 
+/// The ball's turn at the launch: angle since t = 0 (radians) and spin (radians per second),
+/// counter-clockwise positive as seen.
+type Turn = (f64, f64);
+
 /// The launch: the end of the incline for a ball rolling from rest without slipping (its
-/// incline segment pushed onto `segments`), or the free start. Comes out: the launch and the
-/// rolling acceleration on the incline (None without one).
+/// incline segment pushed onto `segments`), or the free start. Comes out: the launch, the
+/// rolling acceleration on the incline (None without one) and the ball's turn at the launch.
 fn launch_event(
     scene: &Scene,
     g: f64,
     r: f64,
     k: f64,
     segments: &mut Vec<Segment>,
-) -> (LaunchEvent, Option<f64>) {
+) -> (LaunchEvent, Option<f64>, Turn) {
+    let spin0 = scene.ball.orientation_deg.to_radians();
     match (&scene.incline, &scene.start) {
         (Some(inc), _) => {
             let th = inc.angle_deg.to_radians();
@@ -210,7 +239,15 @@ fn launch_event(
             ];
             let t1 = (2.0 * inc.length_m / accel).sqrt();
             let speed = accel * t1;
-            segments.push(Segment::Incline { t1, c0, dir, accel });
+            let turn_per_m = -(1.0 - inc.slip) / r;
+            segments.push(Segment::Incline {
+                t1,
+                c0,
+                dir,
+                accel,
+                turn_per_m,
+                spin0_rad: spin0,
+            });
             let v = [speed * dir[0], speed * dir[1]];
             (
                 LaunchEvent {
@@ -222,6 +259,7 @@ fn launch_event(
                     angle_deg: v[1].atan2(v[0]).to_degrees(),
                 },
                 Some(accel),
+                (spin0 + turn_per_m * inc.length_m, turn_per_m * speed),
             )
         }
         (None, Some(s)) => {
@@ -241,6 +279,7 @@ fn launch_event(
                     },
                 },
                 None,
+                (spin0, std::f64::consts::TAU * s.spin_hz),
             )
         }
         (None, None) => unreachable!("validated scenes have an incline or a start"),
@@ -257,7 +296,8 @@ impl Motion {
         let mut segments = Vec::new();
         let mut bounces = Vec::new();
 
-        let (launch, incline_accel) = launch_event(scene, g, r, k, &mut segments);
+        let (launch, incline_accel, (mut spin, mut omega)) =
+            launch_event(scene, g, r, k, &mut segments);
 
         let mut t = launch.t_s;
         let mut p = [launch.x_m, launch.y_m];
@@ -272,6 +312,8 @@ impl Motion {
                     v0: v,
                     arc,
                     samples: Vec::new(),
+                    spin0_rad: spin,
+                    omega_radps: omega,
                 });
                 break;
             }
@@ -297,6 +339,8 @@ impl Motion {
                 v0: v,
                 arc,
                 samples,
+                spin0_rad: spin,
+                omega_radps: omega,
             });
             if t_hit >= t_end_s {
                 break;
@@ -304,13 +348,18 @@ impl Motion {
             let impact = v_hit[1].abs();
             let e = scene.floor.restitution_at(impact);
             let v_out = [v_hit[0] * scene.floor.tangential_ratio, e * impact];
+            spin += omega * (t_hit - t);
+            let omega_out = omega + (v_out[0] - v_hit[0]) / (k * r);
             bounces.push(BounceEvent {
                 t_s: t_hit,
                 x_m: p_hit[0],
                 impact_velocity_mps: v_hit,
                 rebound_velocity_mps: v_out,
                 restitution: e,
+                spin_before_hz: omega / std::f64::consts::TAU,
+                spin_after_hz: omega_out / std::f64::consts::TAU,
             });
+            omega = omega_out;
             arc += 1;
             t = t_hit;
             p = p_hit;
@@ -321,6 +370,7 @@ impl Motion {
                     p0: p,
                     vx: v_out[0],
                     arc,
+                    spin0_rad: spin,
                 });
                 break;
             }
@@ -328,6 +378,7 @@ impl Motion {
         Motion {
             segments,
             gravity_mps2: g,
+            radius_m: r,
             bounces,
             launch,
             incline_accel_mps2: incline_accel,
@@ -339,7 +390,14 @@ impl Motion {
         let t_s = t_s.max(0.0);
         for seg in &self.segments {
             match seg {
-                Segment::Incline { t1, c0, dir, accel } => {
+                Segment::Incline {
+                    t1,
+                    c0,
+                    dir,
+                    accel,
+                    turn_per_m,
+                    spin0_rad,
+                } => {
                     if t_s <= *t1 {
                         let s = 0.5 * accel * t_s * t_s;
                         let v = accel * t_s;
@@ -350,6 +408,7 @@ impl Motion {
                             vy_mps: v * dir[1],
                             phase: Phase::Incline,
                             arc: 0,
+                            spin_rad: spin0_rad + turn_per_m * s,
                         };
                     }
                 }
@@ -360,6 +419,8 @@ impl Motion {
                     v0,
                     arc,
                     samples,
+                    spin0_rad,
+                    omega_radps,
                 } => {
                     if t_s <= *t1 {
                         let (x, y, vx, vy) = if samples.is_empty() {
@@ -385,10 +446,17 @@ impl Motion {
                             vy_mps: vy,
                             phase: Phase::Flight,
                             arc: *arc,
+                            spin_rad: spin0_rad + omega_radps * (t_s - t0),
                         };
                     }
                 }
-                Segment::Floor { t0, p0, vx, arc } => {
+                Segment::Floor {
+                    t0,
+                    p0,
+                    vx,
+                    arc,
+                    spin0_rad,
+                } => {
                     return MotionPoint {
                         x_m: p0[0] + vx * (t_s - t0),
                         y_m: p0[1],
@@ -396,6 +464,7 @@ impl Motion {
                         vy_mps: 0.0,
                         phase: Phase::Floor,
                         arc: *arc,
+                        spin_rad: spin0_rad - vx * (t_s - t0) / self.radius_m,
                     };
                 }
             }
