@@ -11,12 +11,5 @@ if [ ! -x "$BEADLINE" ]; then
     echo "run_real_balls.sh: no beadline binary at $BEADLINE (cargo build --release)" >&2
     exit 1
 fi
-VENV=bench/.venv
-if [ ! -x "$VENV/bin/python" ]; then
-    python3 -m venv "$VENV"
-fi
-if ! cmp -s bench/requirements.txt "$VENV/.installed-requirements"; then
-    "$VENV/bin/pip" install --quiet --disable-pip-version-check -r bench/requirements.txt
-    cp bench/requirements.txt "$VENV/.installed-requirements"
-fi
+. bench/venv.sh
 exec "$VENV/bin/python" bench/real_balls.py --beadline "$BEADLINE" "$@"

@@ -19,15 +19,7 @@ if [ ! -x "$BEADLINE" ]; then
     echo "run_spots.sh: no beadline binary at $BEADLINE (set BEADLINE, or cargo build --release)" >&2
     exit 1
 fi
-VENV=bench/.venv
-if [ ! -x "$VENV/bin/python" ]; then
-    python3 -m venv "$VENV"
-fi
-# Install the pinned references once per change of bench/requirements.txt.
-if ! cmp -s bench/requirements.txt "$VENV/.installed-requirements"; then
-    "$VENV/bin/pip" install --quiet --disable-pip-version-check -r bench/requirements.txt
-    cp bench/requirements.txt "$VENV/.installed-requirements"
-fi
+. bench/venv.sh
 export BENCH_CMDLINE="bench/run_spots.sh $*"
 args=()
 for a in "$@"; do
