@@ -110,6 +110,43 @@ def bounce_classes(status, doc, truth):
     return out
 
 
+def spin_figures(doc, truth):
+    """The spin read against the truth: (angle errors in degrees, relative to the first image
+    read, of every image with an angle; per phase (relative error of spin_hz, error in sigmas)).
+    Images are matched to the nearest truth flash; a phase's true spin is the mean of the
+    truth's turns over the steps between consecutive images that both have an angle."""
+    flashes = truth.doc["flashes"]
+
+    def nearest(p):
+        return min(flashes, key=lambda q: (q["x_px"] - p["x_px"]) ** 2 + (q["y_px"] - p["y_px"]) ** 2)
+
+    path = doc.get("path", [])
+    errs, base = [], None
+    for p in path:
+        if p.get("spin_angle_deg") is None:
+            continue
+        f = nearest(p)
+        if base is None:
+            base = (p["spin_angle_deg"], f["spin_angle_deg"])
+        errs.append((p["spin_angle_deg"] - base[0]) - (f["spin_angle_deg"] - base[1]))
+    phases = []
+    dt = 1.0 / truth.doc["rate_hz"]
+    for s in doc.get("spin", []):
+        # The truth's turns over the same steps: consecutive images of the phase that both
+        # have an angle (the phase's spin is the mean over the turns read).
+        turns = [nearest(b)["spin_angle_deg"] - nearest(a)["spin_angle_deg"]
+                 for a, b in zip(path, path[1:])
+                 if s["first_n"] <= a["n"] and b["n"] <= s["last_n"] and b["n"] == a["n"] + 1
+                 and a.get("spin_angle_deg") is not None
+                 and b.get("spin_angle_deg") is not None]
+        if not turns or s.get("spin_hz_sigma") is None:
+            continue
+        true_hz = sum(turns) / len(turns) / 360.0 / dt
+        err = s["spin_hz"] - true_hz
+        phases.append((err / true_hz if true_hz else float("nan"), err / s["spin_hz_sigma"]))
+    return errs, phases
+
+
 def spots_figures(binary, photo, truth):
     bl = sb.Beadline(binary)
     xyr, sigma, _, _, _ = bl.spots(photo, truth.rmin, truth.rmax)
@@ -149,6 +186,12 @@ def summarise(rows):
         "photos": len(rows), "exit": [r["exit"] for r in rows],
         "e_right": classes.count("right"), "e_flagged": classes.count("flagged"),
         "e_silent": classes.count("silent"),
+        "angles": sum(len(r["spin_errs"]) for r in rows),
+        "angle_rms": float(np.sqrt(np.mean(np.square(np.concatenate(
+            [r["spin_errs"] for r in rows]))))) if any(r["spin_errs"] for r in rows) else None,
+        "spin_phases": sum(len(r["spin_phases"]) for r in rows),
+        "spin_worst_rel": max((abs(p[0]) for r in rows for p in r["spin_phases"]), default=None),
+        "spin_over_3sigma": sum(abs(p[1]) > 3.0 for r in rows for p in r["spin_phases"]),
     }
 
 
@@ -166,16 +209,24 @@ def report(path, rows, binary, elapsed_s):
          "image already matched; *e* counts each bounce's restitution against the truth: right "
          "within 3 sigma + 0.005, flagged when wrong and `measure` exits non-zero or warns, "
          "silent when wrong with exit 0 and no warning.", "",
+         "Spin (read from the markings, `path[].spin_angle_deg` and `spin[]`): *angles* counts "
+         "the path images given an angle, with the RMS of their error against the truth (both "
+         "counted from the first image read); *phases* counts the phases given a spin rate, with "
+         "the worst relative error and how many are off by more than 3 sigma (wrong without a "
+         "warning: nothing checks a spin rate yet).", "",
          "| look | what | recall | precision | RMS isolated px | RMS overlapping px | twice "
          "| path / truth images | path not a ball | flash numbers right | exit | e right / "
-         "flagged / silent |", "|---" * 12 + "|"]
+         "flagged / silent | angles (RMS deg) | spin phases (worst error, over 3 sigma) |",
+         "|---" * 14 + "|"]
     for look, (what, *_rest) in LOOKS.items():
         s = summarise([r for r in rows if r["look"] == look])
         L.append(f"| {look} | {what} | {sb.fmt(s['recall'])} | {sb.fmt(s['precision'])} | "
                  f"{sb.fmt(s['rms_iso'])} | {sb.fmt(s['rms_ovl'])} | {s['twice']} | "
                  f"{s['path']} / {s['truth']} | {s['path_false']} | {s['numbered']} of "
                  f"{s['photos']} | {' '.join(map(str, s['exit']))} | {s['e_right']} / "
-                 f"{s['e_flagged']} / {s['e_silent']} |")
+                 f"{s['e_flagged']} / {s['e_silent']} | {s['angles']} "
+                 f"({sb.fmt(s['angle_rms'], '.2f')}) | {s['spin_phases']} "
+                 f"({sb.fmt(s['spin_worst_rel'], '.2%')}, {s['spin_over_3sigma']}) |")
     L += ["", "## Per photo", "",
           "| photo | recall | fp | twice | RMS px | path / truth | numbered | exit | e |",
           "|---|---|---|---|---|---|---|---|---|"]
@@ -214,6 +265,7 @@ def main():
         res.update(sb.path_match(truth, (xy, n)))
         res.update({"name": name, "look": looks[name], "exit": status,
                     "e_classes": bounce_classes(status, doc, truth)})
+        res["spin_errs"], res["spin_phases"] = spin_figures(doc, truth)
         rows.append(res)
         print(f"  {name}: spots {res['tp']}/{res['n_truth']} fp {res['fp']} twice "
               f"{res['twice']}, path {res['path_points']}, exit {status}, "

@@ -17,6 +17,7 @@ use crate::track::{self, PathOptions, PathPoint, PathResult, StrayReason};
 use std::path::{Path, PathBuf};
 
 mod crowded;
+mod spin;
 
 /// Where the pixel-to-metre scale comes from.
 #[derive(Debug, Clone, PartialEq)]
@@ -480,16 +481,20 @@ fn measure_validated(
         &calibration,
         &measurement,
     ));
+    let mut doc = document(
+        photo_path,
+        &report,
+        best,
+        &paths,
+        measurement,
+        &calibration,
+        origin,
+    );
+    if pixels {
+        spin::read(photo_path, settings, &mut doc);
+    }
     Ok(Measured {
-        doc: document(
-            photo_path,
-            &report,
-            best,
-            &paths,
-            measurement,
-            &calibration,
-            origin,
-        ),
+        doc,
         spots: report,
         paths,
         calibration,
@@ -730,11 +735,15 @@ fn document(
                         .spots
                         .get(p.spot_index)
                         .map_or(SpotSource::Detected, |s| s.source),
+                    spin_angle_deg: None,
+                    spin_angle_sigma_deg: None,
                 }
             })
             .collect(),
         missing: best.missing.clone(),
         strays: paths.strays.clone(),
+        spin: Vec::new(),
+        spin_note: None,
         measurement: m,
     }
 }

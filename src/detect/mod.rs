@@ -25,6 +25,7 @@ pub mod reject;
 pub mod search;
 pub mod shaded;
 pub mod shading;
+pub mod spin;
 mod validate;
 
 pub use reject::{Reason, Rejected};

@@ -29,6 +29,34 @@ pub struct PathEntry {
     /// How the image was found: `detected`, or `predicted_and_confirmed` (a candidate the
     /// detector rejected, kept where the path's physics puts a missing flash).
     pub source: crate::detect::SpotSource,
+    /// The ball's turn since the first image whose turn was read, degrees, counter-clockwise
+    /// positive as seen in the photo, from its markings (null: no reading, see `spin_note`).
+    pub spin_angle_deg: Option<f64>,
+    /// 1-sigma of `spin_angle_deg`, degrees.
+    pub spin_angle_sigma_deg: Option<f64>,
+}
+
+/// The spin read from the markings over one phase of the path.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct SpinPhase {
+    /// `incline` or `flight` (or `floor`).
+    pub kind: String,
+    /// First flash index of the phase.
+    pub first_n: usize,
+    /// Last flash index of the phase.
+    pub last_n: usize,
+    /// Turns between consecutive images read in the phase.
+    pub steps_read: usize,
+    /// Mean spin over the turns read in the phase, turns per second, counter-clockwise positive
+    /// as seen (on an incline, where the spin grows, the mean of those turns).
+    pub spin_hz: f64,
+    /// 1-sigma of `spin_hz`.
+    pub spin_hz_sigma: f64,
+    /// On an incline: 1 - (the ball's turn x its radius) / (the distance its centre moved), both
+    /// in pixels (0: rolling without slipping); null elsewhere.
+    pub slip: Option<f64>,
+    /// 1-sigma of `slip`.
+    pub slip_sigma: Option<f64>,
 }
 
 /// Where the origin of the reported world frame lies. Every position of the document (the path
@@ -86,6 +114,10 @@ pub struct MeasureDoc {
     pub missing: Vec<usize>,
     /// Spots not on the path, with the reason.
     pub strays: Vec<Stray>,
+    /// The spin read from the ball's markings, per phase with enough readings.
+    pub spin: Vec<SpinPhase>,
+    /// Why some or all images give no spin reading (null when every image was read).
+    pub spin_note: Option<String>,
     /// The physics (flattened: `schema_version`, `phases`, `bounces`, `launch`, ...).
     #[serde(flatten)]
     pub measurement: Measurement,
@@ -233,6 +265,19 @@ impl MeasureDoc {
                 "  drag           {:.4} +- {:.4} 1/m\n",
                 d.drag_per_m, d.drag_sigma_per_m
             );
+        }
+        for p in &self.spin {
+            s += &format!(
+                "  spin           {} n {}..{}: {:.3} +- {:.3} turns/s ({} turns read)",
+                p.kind, p.first_n, p.last_n, p.spin_hz, p.spin_hz_sigma, p.steps_read
+            );
+            if let (Some(slip), Some(sig)) = (p.slip, p.slip_sigma) {
+                s += &format!(", slip {slip:.3} +- {sig:.3} (0: rolling without slipping)");
+            }
+            s += "\n";
+        }
+        if let Some(note) = &self.spin_note {
+            s += &format!("  spin note      {note}\n");
         }
         for v in &m.verdicts {
             s += &format!(
