@@ -17,6 +17,7 @@ use crate::track::{self, PathOptions, PathPoint, PathResult, StrayReason};
 use std::path::{Path, PathBuf};
 
 mod crowded;
+mod depth;
 mod spin;
 
 /// Where the pixel-to-metre scale comes from.
@@ -249,7 +250,7 @@ fn scale_of(
 fn image_checks(
     report: &SpotReport,
     paths: &PathResult,
-    settings: &MeasureSettings,
+    (settings, in_plane): (&MeasureSettings, &depth::InPlane),
     calibration: &Calibration,
     m: &physics::Measurement,
 ) -> Vec<physics::checks::Check> {
@@ -278,7 +279,10 @@ fn image_checks(
         .map(|p| p.r_px / calibration.scale_px_per_m(p.x_px, p.y_px) * rescale)
         .collect();
     let flash_n: Vec<f64> = measured.iter().map(|p| p.n as f64).collect();
-    out.extend(physics::checks::radius_trend(&flash_n, &r_m));
+    match &in_plane.model {
+        Some(model) => out.push(physics::depth::check(model, measured.len())),
+        None => out.extend(physics::checks::radius_trend(&flash_n, &r_m)),
+    }
     if let Some(d) = settings.ball_diameter_m
         && settings.scale != Some(ScaleSource::BallDiameter)
     {
@@ -448,9 +452,19 @@ fn measure_validated(
         }),
         r_px,
     );
+    let plane = matches!(settings.scale, Some(ScaleSource::Plane(_)));
+    let in_plane = depth::InPlane::of(&report, &paths.paths[0], &calibration, plane);
+    let (points, first) = match in_plane.measured(
+        &paths.paths[0],
+        (timed, |p: &[TimedPoint]| {
+            physics::measure(p, radius_m, &physics_options)
+        }),
+    ) {
+        Some(moved) => moved,
+        None => (points, first),
+    };
     let best = &paths.paths[0];
     let frame = ResultFrame::of(&first, &physics_options);
-    let plane = matches!(settings.scale, Some(ScaleSource::Plane(_)));
     // The ball's radius in the result frame: a given diameter is true metres already.
     let radius_result_m = match settings.ball_diameter_m {
         Some(_) => radius_m,
@@ -477,19 +491,21 @@ fn measure_validated(
     measurement.checks.extend(image_checks(
         &report,
         &paths,
-        settings,
+        (settings, &in_plane),
         &calibration,
         &measurement,
     ));
+    let dt_s = measurement.flash_interval_s.value;
     let mut doc = document(
         photo_path,
         &report,
         best,
         &paths,
         measurement,
-        &calibration,
+        (&calibration, &in_plane),
         origin,
     );
+    doc.depth = in_plane.doc(dt_s);
     if pixels {
         spin::read(photo_path, settings, &mut doc);
     }
@@ -700,7 +716,7 @@ fn document(
     best: &track::BallPath,
     paths: &PathResult,
     mut m: physics::Measurement,
-    calibration: &Calibration,
+    (calibration, in_plane): (&Calibration, &depth::InPlane),
     origin: Origin,
 ) -> MeasureDoc {
     if origin.doc.y == LOWEST_IMAGE {
@@ -721,7 +737,8 @@ fn document(
             .points
             .iter()
             .map(|p| {
-                let [x_m, y_m] = calibration.to_world(p.x_px, p.y_px);
+                let q = in_plane.point(p);
+                let [x_m, y_m] = calibration.to_world(q.x_px, q.y_px);
                 PathEntry {
                     n: p.n,
                     t_s: p.n as f64 * dt,
@@ -742,6 +759,7 @@ fn document(
             .collect(),
         missing: best.missing.clone(),
         strays: paths.strays.clone(),
+        depth: None,
         spin: Vec::new(),
         spin_note: None,
         measurement: m,

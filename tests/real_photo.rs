@@ -10,8 +10,9 @@ use std::path::Path;
 #[test]
 fn a_ball_moving_in_depth_is_not_measured_silently() {
     // By eye the ball's image shrinks from about 42 px to about 30 px radius from left to right
-    // (testimages README): motion in depth, which the in-plane model cannot follow. The
-    // measurement must flag it: the radius trend fails (over 10 %), and the photo is doubtful.
+    // (testimages README): motion in depth. Its radii also swell near the bounces (blur) and
+    // shrink at the merged apexes, so they do not follow a steady motion in depth and the
+    // measurement must flag it: the radius check fails, and the photo is doubtful.
     let photo = Path::new(env!("CARGO_MANIFEST_DIR")).join("testimages/bouncing-ball-25hz-960.jpg");
     let settings = MeasureSettings {
         rate_hz: Some(25.0),

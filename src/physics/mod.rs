@@ -23,6 +23,7 @@ pub mod bands;
 pub mod bounce;
 mod calibration;
 pub mod checks;
+pub mod depth;
 pub mod drag;
 mod drag_checks;
 pub mod dynamics;

@@ -36,6 +36,22 @@ pub struct PathEntry {
     pub spin_angle_sigma_deg: Option<f64>,
 }
 
+/// The ball's motion in depth, found from its image's size along the path; every image was
+/// brought into the plane of the path's median image before the physics.
+#[derive(Debug, Clone, Copy, PartialEq, Serialize)]
+pub struct DepthDoc {
+    /// Size change of the ball's image from the first to the last image, relative (negative:
+    /// it shrinks, the ball moves away from the camera).
+    pub size_change: f64,
+    /// Rate of change of the ball's distance to the camera over that distance, per second
+    /// (positive: away).
+    pub distance_change_per_s: f64,
+    /// Relative RMS scatter of the radii about the fitted motion in depth.
+    pub radius_scatter: f64,
+    /// Detected images the fit used (a few blurred or merged ones are left out).
+    pub images_used: usize,
+}
+
 /// The spin read from the markings over one phase of the path.
 #[derive(Debug, Clone, PartialEq, Serialize)]
 pub struct SpinPhase {
@@ -114,6 +130,8 @@ pub struct MeasureDoc {
     pub missing: Vec<usize>,
     /// Spots not on the path, with the reason.
     pub strays: Vec<Stray>,
+    /// The motion in depth (null: the images are in one plane, or a plane file was given).
+    pub depth: Option<DepthDoc>,
     /// The spin read from the ball's markings, per phase with enough readings.
     pub spin: Vec<SpinPhase>,
     /// Why some or all images give no spin reading (null when every image was read).
@@ -264,6 +282,20 @@ impl MeasureDoc {
             s += &format!(
                 "  drag           {:.4} +- {:.4} 1/m\n",
                 d.drag_per_m, d.drag_sigma_per_m
+            );
+        }
+        if let Some(d) = &self.depth {
+            s += &format!(
+                "  depth          the ball's image {} by {:.1} % along the path: its distance \
+                 changes by {:+.1} % per second; every image brought into the plane of the \
+                 median image\n",
+                if d.size_change >= 0.0 {
+                    "grows"
+                } else {
+                    "shrinks"
+                },
+                d.size_change.abs() * 100.0,
+                d.distance_change_per_s * 100.0
             );
         }
         for p in &self.spin {
