@@ -267,11 +267,27 @@ fn phases(doc: &MeasureDoc, turns: &[Option<f64>], sigma_deg: f64) -> Vec<SpinPh
     out
 }
 
-/// Why images give no reading or no angle, in words; None when every image has an angle.
+/// Why images give no reading or no angle, in words (in one line when no image has one and most
+/// show no marking, or markings alike under half a turn); None when every image has an angle.
 fn note(sigs: &[Result<Signature, NoReading>], no_angle: usize) -> Option<String> {
     let count = |r: NoReading| sigs.iter().filter(|s| s.as_ref().err() == Some(&r)).count();
     if no_angle == 0 {
         return None;
+    }
+    let sampled = sigs.len() - count(NoReading::Covered);
+    if no_angle == sigs.len() && 2 * count(NoReading::Plain) > sampled {
+        return Some(
+            "no spin read: the ball shows no marking to read it by (no marking varies its light \
+             by 10 % or more)"
+                .into(),
+        );
+    }
+    if no_angle == sigs.len() && 2 * count(NoReading::Symmetric) > sampled {
+        return Some(
+            "no spin read: the ball's markings look the same turned half a turn, so a turn \
+             cannot be told from half a turn more"
+                .into(),
+        );
     }
     let mut parts = Vec::new();
     let plain = count(NoReading::Plain);
