@@ -5,7 +5,7 @@
 mod common;
 
 use beadline::physics::checks::CheckOutcome;
-use beadline::pipeline::{MeasureSettings, ScaleSource, measure_photo};
+use beadline::pipeline::measure_photo;
 use beadline::synth::scene::Scene;
 use std::path::Path;
 
@@ -47,12 +47,7 @@ fn a_ball_moving_toward_the_camera_is_measured_in_one_plane() {
     let dir = common::tempdir();
     let scene = incline(0.08);
     let (photo, truth) = common::shoot(&scene, dir.path(), "depth.png");
-    let settings = MeasureSettings {
-        rate_hz: Some(25.0),
-        scale: Some(ScaleSource::BallDiameter),
-        ball_diameter_m: Some(0.04),
-        ..Default::default()
-    };
+    let settings = common::ball_settings(25.0, 0.04);
     let m = measure_photo(&photo, &settings).expect("a measurement");
     let doc = &m.doc;
     let depth = doc.depth.expect("the motion in depth");
@@ -94,12 +89,7 @@ fn a_ball_moving_toward_the_camera_is_measured_in_one_plane() {
 fn a_ball_in_one_plane_is_not_moved() {
     let dir = common::tempdir();
     let (photo, _) = common::shoot(&incline(0.0), dir.path(), "flat.png");
-    let settings = MeasureSettings {
-        rate_hz: Some(25.0),
-        scale: Some(ScaleSource::BallDiameter),
-        ball_diameter_m: Some(0.04),
-        ..Default::default()
-    };
+    let settings = common::ball_settings(25.0, 0.04);
     let m = measure_photo(&photo, &settings).expect("a measurement");
     assert!(m.doc.depth.is_none(), "{:?}", m.doc.depth);
 }

@@ -27,12 +27,7 @@ fn agrees(what: &str, measured: f64, sigma: f64, truth: f64) {
 
 /// The settings of `beadline measure PHOTO --rate R --ball-diameter D`.
 fn settings(rate_hz: f64, diameter_m: f64) -> MeasureSettings {
-    MeasureSettings {
-        rate_hz: Some(rate_hz),
-        scale: Some(ScaleSource::BallDiameter),
-        ball_diameter_m: Some(diameter_m),
-        ..Default::default()
-    }
+    common::ball_settings(rate_hz, diameter_m)
 }
 
 /// The scene `tests/data/{name}.toml` (a sweep shot kept as a regression case).

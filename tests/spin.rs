@@ -4,20 +4,11 @@
 
 mod common;
 
-use beadline::pipeline::{MeasureSettings, ScaleSource, measure_photo};
+use beadline::pipeline::measure_photo;
 use beadline::report::measure::MeasureDoc;
 use beadline::synth::Truth;
 use beadline::synth::scene::Scene;
 use std::path::Path;
-
-fn settings(rate_hz: f64, diameter_m: f64) -> MeasureSettings {
-    MeasureSettings {
-        rate_hz: Some(rate_hz),
-        scale: Some(ScaleSource::BallDiameter),
-        ball_diameter_m: Some(diameter_m),
-        ..Default::default()
-    }
-}
 
 /// A throw of an 80 mm ball (20 px radius) spinning at `spin_hz`, 2.5 radii between flashes at
 /// 20 Hz, with the given markings.
@@ -56,7 +47,7 @@ fn measured(scene: &Scene, name: &str) -> (MeasureDoc, Truth) {
     let (photo, truth) = common::shoot(scene, dir.path(), name);
     let m = measure_photo(
         &photo,
-        &settings(scene.strobe.rate_hz, scene.ball.diameter_m),
+        &common::ball_settings(scene.strobe.rate_hz, scene.ball.diameter_m),
     )
     .expect("a measurement");
     (m.doc, truth)

@@ -6,6 +6,7 @@
 #![allow(dead_code)]
 
 use beadline::image::load::{LoadOptions, Photo, load};
+use beadline::pipeline::{MeasureSettings, ScaleSource};
 use beadline::report::measure::MeasureDoc;
 use beadline::synth::{self, FlashTruth, Truth, scene::Scene};
 use std::io::{BufRead, BufReader, Read};
@@ -19,6 +20,17 @@ pub const DEADLINE: Duration = Duration::from_secs(60);
 /// A fresh temporary folder, removed when dropped.
 pub fn tempdir() -> tempfile::TempDir {
     tempfile::tempdir().expect("a temporary folder")
+}
+
+/// The settings of `beadline measure PHOTO --rate R --ball-diameter D` (the scale from the
+/// ball's diameter).
+pub fn ball_settings(rate_hz: f64, diameter_m: f64) -> MeasureSettings {
+    MeasureSettings {
+        rate_hz: Some(rate_hz),
+        scale: Some(ScaleSource::BallDiameter),
+        ball_diameter_m: Some(diameter_m),
+        ..Default::default()
+    }
 }
 
 /// Relative difference of `a` from `b`.
