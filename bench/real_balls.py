@@ -54,6 +54,13 @@ LOOKS = {
                  {"markings": "seams"}, {},
                  {"backdrop_shapes": [{"x_px": 760.0, "y_px": 560.0, "width_px": 260.0,
                                        "height_px": 330.0, "level": 0.45}]}, False),
+    # Yardsticks of the same conditions without markings (appended: the seeds of the looks
+    # above follow their order).
+    "plain_jpeg": ("the plain sphere at JPEG quality 85 (the yardstick of panels_jpeg)", {},
+                   {"jpeg_quality": 85}, {}, False),
+    "plain_side_lit": ("the plain sphere lit from the right side, fill 0.05 (the yardstick of "
+                       "side_lit)", {}, {"light_dir": [1.0, -0.15, 0.25], "fill": 0.05}, {},
+                       False),
 }
 
 
