@@ -103,7 +103,7 @@ pub enum DetectError {
 #[derive(Debug, thiserror::Error)]
 pub enum TrackError {
     /// Fewer than two ball images.
-    #[error("{found} ball image(s) found: a measurement needs a path of images")]
+    #[error("{} found: a measurement needs a path of images", crate::core::words::count(*found, "ball image", "ball images"))]
     TooFewImages {
         /// Ball images found.
         found: usize,

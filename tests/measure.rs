@@ -215,6 +215,8 @@ fn a_photo_without_a_path_is_a_clear_error() {
         "{err}"
     );
     assert!(err.to_string().contains("one.png"), "{err}");
+    // One image is one, in words (not "1 ball image(s)").
+    assert!(err.to_string().contains("1 ball image found"), "{err}");
 }
 
 #[test]

@@ -8,6 +8,7 @@ pub mod output;
 pub mod stats;
 pub mod units;
 pub mod vec2;
+pub mod words;
 
 /// Version of every JSON document Beadline writes (spots, path, measure, rig lines); raised when
 /// a key changes meaning or goes.

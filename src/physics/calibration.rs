@@ -14,6 +14,7 @@
 //! given ones' relative sigmas are added in quadrature.
 
 use super::{MeasureOptions, Quantity, TimedPoint, Unknown, fail, flight};
+use crate::core::words::count;
 use crate::error::{Error, PhysicsError, Result};
 use std::ops::Range;
 
@@ -116,7 +117,10 @@ pub(crate) fn calibrate(
         .scale
         .clone()
         .unwrap_or_else(|| Quantity::new(f64::NAN, f64::NAN, "not given"));
-    let arcs_word = format!("estimated from {} flight arcs", flights.len());
+    let arcs_word = format!(
+        "estimated from {}",
+        count(flights.len(), "flight arc", "flight arcs")
+    );
     let rel_g = g_app_sigma / g_app;
     // The arcs' curvature is in metres per flash interval squared: the given scale's and
     // interval's own uncertainties pass into what is estimated from it.

@@ -399,8 +399,8 @@ fn floor_checks(m: &Measurement) -> Vec<Check> {
             m.floor.y_m,
             "a finite floor height when the path has two or more flight arcs".into(),
             format!(
-                "{} flight arcs, floor {}{}",
-                flights,
+                "{}, floor {}{}",
+                crate::core::words::count(flights, "flight arc", "flight arcs"),
                 m.floor.source,
                 advice(
                     outcome,

@@ -437,8 +437,8 @@ impl DragModel {
             g,
             units.widen(g, sigma, 2.0),
             format!(
-                "estimated with the drag model from {} flight arcs",
-                self.ranges.len()
+                "estimated with the drag model from {}",
+                crate::core::words::count(self.ranges.len(), "flight arc", "flight arcs")
             ),
         )
     }

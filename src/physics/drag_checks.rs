@@ -23,9 +23,9 @@ pub(super) fn drag_agreement(d: &super::drag::DragFit) -> Check {
             d.arcs
         ),
         format!(
-            "the drag model fits the {} flight arcs with residuals {:.1} x the centre sigmas \
-             (gravity {:.4} m/s^2, drag {:.4} per m){}",
-            d.arcs,
+            "the drag model fits the {} with residuals {:.1} x the centre sigmas (gravity {:.4} \
+             m/s^2, drag {:.4} per m){}",
+            crate::core::words::count(d.arcs, "flight arc", "flight arcs"),
             d.reduced_chi_square.max(0.0).sqrt(),
             d.gravity_mps2,
             d.drag_per_m,

@@ -13,6 +13,7 @@
 use super::drag::DragModel;
 use super::flight::ArcFit;
 use super::{FloorLine, TimedPoint, bounce};
+use crate::core::words::count;
 use nalgebra::{DMatrix, DVector};
 
 /// What the contacts of the bounces are found from: the consecutive fitted flight arcs, the
@@ -74,7 +75,7 @@ pub(crate) fn floor_line(
         Some(((mean, variance, reduced), n, how)) => FloorLine {
             y_m: mean - radius_m,
             sigma_m: (variance * reduced.unwrap_or(1.0).max(1.0)).sqrt(),
-            source: format!("contact heights of {n} bounces{how}"),
+            source: format!("contact heights of {}{how}", count(n, "bounce", "bounces")),
             contacts: n,
             contacts_reduced_chi_square: reduced,
         },

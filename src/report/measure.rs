@@ -1,6 +1,7 @@
 //! The document of `beadline measure`: the timed path in pixels and metres, and the physics.
 
 use super::csv_rows;
+use crate::core::words::count;
 use crate::physics::checks::{self, Check, CheckOutcome};
 use crate::physics::{Measurement, Quantity};
 use crate::track::Stray;
@@ -199,12 +200,12 @@ impl MeasureDoc {
     pub fn text(&self) -> String {
         let m = &self.measurement;
         let mut s = format!(
-            "{}: {} ball images, {} on the path ({} flashes missing), {} strays\n",
+            "{}: {}, {} on the path ({} missing), {}\n",
             self.file,
-            self.spots_found,
+            count(self.spots_found, "ball image", "ball images"),
             self.path.len(),
-            self.missing.len(),
-            self.strays.len()
+            count(self.missing.len(), "flash", "flashes"),
+            count(self.strays.len(), "stray", "strays")
         );
         s += &format!("  world frame    {}\n", self.origin.words());
         s += &format!("  scale          {}\n", quantity(&m.scale_px_per_m, "px/m"));
@@ -274,8 +275,10 @@ impl MeasureDoc {
         }
         if let Some(t) = &m.restitution_trend {
             s += &format!(
-                "  e vs impact    slope {:.4} +- {:.4} s/m over {} bounces\n",
-                t.slope_s_per_m, t.slope_sigma_s_per_m, t.bounces
+                "  e vs impact    slope {:.4} +- {:.4} s/m over {}\n",
+                t.slope_s_per_m,
+                t.slope_sigma_s_per_m,
+                count(t.bounces, "bounce", "bounces")
             );
         }
         if let Some(d) = &m.drag {

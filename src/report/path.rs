@@ -1,6 +1,7 @@
 //! The document of `beadline path`: the ball's path in time order and the strays.
 
 use super::{SCHEMA_VERSION, csv_rows};
+use crate::core::words::count;
 use crate::track::{PathPoint, PathResult, Stray};
 use serde::{Deserialize, Serialize};
 
@@ -39,12 +40,12 @@ impl PathDoc {
     /// Text for a person.
     pub fn text(&self) -> String {
         let mut s = format!(
-            "{}: path of {} images, missing flashes {:?}, {} other paths, {} strays\n",
+            "{}: path of {}, missing flashes {:?}, {}, {}\n",
             self.file,
-            self.path.len(),
+            count(self.path.len(), "image", "images"),
             self.missing,
-            self.other_paths.len(),
-            self.strays.len()
+            count(self.other_paths.len(), "other path", "other paths"),
+            count(self.strays.len(), "stray", "strays")
         );
         s += "    n      x_px      y_px    r_px  sigma_px\n";
         for p in &self.path {

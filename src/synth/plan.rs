@@ -402,8 +402,10 @@ pub fn plan(scene: &Scene) -> Result<Plan, PlanError> {
                 t.blur_px
             ),
             _ => format!(
-                "{} flashes at {} cannot cover the path to bounce {}: lower wishes.bounces",
-                l.max_flashes, l.name, wishes.bounces
+                "{} at {} cannot cover the path to bounce {}: lower wishes.bounces",
+                crate::core::words::count(l.max_flashes, "flash", "flashes"),
+                l.name,
+                wishes.bounces
             ),
         });
     }
@@ -441,8 +443,12 @@ impl Plan {
     /// Text for a person.
     pub fn text(&self) -> String {
         let mut s = format!(
-            "Plan: {} flashes at {:.2} Hz (power {}), first flash {:.3} s after release, exposure {:.3} s\n",
-            self.flashes, self.rate_hz, self.power_level, self.first_flash_s, self.exposure_s
+            "Plan: {} at {:.2} Hz (power {}), first flash {:.3} s after release, exposure {:.3} s\n",
+            crate::core::words::count(self.flashes, "flash", "flashes"),
+            self.rate_hz,
+            self.power_level,
+            self.first_flash_s,
+            self.exposure_s
         );
         s += &format!("  images per arc        {:?}\n", self.images_per_arc);
         s += &format!(
