@@ -102,3 +102,44 @@ fn bad_input_gives_one_line_naming_the_file_and_a_failing_status() {
     assert!(err.contains("s.toml"), "{err}");
     assert!(!dir.path().join("x.png").exists());
 }
+
+#[test]
+fn a_negative_number_is_refused_by_its_rule_not_taken_for_a_flag() {
+    // `--rate -25` used to answer "unexpected argument '-2'" with a tip about `--`.
+    let root = std::path::Path::new(env!("CARGO_MANIFEST_DIR"));
+    for (args, rule) in [
+        (
+            vec!["measure", "testimages/coins.png", "--rate", "-25"],
+            "--rate: must be between 0 and 100000 Hz, got -25",
+        ),
+        (
+            vec!["measure", "testimages/coins.png", "--scale", "-1000"],
+            "--scale: must be a positive number, got -1000",
+        ),
+        (
+            vec!["spots", "testimages/coins.png", "--radius", "-5..10"],
+            "--radius: ball images must be 2..2000 px in radius, got -5..10",
+        ),
+    ] {
+        let out = beadline(&args, root);
+        let err = String::from_utf8_lossy(&out.stderr);
+        assert_eq!(out.status.code(), Some(1), "{args:?}: {err}");
+        assert!(err.contains(rule) && !err.contains("unexpected argument"), "{args:?}: {err}");
+    }
+}
+
+#[test]
+fn a_rig_run_with_no_photo_to_measure_is_an_error() {
+    // An empty folder or a pattern that matches nothing used to exit 0 with no output.
+    let dir = common::tempdir();
+    let empty = dir.path().join("empty");
+    std::fs::create_dir(&empty).unwrap();
+    let pattern = dir.path().join("nomatch/*.jpg");
+    for input in [empty.to_str().unwrap(), pattern.to_str().unwrap()] {
+        let out = beadline(&["rig", input, "--rate", "25"], dir.path());
+        let err = String::from_utf8_lossy(&out.stderr);
+        assert_eq!(out.status.code(), Some(1), "{input}: {err}");
+        assert!(err.contains("no photos matched"), "{input}: {err}");
+        assert!(out.stdout.is_empty());
+    }
+}

@@ -18,9 +18,57 @@ use commands::{
 use settings::parse_start;
 use std::process::ExitCode;
 
+/// `--flag -25` read as `--flag=-25` when the flag takes a value and the next word is a
+/// negative number (or range, or pair): the parser would take it for a flag of its own and
+/// answer with a tip about `--`, where the user wants the number refused with its rule.
+fn negatives_joined(argv: Vec<std::ffi::OsString>) -> Vec<std::ffi::OsString> {
+    use clap::CommandFactory;
+    let cli = Args::command();
+    let sub = argv
+        .get(1)
+        .and_then(|s| s.to_str())
+        .and_then(|name| cli.find_subcommand(name));
+    let takes_value = |long: &str| {
+        sub.and_then(|c| c.get_arguments().find(|a| a.get_long() == Some(long)))
+            .is_some_and(|a| a.get_action().takes_values())
+    };
+    let negative = |w: &str| {
+        let mut c = w.chars();
+        c.next() == Some('-') && c.next().is_some_and(|d| d.is_ascii_digit() || d == '.')
+    };
+    let mut out = Vec::with_capacity(argv.len());
+    let mut words = argv.into_iter().peekable();
+    while let Some(w) = words.next() {
+        if w == "--" {
+            out.push(w);
+            out.extend(words);
+            break;
+        }
+        let joined = w
+            .to_str()
+            .and_then(|s| s.strip_prefix("--"))
+            .filter(|long| !long.contains('=') && takes_value(long))
+            .zip(
+                words
+                    .peek()
+                    .and_then(|n| n.to_str())
+                    .filter(|n| negative(n)),
+            )
+            .map(|(long, value)| format!("--{long}={value}"));
+        match joined {
+            Some(j) => {
+                out.push(j.into());
+                words.next();
+            }
+            None => out.push(w),
+        }
+    }
+    out
+}
+
 /// Parse, run, and map the outcome to an exit status.
 pub fn run() -> ExitCode {
-    let args = match Args::try_parse() {
+    let args = match Args::try_parse_from(negatives_joined(std::env::args_os().collect())) {
         Ok(a) => a,
         // `rig` keeps exit status 2 for photos that could not be measured: a usage error of
         // the run itself is 1 there.

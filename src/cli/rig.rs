@@ -82,6 +82,12 @@ pub(crate) fn rig(args: RigArgs) -> Result<ExitCode> {
             r::watch::watch(dir, &options, &watch, &journal, &sink, &done).map_err(flagged)
         } else {
             let paths = r::inputs::expand_inputs(&args.paths)?;
+            if paths.is_empty() {
+                bail!(
+                    "no photos matched {}: nothing to measure",
+                    args.paths.join(" ")
+                );
+            }
             if let Some(b) = &bar {
                 b.set_length(paths.len() as u64);
             }
