@@ -124,7 +124,10 @@ fn a_negative_number_is_refused_by_its_rule_not_taken_for_a_flag() {
         let out = beadline(&args, root);
         let err = String::from_utf8_lossy(&out.stderr);
         assert_eq!(out.status.code(), Some(1), "{args:?}: {err}");
-        assert!(err.contains(rule) && !err.contains("unexpected argument"), "{args:?}: {err}");
+        assert!(
+            err.contains(rule) && !err.contains("unexpected argument"),
+            "{args:?}: {err}"
+        );
     }
 }
 

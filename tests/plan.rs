@@ -209,3 +209,19 @@ fn a_scene_without_a_flash_unit_is_refused() {
     let err = plan(&Scene::demo()).unwrap_err();
     assert!(err.to_string().contains("[flash_unit]"));
 }
+
+#[test]
+fn a_plan_is_text_or_json_and_csv_is_refused() {
+    // `plan --format csv` used to be accepted and print text.
+    let dir = common::tempdir();
+    let path = dir.path().join("scene.toml");
+    std::fs::write(&path, DropScene::planned(200, 60.0, "bounces = 1").toml()).unwrap();
+    let scene = path.to_str().unwrap();
+    let out = common::beadline(&["plan", scene, "--format", "csv"], dir.path());
+    assert_eq!(out.status.code(), Some(2), "{out:?}");
+    assert!(String::from_utf8_lossy(&out.stderr).contains("possible values: text, json"));
+    let out = common::beadline(&["plan", scene, "--format", "json"], dir.path());
+    assert!(out.status.success(), "{out:?}");
+    let doc: serde_json::Value = serde_json::from_slice(&out.stdout).unwrap();
+    assert!(doc["rate_hz"].as_f64().is_some(), "{doc}");
+}

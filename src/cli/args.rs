@@ -73,7 +73,7 @@ pub(crate) enum Command {
         preview: Option<PathBuf>,
         /// Output format (text or json).
         #[arg(long, value_enum, default_value = "text")]
-        format: Format,
+        format: PlanFormat,
         /// Write the plan to FILE (atomically) instead of standard output.
         #[arg(short = 'o', long = "output", value_name = "FILE")]
         output: Option<PathBuf>,
@@ -160,6 +160,13 @@ pub(crate) enum Format {
     Text,
     Json,
     Csv,
+}
+
+/// Output format of a plan: a plan is no table, so there is no CSV.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, ValueEnum)]
+pub(crate) enum PlanFormat {
+    Text,
+    Json,
 }
 
 /// Ball polarity as typed.

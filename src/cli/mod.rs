@@ -8,7 +8,7 @@ mod rig;
 mod settings;
 
 use anyhow::Result;
-use args::{Args, Command, Format, OutArgs};
+use args::{Args, Command, Format, OutArgs, PlanFormat};
 use beadline::report::spots::SpotsDoc;
 use beadline::synth::{self, scene::Scene};
 use clap::Parser;
@@ -181,12 +181,15 @@ fn dispatch(args: Args) -> Result<ExitCode> {
                 synth::render(&plan.apply(&scene)).save(p)?;
             }
             let text = match format {
-                Format::Json => serde_json::to_string_pretty(&plan)? + "\n",
-                Format::Text | Format::Csv => plan.text(),
+                PlanFormat::Json => serde_json::to_string_pretty(&plan)? + "\n",
+                PlanFormat::Text => plan.text(),
             };
             emit(
                 &OutArgs {
-                    format,
+                    format: match format {
+                        PlanFormat::Json => Format::Json,
+                        PlanFormat::Text => Format::Text,
+                    },
                     output,
                     overlay: None,
                 },
