@@ -16,6 +16,7 @@ pub struct Args {
 #[derive(Debug, Subcommand)]
 pub(crate) enum Command {
     /// Render a synthetic strobe photo and its ground truth from a scene file.
+    #[command(after_help = RENDER_HELP)]
     Render {
         /// Scene file (TOML).
         scene: PathBuf,
@@ -30,6 +31,7 @@ pub(crate) enum Command {
         plate: Option<PathBuf>,
     },
     /// Find every image of the ball in a strobe photo.
+    #[command(after_help = SPOTS_HELP)]
     Spots {
         /// The photo (JPEG, PNG or TIFF).
         photo: PathBuf,
@@ -39,6 +41,7 @@ pub(crate) enum Command {
         out: OutArgs,
     },
     /// Order the ball images of a strobe photo into the ball's timed path.
+    #[command(after_help = PATH_HELP)]
     Path {
         /// The photo (JPEG, PNG or TIFF).
         photo: PathBuf,
@@ -51,6 +54,7 @@ pub(crate) enum Command {
         out: OutArgs,
     },
     /// Measure the ball from a strobe photo: path, calibration, phases, fits, restitution.
+    #[command(after_help = MEASURE_HELP)]
     Measure {
         /// The photo (JPEG, PNG or TIFF).
         photo: PathBuf,
@@ -65,6 +69,7 @@ pub(crate) enum Command {
         plot: Option<PathBuf>,
     },
     /// Plan a shot: flash rate, number of flashes, exposure and delay, before taking the photo.
+    #[command(after_help = PLAN_HELP)]
     Plan {
         /// Scene file (TOML) with [flash_unit] and [wishes].
         scene: PathBuf,
@@ -82,12 +87,56 @@ pub(crate) enum Command {
     #[command(args_override_self = true, after_help = RIG_HELP)]
     Rig(Box<RigArgs>),
     /// Render the built-in demo scene into a folder and measure it.
+    #[command(after_help = DEMO_HELP)]
     Demo {
         /// Folder for the demo's files.
         #[arg(long, default_value = "beadline-demo")]
         dir: PathBuf,
     },
 }
+
+/// Help shown after the render options.
+pub(crate) const RENDER_HELP: &str = "\
+Examples:
+  beadline render scene.toml --out photo.png --truth truth.json
+  beadline render scene.toml --out photo.jpg --plate plate.jpg";
+
+/// Help shown after the spots options.
+pub(crate) const SPOTS_HELP: &str = "\
+Examples:
+  beadline spots photo.jpg
+  beadline spots photo.jpg --radius 12..20 --format json -o spots.json
+  beadline spots dark.png --plate plate.png --overlay spots.png";
+
+/// Help shown after the path options.
+pub(crate) const PATH_HELP: &str = "\
+Examples:
+  beadline path photo.jpg
+  beadline path photo.jpg --start 120,340 --format csv -o path.csv";
+
+/// Help shown after the measure options.
+pub(crate) const MEASURE_HELP: &str = "\
+Exit status:
+  0  measured, every self-check passed or warned, every acceptance band met
+  1  error: the photo or a setting could not be used (one line on standard error)
+  3  a result lies outside an acceptance band, or a band's quantity was not measured
+  4  a self-check failed: the numbers are printed but not to be trusted (4 wins over 3)
+
+Examples:
+  beadline measure photo.jpg --rate 25 --ball-diameter 0.04
+  beadline measure photo.jpg --rate 25 --scale 1000 --accept restitution=0.73..0.80
+  beadline measure photo.jpg --rate 25 --plane plane.toml --format json -o result.json";
+
+/// Help shown after the plan options.
+pub(crate) const PLAN_HELP: &str = "\
+Examples:
+  beadline plan scene.toml
+  beadline plan scene.toml --preview planned.png --format json";
+
+/// Help shown after the demo options.
+pub(crate) const DEMO_HELP: &str = "\
+Example:
+  beadline demo --dir beadline-demo";
 
 /// Help shown after the rig's options.
 pub(crate) const RIG_HELP: &str = "\
@@ -105,7 +154,12 @@ Exit status:
   0  every photo measured and within its acceptance bands
   1  error in the run itself (bad profile or flag, unwritable output...)
   2  some photos could not be read or measured
-  3  some results outside acceptance bands (2 wins over 3)";
+  3  some results outside acceptance bands or not measured
+  4  some results doubtful: a self-check failed (2 wins over 4, 4 over 3)
+
+Examples:
+  beadline rig 'shots/*.jpg' --profile rig.toml --out results.jsonl --summary summary.csv
+  beadline rig --watch incoming/ --profile rig.toml --out results.jsonl";
 
 /// `beadline rig` as typed.
 #[derive(Debug, Clone, ClapArgs)]
@@ -340,4 +394,37 @@ pub(crate) struct MeasureArgs {
     /// Start of the path near pixel X,Y (default: found automatically).
     #[arg(long, value_name = "X,Y")]
     pub(crate) start: Option<String>,
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use clap::Parser;
+
+    #[test]
+    fn every_example_in_the_help_parses() {
+        let helps = [
+            RENDER_HELP,
+            SPOTS_HELP,
+            PATH_HELP,
+            MEASURE_HELP,
+            PLAN_HELP,
+            DEMO_HELP,
+            RIG_HELP,
+        ];
+        for help in helps {
+            let examples: Vec<&str> = help
+                .lines()
+                .filter_map(|l| l.trim().strip_prefix("beadline "))
+                .collect();
+            assert!(!examples.is_empty(), "no example in {help}");
+            for e in examples {
+                let words = std::iter::once("beadline")
+                    .chain(e.split_whitespace().map(|w| w.trim_matches('\'')));
+                if let Err(err) = Args::try_parse_from(words) {
+                    panic!("{e}: {err}");
+                }
+            }
+        }
+    }
 }
