@@ -26,6 +26,14 @@ pub enum Error {
         /// What the decoder said.
         message: String,
     },
+    /// An image that decodes but cannot hold a measurement (a few pixels across).
+    #[error("{path}: {message}")]
+    Unusable {
+        /// The file concerned.
+        path: PathBuf,
+        /// Why it cannot be used.
+        message: String,
+    },
     /// A scene, profile or plane file is malformed or holds an absurd value.
     #[error("{path}: {message}")]
     Config {

@@ -146,3 +146,20 @@ fn a_rig_run_with_no_photo_to_measure_is_an_error() {
         assert!(out.stdout.is_empty());
     }
 }
+
+#[test]
+fn a_one_pixel_photo_is_too_small_not_undecodable() {
+    // A 1 x 1 PNG decodes; the error used to say "cannot decode image".
+    let dir = common::tempdir();
+    let path = dir.path().join("dot.png");
+    image::GrayImage::new(1, 1).save(&path).unwrap();
+    let out = beadline(&["spots", path.to_str().unwrap()], dir.path());
+    let err = String::from_utf8_lossy(&out.stderr);
+    assert_eq!(out.status.code(), Some(1), "{err}");
+    assert!(
+        err.contains("dot.png") && err.contains("too small to hold a ball"),
+        "{err}"
+    );
+    assert!(!err.contains("cannot decode"), "{err}");
+    assert_eq!(err.lines().count(), 1, "{err}");
+}

@@ -498,3 +498,31 @@ fn watch_waits_for_a_photo_to_be_complete_and_stops_at_max_photos() {
     let journal = std::fs::read_to_string(d.join("journal.txt")).unwrap();
     assert_eq!(journal, "\"late.png\"\n");
 }
+
+#[test]
+fn outputs_and_limits_are_checked_before_any_photo_is_measured() {
+    // `--summary` into a missing folder used to fail only after every photo was measured, and
+    // `--max-decoding 0` was accepted while `--jobs 0` was refused.
+    let dir = common::tempdir();
+    let photo = Path::new(env!("CARGO_MANIFEST_DIR")).join("testimages/coins.png");
+    let photo = photo.to_str().unwrap();
+    let missing = dir.path().join("nowhere/summary.csv");
+    for (extra, says) in [
+        (
+            vec!["--max-decoding", "0"],
+            "--max-decoding: must be at least 1",
+        ),
+        (
+            vec!["--summary", missing.to_str().unwrap()],
+            "--summary: the folder",
+        ),
+    ] {
+        let mut args = vec!["rig", photo, "--rate", "25"];
+        args.extend(extra);
+        let out = common::beadline(&args, dir.path());
+        let err = String::from_utf8_lossy(&out.stderr);
+        assert_eq!(out.status.code(), Some(1), "{args:?}: {err}");
+        assert!(err.contains(says), "{args:?}: {err}");
+        assert!(out.stdout.is_empty(), "{args:?}: a photo was measured");
+    }
+}

@@ -21,6 +21,20 @@ pub(crate) fn rig(args: RigArgs) -> Result<ExitCode> {
         std::fs::create_dir_all(dir)
             .with_context(|| format!("{}: cannot create folder", dir.display()))?;
     }
+    if args.max_decoding == Some(0) {
+        bail!("--max-decoding: must be at least 1");
+    }
+    // The summary is written after every photo: a folder that is not there is told first.
+    if let Some(summary) = &args.summary
+        && let Some(folder) = summary.parent().filter(|f| !f.as_os_str().is_empty())
+        && !folder.is_dir()
+    {
+        bail!(
+            "{}: --summary: the folder {} does not exist",
+            summary.display(),
+            folder.display()
+        );
+    }
     let options = RigOptions {
         settings,
         overlay_dir: args.overlay_dir.clone(),

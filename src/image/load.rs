@@ -314,14 +314,14 @@ fn decode(
     };
     img.apply_orientation(orientation);
     if img.width() < 3 || img.height() < 3 {
-        return Err(decode_error(
-            path,
-            format!(
-                "{} x {} pixels is too small to hold a ball",
+        return Err(Error::Unusable {
+            path: path.to_path_buf(),
+            message: format!(
+                "the image decodes, but {} x {} pixels is too small to hold a ball",
                 img.width(),
                 img.height()
             ),
-        ));
+        });
     }
     Ok(img)
 }
