@@ -163,3 +163,35 @@ fn a_one_pixel_photo_is_too_small_not_undecodable() {
     assert!(!err.contains("cannot decode"), "{err}");
     assert_eq!(err.lines().count(), 1, "{err}");
 }
+
+#[test]
+fn render_writes_the_photo_and_its_truth_or_neither() {
+    // The photo used to be written even when writing the truth then failed.
+    let dir = common::tempdir();
+    let scene = dir.path().join("scene.toml");
+    std::fs::write(&scene, common::DropScene::tennis(0.8, 0.5, 0.05).toml()).unwrap();
+    let scene = scene.to_str().unwrap();
+    let photo = dir.path().join("photo.png");
+    let truth = dir.path().join("truth.json");
+    let nowhere = dir.path().join("nowhere");
+    let cases = [
+        (photo.clone(), nowhere.join("truth.json")),
+        (nowhere.join("photo.png"), truth.clone()),
+    ];
+    for (out, t) in cases {
+        let args = [
+            "render",
+            scene,
+            "--out",
+            out.to_str().unwrap(),
+            "--truth",
+            t.to_str().unwrap(),
+        ];
+        let res = beadline(&args, dir.path());
+        assert_eq!(res.status.code(), Some(1), "{res:?}");
+        assert!(
+            !photo.exists() && !truth.exists(),
+            "a file was left: {args:?}"
+        );
+    }
+}

@@ -156,9 +156,18 @@ pub(crate) fn render_to(
     truth: Option<&Path>,
 ) -> Result<synth::Rendered> {
     let photo = synth::render(scene);
-    photo.save(out)?;
+    // Both or neither: the truth first (a photo without its truth is no test input), and it
+    // goes again when the photo cannot be written (a regular file only: never a device).
     if let Some(t) = truth {
         beadline::core::output::write_json(t, &photo.truth)?;
+    }
+    if let Err(e) = photo.save(out) {
+        if let Some(t) = truth
+            && std::fs::symlink_metadata(t).is_ok_and(|m| m.is_file())
+        {
+            let _ = std::fs::remove_file(t);
+        }
+        return Err(e.into());
     }
     Ok(photo)
 }
