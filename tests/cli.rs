@@ -195,3 +195,42 @@ fn render_writes_the_photo_and_its_truth_or_neither() {
         );
     }
 }
+
+#[test]
+fn text_outputs_name_values_as_the_json_does() {
+    // Verdicts read "Fail" and spots "(Bright ball, ...)", "Faint": Rust names in prose.
+    let dir = common::tempdir();
+    let (photo, _) = common::shoot(
+        &beadline::synth::scene::Scene::demo(),
+        dir.path(),
+        "demo.png",
+    );
+    let photo = photo.to_str().unwrap();
+    let args = [
+        "measure",
+        photo,
+        "--rate",
+        "25",
+        "--ball-diameter",
+        "0.04",
+        "--accept",
+        "restitution=0.10..0.20",
+    ];
+    let out = beadline(&args, dir.path());
+    let text = String::from_utf8_lossy(&out.stdout);
+    assert!(text.contains("band restitution 0.1..0.2: fail"), "{text}");
+    let out = beadline(&["spots", photo], dir.path());
+    let text = String::from_utf8_lossy(&out.stdout);
+    assert!(text.contains("(bright ball"), "{text}");
+    for rust in [
+        "Fail",
+        "Pass",
+        "NotMeasured",
+        "Bright",
+        "Dark",
+        "Faint",
+        "Radius",
+    ] {
+        assert!(!text.contains(rust), "{rust} in {text}");
+    }
+}

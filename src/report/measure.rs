@@ -316,8 +316,12 @@ impl MeasureDoc {
         }
         for v in &m.verdicts {
             s += &format!(
-                "  band {} {}..{}: {:?} {}\n",
-                v.band.quantity, v.band.min, v.band.max, v.outcome, v.note
+                "  band {} {}..{}: {} {}\n",
+                v.band.quantity,
+                v.band.min,
+                v.band.max,
+                crate::core::words::name(&v.outcome),
+                v.note
             );
         }
         s + &checks_text(&m.checks)

@@ -1,7 +1,7 @@
 //! The document of `beadline path`: the ball's path in time order and the strays.
 
 use super::{SCHEMA_VERSION, csv_rows};
-use crate::core::words::count;
+use crate::core::words::{count, name};
 use crate::track::{PathPoint, PathResult, Stray};
 use serde::{Deserialize, Serialize};
 
@@ -55,7 +55,12 @@ impl PathDoc {
             );
         }
         for st in &self.strays {
-            s += &format!("stray {:9.3} {:9.3}  {:?}\n", st.x_px, st.y_px, st.reason);
+            s += &format!(
+                "stray {:9.3} {:9.3}  {}\n",
+                st.x_px,
+                st.y_px,
+                name(&st.reason)
+            );
         }
         s
     }

@@ -130,9 +130,9 @@ impl SpotsDoc {
             s += &format!(", radius {r:.2} px");
         }
         s += &format!(
-            ", {} rejected ({:?} ball, noise {:.4})\n",
+            ", {} rejected ({} ball, noise {:.4})\n",
             self.rejected.len(),
-            self.settings.polarity,
+            crate::core::words::name(&self.settings.polarity),
             self.settings.noise_sigma
         );
         s += "    #      x_px      y_px    r_px  sigma_px  score\n";
@@ -144,8 +144,11 @@ impl SpotsDoc {
         }
         for r in &self.rejected {
             s += &format!(
-                "rejected {:9.3} {:9.3} {:7.3}  {:?}\n",
-                r.x_px, r.y_px, r.r_px, r.reason
+                "rejected {:9.3} {:9.3} {:7.3}  {}\n",
+                r.x_px,
+                r.y_px,
+                r.r_px,
+                crate::core::words::name(&r.reason)
             );
         }
         s += &self.light_text();
