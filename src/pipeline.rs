@@ -761,6 +761,7 @@ fn document(
         strays: paths.strays.clone(),
         depth: None,
         spin: Vec::new(),
+        spin_bounces: Vec::new(),
         spin_note: None,
         measurement: m,
     }

@@ -76,6 +76,30 @@ pub struct SpinPhase {
     pub slip_sigma: Option<f64>,
 }
 
+/// The spin on either side of a bounce, read from the markings of the phases before and after it.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct SpinBounce {
+    /// The bounce's number along the path (1: the first), as in `bounces[]`.
+    pub bounce: usize,
+    /// Spin of the phase before, turns per second, counter-clockwise positive as seen.
+    pub spin_before_hz: f64,
+    /// 1-sigma of `spin_before_hz`.
+    pub spin_before_hz_sigma: f64,
+    /// Spin of the phase after, turns per second.
+    pub spin_after_hz: f64,
+    /// 1-sigma of `spin_after_hz`.
+    pub spin_after_hz_sigma: f64,
+    /// Horizontal velocity after less before, m/s (null when the ball barely moves sideways).
+    pub tangential_change_mps: Option<f64>,
+    /// 1-sigma of `tangential_change_mps`.
+    pub tangential_change_sigma_mps: Option<f64>,
+    /// The moment-of-inertia factor I / (m r^2) the two changes imply, the angular momentum about
+    /// the contact point kept (null unless both changes are over three sigmas).
+    pub inertia_factor: Option<f64>,
+    /// 1-sigma of `inertia_factor`.
+    pub inertia_factor_sigma: Option<f64>,
+}
+
 /// Where the origin of the reported world frame lies. Every position of the document (the path
 /// entries' `x_m` and `y_m`, the floor's `y_m`, the launch's `x_m` and `y_m`, the bounces' `x_m`)
 /// is in this one frame: metres, x right, y up, levelled by the camera roll when it was
@@ -135,6 +159,8 @@ pub struct MeasureDoc {
     pub depth: Option<DepthDoc>,
     /// The spin read from the ball's markings, per phase with enough readings.
     pub spin: Vec<SpinPhase>,
+    /// The spin before and after each bounce with a spin read on both sides.
+    pub spin_bounces: Vec<SpinBounce>,
     /// Why some or all images give no spin reading (null when every image was read).
     pub spin_note: Option<String>,
     /// The physics (flattened: `schema_version`, `phases`, `bounces`, `launch`, ...).
@@ -308,6 +334,20 @@ impl MeasureDoc {
             );
             if let (Some(slip), Some(sig)) = (p.slip, p.slip_sigma) {
                 s += &format!(", slip {slip:.3} +- {sig:.3} (0: rolling without slipping)");
+            }
+            s += "\n";
+        }
+        for b in &self.spin_bounces {
+            s += &format!(
+                "  spin at bounce {}: {:.3} +- {:.3} turns/s before, {:.3} +- {:.3} after",
+                b.bounce,
+                b.spin_before_hz,
+                b.spin_before_hz_sigma,
+                b.spin_after_hz,
+                b.spin_after_hz_sigma
+            );
+            if let (Some(k), Some(sk)) = (b.inertia_factor, b.inertia_factor_sigma) {
+                s += &format!(" (moment-of-inertia factor {k:.2} +- {sk:.2})");
             }
             s += "\n";
         }
