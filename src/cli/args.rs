@@ -372,6 +372,10 @@ pub(crate) struct MeasureArgs {
     /// Plane file (TOML: [[points]] x_px, y_px, x_m, y_m; optional k1, k2, focal_px).
     #[arg(long, value_name = "FILE")]
     pub(crate) plane: Option<PathBuf>,
+    /// The camera's focal length in pixels (focal length / pixel pitch): gives the motion in
+    /// depth in m/s.
+    #[arg(long, value_name = "PIXELS")]
+    pub(crate) focal_px: Option<f64>,
     /// Gravity, m/s^2, when it is not the quantity estimated.
     #[arg(long, default_value_t = STANDARD_GRAVITY_MPS2)]
     pub(crate) gravity: f64,

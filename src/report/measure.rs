@@ -47,6 +47,13 @@ pub struct DepthDoc {
     /// Rate of change of the ball's distance to the camera over that distance, per second
     /// (positive: away).
     pub distance_change_per_s: f64,
+    /// The distance from the camera to the ball at the median image, metres: the focal length in
+    /// pixels over the scale (null without `--focal-px`).
+    pub distance_m: Option<f64>,
+    /// The ball's speed toward the camera, m/s (negative: away; null without `--focal-px`).
+    pub toward_camera_mps: Option<f64>,
+    /// 1-sigma of `toward_camera_mps`.
+    pub toward_camera_sigma_mps: Option<f64>,
     /// Relative RMS scatter of the radii about the fitted motion in depth.
     pub radius_scatter: f64,
     /// Detected images the fit used (a few blurred or merged ones are left out).
@@ -326,6 +333,13 @@ impl MeasureDoc {
                 d.size_change.abs() * 100.0,
                 d.distance_change_per_s * 100.0
             );
+            if let (Some(v), Some(sv), Some(z)) =
+                (d.toward_camera_mps, d.toward_camera_sigma_mps, d.distance_m)
+            {
+                s += &format!(
+                    "  depth speed    {v:.4} +- {sv:.4} m/s toward the camera ({z:.3} m away)\n"
+                );
+            }
         }
         for p in &self.spin {
             s += &format!(
