@@ -501,6 +501,7 @@ fn measure_validated(
         &calibration,
         &measurement,
     ));
+    physics::checks::name_depth_cause(&mut measurement.checks);
     let dt_s = measurement.flash_interval_s.value;
     let mut doc = document(
         photo_path,
