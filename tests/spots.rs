@@ -205,6 +205,8 @@ fn distractors_of_another_size_and_reflections_are_not_kept() {
     let dir = common::tempdir();
     let mut scene = Scene::demo();
     scene.floor.glossy = true;
+    // A plate deep enough in the photo for the mirror images of the low flashes to show.
+    scene.floor.depth_m = 0.075;
     scene.distractors = vec![
         synth::scene::Distractor {
             x_px: 1300.0,
