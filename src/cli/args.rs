@@ -64,7 +64,8 @@ pub(crate) enum Command {
         measure: Box<MeasureArgs>,
         #[command(flatten)]
         out: OutArgs,
-        /// Write plots (height against time, restitution against impact speed) as SVG.
+        /// Write plots (height against time, restitution against impact speed, each with its
+        /// residuals) as SVG.
         #[arg(long, value_name = "SVG", value_parser = svg_path)]
         plot: Option<PathBuf>,
     },
