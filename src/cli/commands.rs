@@ -100,27 +100,6 @@ pub(crate) fn write_debug(
     Ok(())
 }
 
-pub(crate) fn spots_overlay(photo: &Path, report: &detect::SpotReport, out: &Path) -> Result<()> {
-    use beadline::draw::overlay::{Canvas, GREEN, RED, YELLOW};
-    let mut c = Canvas::open(photo)?;
-    for (i, s) in report.spots.iter().enumerate() {
-        c.circle(s.x_px, s.y_px, s.r_px, GREEN);
-        c.cross(s.x_px, s.y_px, 3.0, GREEN);
-        c.text(
-            s.x_px + 3.0,
-            s.y_px - s.r_px - 12.0,
-            &i.to_string(),
-            2,
-            YELLOW,
-        );
-    }
-    for s in &report.rejected {
-        c.circle(s.x_px, s.y_px, s.r_px, RED);
-    }
-    c.save(out)?;
-    Ok(())
-}
-
 /// Write a measurement: the document in the chosen format, and the pictures asked for.
 pub(crate) fn write_measure(
     photo: &Path,

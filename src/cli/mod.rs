@@ -12,9 +12,7 @@ use args::{Args, Command, Format, OutArgs, PlanFormat};
 use beadline::report::spots::SpotsDoc;
 use beadline::synth::{self, scene::Scene};
 use clap::Parser;
-use commands::{
-    demo, detect, emit, formatted, render_to, spots_overlay, verdict_status, write_measure,
-};
+use commands::{demo, detect, emit, formatted, render_to, verdict_status, write_measure};
 use settings::parse_start;
 use std::process::ExitCode;
 
@@ -129,7 +127,7 @@ fn dispatch(args: Args) -> Result<ExitCode> {
             );
             let text = formatted(out.format, &doc, || doc.text(), || doc.csv())?;
             if let Some(o) = &out.overlay {
-                spots_overlay(&photo, &report, o)?;
+                beadline::draw::overlay::spots_overlay(&photo, &report, o)?;
             }
             emit(&out, &text)?;
             Ok(ExitCode::SUCCESS)
@@ -150,7 +148,7 @@ fn dispatch(args: Args) -> Result<ExitCode> {
             let doc = beadline::report::path::PathDoc::new(&photo.display().to_string(), &result);
             let text = formatted(out.format, &doc, || doc.text(), || doc.csv())?;
             if let Some(o) = &out.overlay {
-                spots_overlay(&photo, &report, o)?;
+                beadline::draw::overlay::path_overlay(&photo, &report, &result, o)?;
             }
             emit(&out, &text)?;
             Ok(ExitCode::SUCCESS)
