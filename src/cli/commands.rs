@@ -117,6 +117,28 @@ pub(crate) fn write_measure(
     emit(out, &text)
 }
 
+/// Write the HTML report of a measurement: its pictures, and the settings with the command line
+/// as typed.
+pub(crate) fn write_report(
+    photo: &Path,
+    m: &beadline::pipeline::Measured,
+    settings: &beadline::pipeline::MeasureSettings,
+    out: &Path,
+) -> Result<()> {
+    let mut rows = beadline::report::html::settings_rows(settings);
+    let typed: Vec<String> = std::env::args().skip(1).collect();
+    rows.insert(
+        0,
+        (
+            "command line".into(),
+            format!("beadline {}", typed.join(" ")),
+        ),
+    );
+    let pictures = beadline::draw::pictures(photo, m)?;
+    beadline::report::html::write(out, &m.doc, &pictures, &rows)?;
+    Ok(())
+}
+
 /// Exit status 4 when a self-check failed (the numbers are not to be trusted), else 3 when a
 /// result lies outside an acceptance band or a band's quantity was not measured, else 0.
 pub(crate) fn verdict_status(doc: &beadline::report::measure::MeasureDoc) -> ExitCode {

@@ -12,7 +12,9 @@ use args::{Args, Command, Format, OutArgs, PlanFormat};
 use beadline::report::spots::SpotsDoc;
 use beadline::synth::{self, scene::Scene};
 use clap::Parser;
-use commands::{demo, detect, emit, formatted, render_to, verdict_status, write_measure};
+use commands::{
+    demo, detect, emit, formatted, render_to, verdict_status, write_measure, write_report,
+};
 use settings::parse_start;
 use std::process::ExitCode;
 
@@ -159,11 +161,15 @@ fn dispatch(args: Args) -> Result<ExitCode> {
             measure,
             out,
             plot,
+            report,
         } => {
             let d = d.validate()?;
             let settings = measure.validate(&d)?;
             let m = beadline::pipeline::measure_photo(&photo, &settings)?;
             write_measure(&photo, &m, &out, plot.as_deref())?;
+            if let Some(r) = &report {
+                write_report(&photo, &m, &settings, r)?;
+            }
             Ok(verdict_status(&m.doc))
         }
         Command::Plan {

@@ -422,35 +422,62 @@ impl Frame<'_> {
         let p = self.panel;
         let _ = write!(
             svg,
-            r##"<rect x="{l:.1}" y="{t:.1}" width="{w:.1}" height="{h:.1}" fill="none" stroke="#444"/>"##
+            concat!(
+                r##"<rect x="{l:.1}" y="{t:.1}" width="{w:.1}" height="{h:.1}" fill="none""##,
+                r##" stroke="#444"/>"##
+            ),
+            l = l,
+            t = t,
+            w = w,
+            h = h,
         );
         for (v, label) in p.x_ticks.values.iter().zip(p.x_ticks.labels()) {
             let (x, _) = self.px(*v, p.y_ticks.lo);
             let _ = write!(
                 svg,
-                r##"<line x1="{x:.1}" y1="{t:.1}" x2="{x:.1}" y2="{:.1}" stroke="#e4e4e4"/><text x="{x:.1}" y="{:.1}" font-size="11" text-anchor="middle">{label}</text>"##,
+                concat!(
+                    r##"<line x1="{x:.1}" y1="{t:.1}" x2="{x:.1}" y2="{:.1}" stroke="#e4e4e4"/>"##,
+                    r##"<text x="{x:.1}" y="{:.1}" font-size="11" text-anchor="middle">"##,
+                    r##"{label}</text>"##
+                ),
                 t + h,
-                t + h + 15.0
+                t + h + 15.0,
+                x = x,
+                t = t,
+                label = label,
             );
         }
         for (v, label) in p.y_ticks.values.iter().zip(p.y_ticks.labels()) {
             let (_, y) = self.px(p.x_ticks.lo, *v);
             let _ = write!(
                 svg,
-                r##"<line x1="{l:.1}" y1="{y:.1}" x2="{:.1}" y2="{y:.1}" stroke="#e4e4e4"/><text x="{:.1}" y="{:.1}" font-size="11" text-anchor="end">{label}</text>"##,
+                concat!(
+                    r##"<line x1="{l:.1}" y1="{y:.1}" x2="{:.1}" y2="{y:.1}" stroke="#e4e4e4"/>"##,
+                    r##"<text x="{:.1}" y="{:.1}" font-size="11" text-anchor="end">"##,
+                    r##"{label}</text>"##
+                ),
                 l + w,
                 l - 5.0,
-                y + 4.0
+                y + 4.0,
+                l = l,
+                y = y,
+                label = label,
             );
         }
         let (cx, cy) = (l - 62.0, t + h / 2.0);
         let _ = write!(
             svg,
-            r##"<text x="{:.1}" y="{:.1}" font-size="12" text-anchor="middle">{}</text><text x="{cx:.1}" y="{cy:.1}" font-size="12" text-anchor="middle" transform="rotate(-90 {cx:.1} {cy:.1})">{}</text>"##,
+            concat!(
+                r##"<text x="{:.1}" y="{:.1}" font-size="12" text-anchor="middle">{}</text><text"##,
+                r##" x="{cx:.1}" y="{cy:.1}" font-size="12" text-anchor="middle""##,
+                r##" transform="rotate(-90 {cx:.1} {cy:.1})">{}</text>"##
+            ),
             l + w / 2.0,
             t + h + 32.0,
             escape(&p.x_label),
-            escape(&p.y_label)
+            escape(&p.y_label),
+            cx = cx,
+            cy = cy,
         );
     }
 
@@ -475,10 +502,15 @@ impl Frame<'_> {
             let _ = if *line {
                 write!(
                     svg,
-                    r##"<line x1="{x:.1}" y1="{:.1}" x2="{:.1}" y2="{:.1}" stroke="{colour}" stroke-width="2"/>"##,
+                    concat!(
+                        r##"<line x1="{x:.1}" y1="{:.1}" x2="{:.1}" y2="{:.1}" stroke="{colour}""##,
+                        r##" stroke-width="2"/>"##
+                    ),
                     y - 4.0,
                     x + 16.0,
-                    y - 4.0
+                    y - 4.0,
+                    x = x,
+                    colour = colour,
                 )
             } else {
                 write!(
@@ -499,7 +531,14 @@ impl Frame<'_> {
             let (x1, _) = self.px(p.x_ticks.hi, 0.0);
             let _ = write!(
                 svg,
-                r##"<line x1="{x0:.1}" y1="{y0:.1}" x2="{x1:.1}" y2="{y0:.1}" stroke="{GREY}" stroke-dasharray="4,3"/>"##
+                concat!(
+                    r##"<line x1="{x0:.1}" y1="{y0:.1}" x2="{x1:.1}" y2="{y0:.1}""##,
+                    r##" stroke="{GREY}" stroke-dasharray="4,3"/>"##
+                ),
+                x0 = x0,
+                y0 = y0,
+                x1 = x1,
+                GREY = GREY,
             );
         }
         for c in &p.curves {
@@ -542,10 +581,14 @@ impl Frame<'_> {
         if let Some(note) = &p.note {
             let _ = write!(
                 svg,
-                r##"<text x="{:.1}" y="{:.1}" font-size="13" text-anchor="middle" fill="{GREY}">{}</text>"##,
+                concat!(
+                    r##"<text x="{:.1}" y="{:.1}" font-size="13" text-anchor="middle""##,
+                    r##" fill="{GREY}">{}</text>"##
+                ),
                 self.left_px + self.width_px / 2.0,
                 self.top_px + self.height_px / 2.0,
-                escape(note)
+                escape(note),
+                GREY = GREY,
             );
         }
     }
@@ -560,9 +603,16 @@ pub fn svg_of(plan: &Plan) -> String {
             .map(|p| panel_height_px(p) + ABOVE_PX + BELOW_PX)
             .sum::<f64>();
     let mut s = format!(
-        r##"<svg xmlns="http://www.w3.org/2000/svg" width="{WIDTH_PX}" height="{height_px}" viewBox="0 0 {WIDTH_PX} {height_px}" font-family="sans-serif"><rect width="100%" height="100%" fill="white"/><text x="{:.1}" y="24" font-size="16" font-weight="bold" text-anchor="middle">{}</text>"##,
+        concat!(
+            r##"<svg xmlns="http://www.w3.org/2000/svg" width="{WIDTH_PX}" height="{height_px}""##,
+            r##" viewBox="0 0 {WIDTH_PX} {height_px}" font-family="sans-serif"><rect"##,
+            r##" width="100%" height="100%" fill="white"/><text x="{:.1}" y="24" font-size="16""##,
+            r##" font-weight="bold" text-anchor="middle">{}</text>"##
+        ),
         WIDTH_PX / 2.0,
-        escape(&plan.title)
+        escape(&plan.title),
+        WIDTH_PX = WIDTH_PX,
+        height_px = height_px,
     );
     let mut top_px = TITLE_PX;
     for panel in &plan.panels {
