@@ -152,3 +152,53 @@ fn assert_label(c: &Canvas, at: [f64; 3], scale: u32, n: usize, colour: [u8; 3])
         .unwrap();
     assert_eq!(best, 0, "label {text} not drawn as the font draws it");
 }
+
+#[test]
+fn the_path_overlay_numbers_by_flash_and_the_spots_overlay_by_list_place() {
+    use beadline::detect::{SpotOptions, find_spots};
+    use beadline::draw::overlay::{path_overlay, spots_overlay};
+    use beadline::image::load::{LoadOptions, load};
+    use beadline::track::{PathOptions, order_path};
+    let dir = common::tempdir();
+    let (photo, _) = demo_without_flash(dir.path(), 11);
+    let report = find_spots(
+        &load(&photo, &LoadOptions::default()).unwrap(),
+        None,
+        &SpotOptions::default(),
+        None,
+    )
+    .unwrap();
+    let result = order_path(&report.spots, &PathOptions::default());
+    let path = &result.paths[0];
+    assert_eq!(path.missing.len(), 1, "{:?}", path.missing);
+    let scale = label_scale(report.width_px, report.height_px);
+    let out = dir.path().join("path.png");
+    path_overlay(&photo, &report, &result, &out).unwrap();
+    let c = Canvas::open(&out).unwrap();
+    // Canvas::open dims the picture: compare against the dimmed colours.
+    let dim = |c: [u8; 3]| c.map(|v| (v as f32 * 0.75) as u8);
+    // Past the gap the spot list's place and the flash number differ; the label is the flash.
+    let p = path
+        .points
+        .iter()
+        .find(|p| p.n == path.missing[0] + 1)
+        .unwrap();
+    assert_ne!(p.spot_index, p.n, "a flash whose two numbers differ");
+    assert_label(&c, [p.x_px, p.y_px, p.r_px], scale, p.n, dim(YELLOW));
+    let out = dir.path().join("spots.png");
+    spots_overlay(&photo, &report, &out).unwrap();
+    let c = Canvas::open(&out).unwrap();
+    let s = &report.spots[p.spot_index];
+    let [x, y] = label_origin(s.x_px, s.y_px, s.r_px, scale);
+    let mut expected = Canvas::from_luma(
+        c.image.width() as usize,
+        c.image.height() as usize,
+        &vec![0.0; (c.image.width() * c.image.height()) as usize],
+    );
+    expected.text(x, y, &format!("s{}", p.spot_index), scale, dim(YELLOW));
+    for (a, b) in expected.image.pixels().zip(c.image.pixels()) {
+        if a.0 == dim(YELLOW) {
+            assert_eq!(b.0, dim(YELLOW));
+        }
+    }
+}

@@ -208,14 +208,17 @@ pub(crate) fn demo(dir: &Path) -> Result<ExitCode> {
     let json = dir.join("measure.json");
     let overlay = dir.join("overlay.png");
     let plot = dir.join("plot.svg");
+    let report = dir.join("report.html");
     beadline::core::output::write_json(&json, &m.doc)?;
     beadline::draw::overlay::measure_overlay(&photo_path, &m, &overlay)?;
     beadline::core::output::write_text(&plot, &beadline::draw::plot::svg(&m.doc))?;
+    write_report(&photo_path, &m, &settings, &report)?;
     println!(
-        "  measured {}, {}, {}",
+        "  measured {}, {}, {}, {}",
         json.display(),
         overlay.display(),
-        plot.display()
+        plot.display(),
+        report.display()
     );
     println!();
     print!("{}", m.doc.text());

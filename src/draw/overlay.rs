@@ -419,3 +419,52 @@ fn draw_floor_and_bounces(c: &mut Canvas, m: &crate::pipeline::Measured, scale: 
 pub fn measure_overlay(photo: &Path, m: &crate::pipeline::Measured, out: &Path) -> Result<()> {
     measure_canvas(photo, m)?.save(out)
 }
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn point(n: usize, x_px: f64, y_px: f64) -> PathPoint {
+        PathPoint {
+            n,
+            spot_index: n,
+            x_px,
+            y_px,
+            r_px: 10.0,
+            sigma_px: 0.05,
+        }
+    }
+
+    #[test]
+    fn a_missing_flash_outside_every_phase_lies_on_the_line_between_its_neighbours() {
+        // Flashes 2 and 3 missing between images 1 and 4: a third and two thirds of the way.
+        let path = BallPath {
+            points: vec![
+                point(0, 0.0, 0.0),
+                point(1, 30.0, 0.0),
+                point(4, 120.0, 60.0),
+            ],
+            missing: vec![2, 3],
+        };
+        let places = missing_places(&path, &[]);
+        assert_eq!(places.len(), 2);
+        assert!(!places[0].from_physics);
+        assert!((places[0].x_px - 60.0).abs() < 1e-9 && (places[0].y_px - 20.0).abs() < 1e-9);
+        assert!((places[1].x_px - 90.0).abs() < 1e-9 && (places[1].y_px - 40.0).abs() < 1e-9);
+    }
+
+    #[test]
+    fn a_missing_flash_inside_a_phase_is_placed_by_its_motion() {
+        // x = 30 n, y = n^2 (constant acceleration): flash 3 at (90, 9), not on the chord.
+        let path = BallPath {
+            points: [0, 1, 2, 4, 5, 6]
+                .iter()
+                .map(|&n| point(n, 30.0 * n as f64, (n * n) as f64))
+                .collect(),
+            missing: vec![3],
+        };
+        let places = missing_places(&path, &[(0, 6)]);
+        assert!(places[0].from_physics);
+        assert!((places[0].x_px - 90.0).abs() < 1e-6 && (places[0].y_px - 9.0).abs() < 1e-6);
+    }
+}

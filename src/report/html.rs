@@ -192,7 +192,8 @@ pub fn settings_rows(s: &MeasureSettings) -> Vec<(String, String)> {
             "ruler from ({}, {}) to ({}, {}) px, {distance_m} m",
             a_px[0], a_px[1], b_px[0], b_px[1]
         ),
-        Some(other) => format!("{other:?}"),
+        Some(ScaleSource::BallDiameter) => "the ball's diameter (its images' radius)".into(),
+        Some(ScaleSource::Plane(file)) => format!("plane file {}", file.display()),
     };
     let bands: Vec<String> = s
         .physics
