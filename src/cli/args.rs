@@ -64,9 +64,14 @@ pub(crate) enum Command {
         measure: Box<MeasureArgs>,
         #[command(flatten)]
         out: OutArgs,
-        /// Write plots (height against time, restitution against impact speed) as SVG.
+        /// Write plots (height against time, restitution against impact speed, each with its
+        /// residuals) as SVG.
         #[arg(long, value_name = "SVG", value_parser = svg_path)]
         plot: Option<PathBuf>,
+        /// Write a self-contained HTML report (summary, pictures, self-checks, settings, every
+        /// number) to FILE; its folder must exist.
+        #[arg(long, value_name = "HTML", value_parser = html_path)]
+        report: Option<PathBuf>,
     },
     /// Plan a shot: flash rate, number of flashes, exposure and delay, before taking the photo.
     #[command(after_help = PLAN_HELP)]
@@ -182,6 +187,9 @@ pub(crate) struct RigArgs {
     /// Write an overlay per photo into DIR (NAME.overlay.png).
     #[arg(long, value_name = "DIR")]
     pub(crate) overlay_dir: Option<PathBuf>,
+    /// Write an HTML report per photo into DIR (NAME.report.html); DIR must exist.
+    #[arg(long, value_name = "DIR")]
+    pub(crate) report_dir: Option<PathBuf>,
     /// Watch DIR and measure each new photo once it is completely written.
     #[arg(long, value_name = "DIR")]
     pub(crate) watch: Option<PathBuf>,
@@ -259,6 +267,29 @@ pub(crate) fn png_path(s: &str) -> std::result::Result<PathBuf, String> {
 /// See [`typed_path`].
 pub(crate) fn svg_path(s: &str) -> std::result::Result<PathBuf, String> {
     typed_path(s, "svg")
+}
+
+/// An HTML report's path: named .html or .htm, in a folder that exists (refused before any work).
+pub(crate) fn html_path(s: &str) -> std::result::Result<PathBuf, String> {
+    let p = PathBuf::from(s);
+    if !matches!(
+        p.extension()
+            .and_then(|e| e.to_str())
+            .map(str::to_ascii_lowercase)
+            .as_deref(),
+        Some("html" | "htm")
+    ) {
+        return Err(format!(
+            "'{s}': the report is HTML, so its name must end in .html"
+        ));
+    }
+    match p.parent().filter(|f| !f.as_os_str().is_empty()) {
+        Some(folder) if !folder.is_dir() => Err(format!(
+            "'{s}': the folder {} does not exist",
+            folder.display()
+        )),
+        _ => Ok(p),
+    }
 }
 
 /// Where and how results go.
