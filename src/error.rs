@@ -180,14 +180,24 @@ impl Error {
 
     /// A TOML file that does not parse or does not fit its layout: the file, then the line, the
     /// column and the key (`section.key`, from the text at the error's position) before the
-    /// parser's message.
+    /// parser's message. A missing required key is named in full (`strobe.exposure_s`) with the
+    /// place of the section that lacks it; a missing top-level section has no place.
     pub fn toml(path: &Path, text: &str, e: &toml::de::Error) -> Self {
+        if let Some((key, span)) = missing_key(text, e) {
+            let message = if span.is_empty() {
+                format!("the required key `{key}` is missing (it has no default)")
+            } else {
+                let (line, column) = line_column(text, span.start);
+                format!(
+                    "line {line}, column {column}: the required key `{key}` is missing from the \
+                     section that starts here (it has no default)"
+                )
+            };
+            return Error::config(path, message);
+        }
         let mut place = String::new();
         if let Some(span) = e.span() {
-            let start = span.start.min(text.len());
-            let before = &text[..start];
-            let line = before.matches('\n').count() + 1;
-            let column = before.len() - before.rfind('\n').map_or(0, |i| i + 1) + 1;
+            let (line, column) = line_column(text, span.start);
             place = format!("line {line}, column {column}");
             if let Some(key) = toml_key_at(text, line) {
                 place.push_str(&format!(", key {key}"));
@@ -244,6 +254,46 @@ pub(crate) fn positive(v: f64, name: &str) -> Result<()> {
 
 /// Result type of the library.
 pub type Result<T> = std::result::Result<T, Error>;
+
+/// The 1-based line and column of byte `offset` of `text`.
+fn line_column(text: &str, offset: usize) -> (usize, usize) {
+    let before = &text[..offset.min(text.len())];
+    let line = before.matches('\n').count() + 1;
+    (
+        line,
+        before.len() - before.rfind('\n').map_or(0, |i| i + 1) + 1,
+    )
+}
+
+/// For a "missing field" error: the missing key with its section (`camera.origin_x_px`) and the
+/// span the parser gave (empty for a key missing at the top level). None for other errors, or
+/// when the section cannot be read off the text.
+fn missing_key(text: &str, e: &toml::de::Error) -> Option<(String, std::ops::Range<usize>)> {
+    let field = e
+        .message()
+        .trim()
+        .strip_prefix("missing field `")?
+        .strip_suffix('`')?;
+    let span = e.span()?;
+    if span.is_empty() {
+        return Some((field.to_string(), span));
+    }
+    let (start, end) = (span.start.min(text.len()), span.end.min(text.len()));
+    let line_start = text[..start].rfind('\n').map_or(0, |i| i + 1);
+    let head = text.get(line_start..end)?.trim();
+    let section = if head.starts_with('[') {
+        // `[camera]`, `[[distractors]]`, or the `a` of `[a.b]` (a section made by a sub-section).
+        head.trim_matches(|c| c == '[' || c == ']')
+            .trim()
+            .to_string()
+    } else if text.get(start..end)?.starts_with('{') {
+        // An inline table: the key it is written to.
+        toml_key_at(text, line_column(text, start).0)?
+    } else {
+        return None;
+    };
+    Some((format!("{section}.{field}"), span))
+}
 
 /// The key written on `line` (1-based) of a TOML text, with the table it sits in
 /// (`ball.markings`); None when that line holds no `key =`.
