@@ -202,3 +202,52 @@ fn the_path_overlay_numbers_by_flash_and_the_spots_overlay_by_list_place() {
         }
     }
 }
+
+#[test]
+fn a_bounce_label_sits_under_its_cross_clear_of_the_cross_arm() {
+    use beadline::draw::overlay::{BOUNCE_CROSS_PX, bounce_label, bounce_label_origin};
+    let dir = common::tempdir();
+    let photo = dir.path().join("small.png");
+    render_to(&small_scene(), &photo);
+    let m = measure_photo(&photo, &ball_settings(25.0, 0.04)).unwrap();
+    let c = measure_canvas(&photo, &m).unwrap();
+    let doc = &m.doc;
+    let scale = label_scale(doc.width_px, doc.height_px);
+    let (w, h) = (c.image.width() as usize, c.image.height() as usize);
+    assert!(
+        !doc.measurement.bounces.is_empty(),
+        "the small demo bounces"
+    );
+    for b in &doc.measurement.bounces {
+        let p = m.calibration.to_pixel(b.x_m, doc.measurement.floor.y_m);
+        let label = bounce_label(b.restitution);
+        let [x, y] = bounce_label_origin(p, &label, scale);
+        // Centred under the cross, below the end of its vertical arm.
+        assert!(
+            y > p[1] + BOUNCE_CROSS_PX,
+            "label top {y} on the cross arm at {}",
+            p[1]
+        );
+        let width = (4 * label.len() as u32 - 1) * scale;
+        assert!(
+            (x + width as f64 / 2.0 - p[0]).abs() <= 1.0,
+            "label not centred"
+        );
+        // Inside the label's box, yellow exactly where the font puts a glyph pixel.
+        let mut expected = Canvas::from_luma(w, h, &vec![0.0; w * h]);
+        expected.text(x, y, &label, scale, YELLOW);
+        let (x0, y0) = (x.round() as u32, y.round() as u32);
+        let mut wrong = 0;
+        for yy in y0..y0 + 5 * scale {
+            for xx in x0..x0 + width {
+                let drawn = c.image.get_pixel(xx, yy).0 == YELLOW;
+                let glyph = expected.image.get_pixel(xx, yy).0 == YELLOW;
+                wrong += (drawn != glyph) as usize;
+            }
+        }
+        assert_eq!(
+            wrong, 0,
+            "{label}: {wrong} pixels of the label box not the font's"
+        );
+    }
+}

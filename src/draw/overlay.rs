@@ -404,15 +404,27 @@ fn draw_floor_and_bounces(c: &mut Canvas, m: &crate::pipeline::Measured, scale: 
     }
     for b in &doc.measurement.bounces {
         let p = m.calibration.to_pixel(b.x_m, floor);
-        c.cross(p[0], p[1], 6.0, YELLOW);
-        c.text(
-            p[0] - 12.0 * scale as f64,
-            p[1] + 4.0,
-            &format!("e={:.3}", b.restitution),
-            scale,
-            YELLOW,
-        );
+        c.cross(p[0], p[1], BOUNCE_CROSS_PX, YELLOW);
+        let label = bounce_label(b.restitution);
+        let [x, y] = bounce_label_origin(p, &label, scale);
+        c.text(x, y, &label, scale, YELLOW);
     }
+}
+
+/// Half the size of the cross at a bounce's contact, pixels.
+pub const BOUNCE_CROSS_PX: f64 = 6.0;
+
+/// The label of a bounce on the overlay: its restitution.
+pub fn bounce_label(restitution: f64) -> String {
+    format!("e={restitution:.3}")
+}
+
+/// Top-left corner of a bounce's label: centred under the cross at the contact `p` (pixels),
+/// clear of its arm (the arm ran through the label's digits).
+pub fn bounce_label_origin(p: [f64; 2], label: &str, scale: u32) -> [f64; 2] {
+    let s = scale.max(1) as f64;
+    let width_px = (4.0 * label.chars().count() as f64 - 1.0) * s;
+    [p[0] - 0.5 * width_px, p[1] + BOUNCE_CROSS_PX + 2.0 * s]
 }
 
 /// [`measure_canvas`] written as PNG to `out`, atomically.
