@@ -108,6 +108,32 @@ fn the_svg_shows_the_title_every_tick_label_legend_and_axis_label() {
         }
         assert!(texts.contains(&p.x_label) && texts.contains(&p.y_label));
     }
-    assert!(texts.iter().any(|t| t == "height, m"));
+    assert!(texts.iter().any(|t| t == "ball centre height, m"));
     assert!(texts.iter().any(|t| t == "impact speed (normal), m/s"));
+}
+
+#[test]
+fn two_bounces_residuals_say_they_are_zero_by_design() {
+    let mut doc = measured_small_demo();
+    doc.measurement.bounces.truncate(2);
+    doc.measurement
+        .restitution_trend
+        .as_mut()
+        .expect("a trend")
+        .bounces = 2;
+    let p = plan(&doc);
+    let residuals = p.panels.last().unwrap();
+    let note = residuals
+        .note
+        .clone()
+        .expect("a note on the 2-bounce residuals");
+    assert!(
+        note.contains("2 bounces") && note.contains("by design"),
+        "{note}"
+    );
+    assert!(svg_texts(&svg_of(&p)).contains(&note), "note not drawn");
+    // Three bounces or more: the residuals tell of the fit, no note.
+    let mut doc3 = doc.clone();
+    doc3.measurement.restitution_trend.as_mut().unwrap().bounces = 3;
+    assert!(plan(&doc3).panels.last().unwrap().note.is_none());
 }

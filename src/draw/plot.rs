@@ -292,7 +292,7 @@ fn height_panels(doc: &MeasureDoc) -> [Panel; 2] {
     let height = Panel {
         title: "Height against time".into(),
         x_label: "time since the first image, s".into(),
-        y_label: "height, m".into(),
+        y_label: "ball centre height, m".into(),
         x_ticks: ticks_for(marks.iter().map(|m| m.x), 8),
         y_ticks: ticks_for(marks.iter().map(|m| m.y), 5),
         residuals: false,
@@ -381,8 +381,21 @@ fn restitution_panels(doc: &MeasureDoc) -> [Panel; 2] {
     } else {
         ("residual", "restitution minus the mean")
     };
-    let residuals = residual_panel(&panel, label, residual_marks, words);
+    let mut residuals = residual_panel(&panel, label, residual_marks, words);
+    residuals.note = residual_note(trend.map(|t| t.bounces), bounces.len());
     [panel, residuals]
+}
+
+/// Why the restitution residuals say nothing of the fit, when they cannot: a straight line
+/// through two bounces (or the mean of one) meets them exactly.
+fn residual_note(trend_bounces: Option<usize>, bounces: usize) -> Option<String> {
+    match (trend_bounces, bounces) {
+        (Some(2), _) => {
+            Some("2 bounces: the line passes through both, residuals 0 by design".into())
+        }
+        (None, 1) => Some("1 bounce: it is its own mean, residual 0 by design".into()),
+        _ => None,
+    }
 }
 
 /// The figure's panels and the ticks chosen for them.
@@ -586,7 +599,8 @@ impl Frame<'_> {
                     r##" fill="{GREY}">{}</text>"##
                 ),
                 self.left_px + self.width_px / 2.0,
-                self.top_px + self.height_px / 2.0,
+                // A residual panel's note above its zero line and the marks on it.
+                self.top_px + self.height_px * if p.residuals { 0.3 } else { 0.5 },
                 escape(note),
                 GREY = GREY,
             );
