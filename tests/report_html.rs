@@ -207,6 +207,15 @@ fn the_measure_report_is_self_contained_well_formed_and_holds_every_number() {
         Some(beadline::report::SCHEMA_VERSION.to_string())
     );
     assert_eq!(row("flash rate, Hz").as_deref(), Some("25"));
+    // The settings in words, not the program's inner names: no `Name { .. }` dump.
+    assert_eq!(row("spot options").as_deref(), Some("the defaults"));
+    assert_eq!(row("ball build").as_deref(), Some("solid"));
+    assert_eq!(row("drag fitted").as_deref(), Some("no"));
+    let level = row("camera level").unwrap();
+    assert!(level.contains("roll is estimated"), "{level}");
+    for r in page.rows.iter().filter(|r| r.len() == 2) {
+        assert!(!r[1].contains(" { "), "{r:?}");
+    }
     // Print rules are there.
     assert!(html.contains("@media print"));
 }
@@ -289,4 +298,19 @@ fn the_rig_writes_one_report_per_photo_named_after_it() {
     let page = parse(&read(&d.join("reports/a&b.report.html")));
     assert!(page.texts.iter().any(|t| t == "Beadline report: a&b.png"));
     assert_eq!(assert_pictures(&page), 1);
+}
+
+#[test]
+fn spot_options_in_the_report_name_only_what_differs_from_the_defaults() {
+    use beadline::detect::SpotOptions;
+    use beadline::report::html::spot_options_words;
+    let mut spots = SpotOptions::default();
+    assert_eq!(spot_options_words(&spots), "the defaults");
+    spots.threshold.k_sigma = 6.0;
+    spots.min_score = 0.5;
+    let words = spot_options_words(&spots);
+    assert_eq!(
+        words,
+        "the defaults but threshold.k_sigma = 6.0, min_score = 0.5"
+    );
 }

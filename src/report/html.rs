@@ -9,7 +9,9 @@
 //! schema) and every number of the measure JSON, each written by [`number_text`]. All text is
 //! escaped ([`escape`]), file names included.
 
+use crate::core::ball::Build;
 use crate::core::markup::escape;
+use crate::detect::SpotOptions;
 use crate::error::Result;
 use crate::physics::checks::CheckOutcome;
 use crate::pipeline::{MeasureSettings, ScaleSource};
@@ -216,16 +218,105 @@ pub fn settings_rows(s: &MeasureSettings) -> Vec<(String, String)> {
             "gravity, m/s^2".into(),
             format!("{} ({})", s.physics.gravity.value, s.physics.gravity.source),
         ),
-        ("ball build".into(), format!("{:?}", s.physics.build)),
-        ("camera level".into(), s.physics.camera_level.to_string()),
-        ("drag fitted".into(), s.physics.fit_drag.to_string()),
+        ("ball build".into(), build_name(s.physics.build).into()),
+        (
+            "camera level".into(),
+            if s.physics.camera_level {
+                "yes (--level): its roll is not estimated"
+            } else {
+                "not given: its roll is estimated from the path"
+            }
+            .into(),
+        ),
+        (
+            "drag fitted".into(),
+            if s.physics.fit_drag {
+                "yes (--fit-drag)"
+            } else {
+                "no"
+            }
+            .into(),
+        ),
         ("acceptance bands".into(), bands.join(", ")),
         (
             "clean plate".into(),
             or_none(s.plate.as_ref().map(|p| p.display().to_string())),
         ),
-        ("spot options".into(), format!("{:?}", s.spots)),
+        ("spot options".into(), spot_options_words(&s.spots)),
     ]
+}
+
+/// A ball build as the command line spells it.
+fn build_name(build: Build) -> &'static str {
+    match build {
+        Build::Solid => "solid",
+        Build::Shell => "shell",
+        Build::Thick => "thick",
+    }
+}
+
+/// The spot-finding settings that differ from the defaults, as `group.name = value`; "the
+/// defaults" when none does (the full list is a wall of internal names).
+pub fn spot_options_words(spots: &SpotOptions) -> String {
+    let given = debug_fields(&format!("{spots:?}"));
+    let defaults = debug_fields(&format!("{:?}", SpotOptions::default()));
+    let changed: Vec<String> = given
+        .iter()
+        .filter(|kv| !defaults.contains(kv))
+        .map(|(k, v)| format!("{k} = {v}"))
+        .collect();
+    if changed.is_empty() {
+        "the defaults".into()
+    } else {
+        format!("the defaults but {}", changed.join(", "))
+    }
+}
+
+/// The fields of a struct's `{:?}` text as (`outer.inner` name, value) pairs, nested structs
+/// flattened.
+fn debug_fields(text: &str) -> Vec<(String, String)> {
+    let mut out = Vec::new();
+    if let Some(body) = struct_body(text) {
+        flatten_fields(body, "", &mut out);
+    }
+    out
+}
+
+/// The text between a `Name { ` and its closing ` }`; None when `text` is not a struct.
+fn struct_body(text: &str) -> Option<&str> {
+    let (name, rest) = text.trim().split_once(" { ")?;
+    if name.is_empty() || !name.chars().all(|c| c.is_alphanumeric() || c == '_') {
+        return None;
+    }
+    rest.strip_suffix(" }")
+}
+
+fn flatten_fields(body: &str, prefix: &str, out: &mut Vec<(String, String)>) {
+    let (mut depth, mut start) = (0i32, 0usize);
+    let bytes = body.as_bytes();
+    let mut parts = Vec::new();
+    for (i, &b) in bytes.iter().enumerate() {
+        match b {
+            b'{' | b'(' | b'[' => depth += 1,
+            b'}' | b')' | b']' => depth -= 1,
+            b',' if depth == 0 => {
+                parts.push(&body[start..i]);
+                start = i + 1;
+            }
+            _ => {}
+        }
+    }
+    parts.push(&body[start..]);
+    for part in parts {
+        let Some((name, value)) = part.trim().split_once(": ") else {
+            continue;
+        };
+        let key = format!("{prefix}{name}");
+        match struct_body(value) {
+            Some(inner) => flatten_fields(inner, &format!("{key}."), out),
+            None => out.push((key, value.trim().to_string())),
+        }
+    }
 }
 
 /// One line on whether the numbers can be trusted.
