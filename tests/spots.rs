@@ -877,7 +877,12 @@ fill = 0.05
     let dir = common::tempdir();
     let (report, truth, _) = detect(&scene, dir.path(), "side_lit.png");
     let s = score(&report, &truth);
-    assert_eq!((s.found, s.false_spots), (s.expected, 0), "{:?}", report.rejected);
+    assert_eq!(
+        (s.found, s.false_spots),
+        (s.expected, 0),
+        "{:?}",
+        report.rejected
+    );
     let faint = report
         .rejected
         .iter()
@@ -885,4 +890,31 @@ fill = 0.05
         .count();
     assert_eq!(faint, 0, "{:?}", report.rejected);
     assert!(s.isolated_rms_px < 0.1, "{}", s.isolated_rms_px);
+}
+
+#[test]
+fn the_spots_text_gives_the_noise_and_group_places_with_their_units() {
+    let dir = common::tempdir();
+    common::render_to(&common::small_scene(), &dir.path().join("small.png"));
+    let out = common::beadline(&["spots", "small.png"], dir.path());
+    assert!(
+        out.status.success(),
+        "{}",
+        String::from_utf8_lossy(&out.stderr)
+    );
+    let text = String::from_utf8_lossy(&out.stdout);
+    let first = text.lines().next().unwrap();
+    assert!(
+        first.contains("background noise 0.") && first.ends_with("of full scale)"),
+        "{first}"
+    );
+    // The demo's ball rolls slowly at the top of its incline: its first images touch.
+    let group = text
+        .lines()
+        .find(|l| l.starts_with("group at"))
+        .expect("a group");
+    assert!(
+        group.starts_with("group at x ") && group.contains(" px: spots "),
+        "{group}"
+    );
 }

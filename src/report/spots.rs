@@ -130,7 +130,7 @@ impl SpotsDoc {
             s += &format!(", radius {r:.2} px");
         }
         s += &format!(
-            ", {} rejected ({} ball, noise {:.4})\n",
+            ", {} rejected ({} ball, background noise {:.4} of full scale)\n",
             self.rejected.len(),
             crate::core::words::name(&self.settings.polarity),
             self.settings.noise_sigma
@@ -178,7 +178,7 @@ impl SpotsDoc {
                 (None, _) => "light not counted (no isolated image to compare with)".into(),
             };
             s += &format!(
-                "group at {:.1}, {:.1}: spots {spots}; {held}\n",
+                "group at x {:.1}, y {:.1} px: spots {spots}; {held}\n",
                 g.x_px, g.y_px
             );
         }
