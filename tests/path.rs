@@ -423,3 +423,25 @@ fn two_balls_give_two_paths() {
     };
     assert_truth_order(&rest, &second);
 }
+
+#[test]
+fn the_path_text_counts_missing_flashes_in_words_as_measure_does() {
+    use beadline::report::path::missing_words;
+    assert_eq!(missing_words(&[]), "0 flashes missing");
+    assert_eq!(missing_words(&[4]), "1 flash missing (n 4)");
+    assert_eq!(missing_words(&[4, 7]), "2 flashes missing (n 4, 7)");
+    let dir = common::tempdir();
+    common::render_to(&common::small_scene(), &dir.path().join("small.png"));
+    let out = common::beadline(&["path", "small.png"], dir.path());
+    assert!(
+        out.status.success(),
+        "{}",
+        String::from_utf8_lossy(&out.stderr)
+    );
+    let text = String::from_utf8_lossy(&out.stdout);
+    let first = text.lines().next().unwrap();
+    assert!(
+        first.contains(", 0 flashes missing, ") && !first.contains('['),
+        "{first}"
+    );
+}

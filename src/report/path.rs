@@ -40,10 +40,10 @@ impl PathDoc {
     /// Text for a person.
     pub fn text(&self) -> String {
         let mut s = format!(
-            "{}: path of {}, missing flashes {:?}, {}, {}\n",
+            "{}: path of {}, {}, {}, {}\n",
             self.file,
             count(self.path.len(), "image", "images"),
-            self.missing,
+            missing_words(&self.missing),
             count(self.other_paths.len(), "other path", "other paths"),
             count(self.strays.len(), "stray", "strays")
         );
@@ -69,4 +69,15 @@ impl PathDoc {
     pub fn csv(&self) -> std::io::Result<String> {
         csv_rows(&self.path)
     }
+}
+
+/// The missing flashes in words, as `measure` counts them: "0 flashes missing", or
+/// "2 flashes missing (n 4, 7)".
+pub fn missing_words(missing: &[usize]) -> String {
+    let counted = count(missing.len(), "flash missing", "flashes missing");
+    if missing.is_empty() {
+        return counted;
+    }
+    let list: Vec<String> = missing.iter().map(|n| n.to_string()).collect();
+    format!("{counted} (n {})", list.join(", "))
 }
