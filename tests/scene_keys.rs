@@ -99,3 +99,41 @@ fn a_missing_section_or_a_key_of_a_list_or_inline_section_is_named() {
     let err = refusal(&format!("strobe = {{ rate_hz = 20.0 }}\n{without_strobe}"));
     assert!(err.contains("`strobe.exposure_s`"), "{err}");
 }
+
+#[test]
+fn every_key_of_the_minimal_scenes_is_required_and_listed_in_the_readme_and_help() {
+    let readme = include_str!("../README.md");
+    let out = common_help();
+    for text in [MINIMAL_DROP, MINIMAL_INCLINE] {
+        let mut section = "";
+        for line in text.lines() {
+            if line.starts_with('[') {
+                section = line.trim_matches(|c| c == '[' || c == ']');
+                continue;
+            }
+            let Some((key, _)) = line.split_once(" = ") else {
+                continue;
+            };
+            let err = refusal(&text.replace(&format!("{line}\n"), ""));
+            assert!(err.contains(&format!("`{section}.{key}`")), "{err}");
+            let row = readme
+                .lines()
+                .find(|l| l.starts_with("| ") && l.contains(&format!("`[{section}]`")))
+                .unwrap_or_else(|| panic!("no README row for [{section}]"));
+            assert!(
+                row.contains(&format!("`{key}`")),
+                "README row {row} lacks {key}"
+            );
+            assert!(out.contains(key), "render --help lacks {key}");
+        }
+    }
+}
+
+/// `beadline render --help`.
+fn common_help() -> String {
+    let out = std::process::Command::new(env!("CARGO_BIN_EXE_beadline"))
+        .args(["render", "--help"])
+        .output()
+        .unwrap();
+    String::from_utf8_lossy(&out.stdout).into_owned()
+}
