@@ -211,6 +211,18 @@ fn the_measure_report_is_self_contained_well_formed_and_holds_every_number() {
     assert_eq!(row("spot options").as_deref(), Some("the defaults"));
     assert_eq!(row("ball build").as_deref(), Some("solid"));
     assert_eq!(row("drag fitted").as_deref(), Some("no"));
+    // The overlay's caption names each colour the overlay draws.
+    let caption = page
+        .texts
+        .iter()
+        .find(|t| t.starts_with("The photo with what was found"))
+        .expect("the overlay's caption");
+    for colour in ["green", "yellow", "blue", "magenta", "red"] {
+        assert!(
+            caption.contains(colour),
+            "caption lacks {colour}: {caption}"
+        );
+    }
     let level = row("camera level").unwrap();
     assert!(level.contains("roll is estimated"), "{level}");
     for r in page.rows.iter().filter(|r| r.len() == 2) {

@@ -360,9 +360,11 @@ fn pictures_html(html: &mut String, name: &str, pictures: &Pictures) {
             html,
             concat!(
                 r#"<figure><img src="data:image/png;base64,{}" alt="overlay of {}"/>"#,
-                "<figcaption>The photo with what was found: images numbered by flash (green), ",
-                "missing flashes (dashed), strays (red circles), rejected candidates (red x), ",
-                "the floor and each bounce's restitution.</figcaption></figure>"
+                "<figcaption>The photo with what was found: the path's images ringed in green ",
+                "and numbered by flash in yellow, joined in time order by a light-blue line; missing ",
+                "flashes as dashed magenta rings with their numbers; strays in red circles; ",
+                "rejected candidates as red x marks; the floor as a yellow line, with a + ",
+                "at each bounce's contact and its restitution e under it.</figcaption></figure>"
             ),
             STANDARD.encode(png),
             escape(name)
