@@ -102,9 +102,10 @@ pub(crate) enum Command {
 
 /// Help shown after the render options.
 pub(crate) const RENDER_HELP: &str = "\
-A scene to start from: the scene.toml that `beadline demo` writes. The keys without a default: [ball] diameter_m; [strobe] rate_hz, exposure_s; [camera]
-px_per_m, width_px, height_px, origin_x_px, origin_y_px; and [incline] length_m, angle_deg,
-bottom_height_m or [start] x_m, y_m (the README's scene section describes every key).
+A scene to start from: the scene.toml that `beadline demo` writes. The keys without a
+default: [ball] diameter_m; [strobe] rate_hz, exposure_s; [camera] px_per_m, width_px,
+height_px, origin_x_px, origin_y_px; and [incline] length_m, angle_deg, bottom_height_m or
+[start] x_m, y_m (the README's scene section describes every key).
 
 Examples:
   beadline render scene.toml --out photo.png --truth truth.json
