@@ -218,7 +218,16 @@ fn text_outputs_name_values_as_the_json_does() {
     ];
     let out = beadline(&args, dir.path());
     let text = String::from_utf8_lossy(&out.stdout);
-    assert!(text.contains("band restitution 0.1..0.2: fail"), "{text}");
+    // The verdict shows each bounce's value with its sigma and its own outcome.
+    let verdict = text
+        .lines()
+        .find(|l| l.contains("restitution band 0.1..0.2: fail — bounce 1 "))
+        .unwrap_or_else(|| panic!("no verdict line in {text}"));
+    assert!(
+        verdict.contains(" ± ") && verdict.contains("bounce 2 "),
+        "{verdict}"
+    );
+    assert!(verdict.ends_with(" fail"), "{verdict}");
     let out = beadline(&["spots", photo], dir.path());
     let text = String::from_utf8_lossy(&out.stdout);
     assert!(text.contains("(bright ball"), "{text}");

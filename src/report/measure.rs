@@ -315,14 +315,7 @@ impl MeasureDoc {
             s += &format!("  spin note      {note}\n");
         }
         for v in &m.verdicts {
-            s += &format!(
-                "  band {} {}..{}: {} {}\n",
-                v.band.quantity,
-                v.band.min,
-                v.band.max,
-                crate::core::words::name(&v.outcome),
-                v.note
-            );
+            s += &format!("  {}\n", v.text());
         }
         s + &checks_text(&m.checks)
     }
