@@ -243,3 +243,51 @@ fn text_outputs_name_values_as_the_json_does() {
         assert!(!text.contains(rust), "{rust} in {text}");
     }
 }
+
+/// The decimals of a number's text ("0.0120" has 4, "12" and "1.2e3" none counted here).
+fn decimals(number: &str) -> Option<usize> {
+    let (_, fraction) = number.split_once('.')?;
+    Some(fraction.len())
+}
+
+#[test]
+fn the_demo_prints_each_value_with_the_digits_its_sigma_warrants() {
+    let dir = common::tempdir();
+    let out = beadline(&["demo", "--dir", "d"], dir.path());
+    assert!(out.status.success(), "{out:?}");
+    let text = String::from_utf8_lossy(&out.stdout);
+    for line in text.lines() {
+        assert_eq!(line, line.trim_end(), "trailing space in {line:?}");
+        for bad in ["NaN", "inf", "+-"] {
+            assert!(!line.contains(bad), "{bad} in {line:?}");
+        }
+        for word in line.split_whitespace() {
+            let negative_zero = word
+                .trim_end_matches([',', ')'])
+                .strip_prefix('-')
+                .is_some_and(|rest| !rest.is_empty() && rest.chars().all(|c| "0.".contains(c)));
+            assert!(!negative_zero, "negative zero {word:?} in {line:?}");
+        }
+    }
+    // Every "value ± sigma" in fixed notation: the sigma has two significant digits and the
+    // value its decimal place.
+    let mut pairs = 0;
+    for line in text.lines() {
+        let words: Vec<&str> = line.split_whitespace().collect();
+        for w in words.windows(3).filter(|w| w[1] == "±") {
+            let (value, sigma) = (w[0], w[2].trim_end_matches(','));
+            if sigma.contains('e') {
+                continue;
+            }
+            let digits = sigma.trim_start_matches(['0', '.']).replace('.', "");
+            assert_eq!(digits.len(), 2, "{sigma:?} in {line:?}");
+            assert_eq!(
+                decimals(value),
+                decimals(sigma),
+                "{value} ± {sigma} in {line:?}"
+            );
+            pairs += 1;
+        }
+    }
+    assert!(pairs >= 8, "{pairs} values with a sigma in {text}");
+}

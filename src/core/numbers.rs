@@ -9,7 +9,7 @@
 /// Magnitudes at or above this are written in scientific notation.
 const SCIENTIFIC_ABOVE: f64 = 1e6;
 /// Non-zero magnitudes below this are written in scientific notation.
-const SCIENTIFIC_BELOW: f64 = 1e-3;
+const SCIENTIFIC_BELOW: f64 = 1e-4;
 /// Significant digits of a value written without an uncertainty.
 const EXACT_DIGITS: i32 = 6;
 

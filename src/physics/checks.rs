@@ -56,6 +56,7 @@ pub fn worst(checks: &[Check]) -> CheckOutcome {
 }
 
 use super::{ArcResult, Measurement, PhaseKind, Unknown};
+use crate::core::numbers::measured;
 
 /// Reduced chi-square above which a fit fails outright: residuals five times the centre sigmas
 /// (common practice, no source: a point from another phase or a wrong image, not noise).
@@ -362,7 +363,8 @@ fn gravity_check(g: f64, sigma: f64) -> Check {
             GRAVITY_LOOSE * 100.0
         ),
         format!(
-            "gravity estimated from the arcs: {g:.4} +- {sigma:.4} m/s^2{}",
+            "gravity estimated from the arcs: {}{}",
+            measured(g, sigma, "m/s^2"),
             match outcome {
                 CheckOutcome::Warn => advice(
                     outcome,
@@ -487,11 +489,9 @@ fn vacuum_agreement(k: usize, b: &super::bounce::Bounce, fit_drag: bool) -> Chec
             "apex and flight-time estimates within {WARN_Z} sigma or {RESTITUTION_TOLERANCE} of e"
         ),
         format!(
-            "bounce {}: e = {:.4} +- {:.4} from velocities, {} from apex heights, {} from \
-             flight times{}",
+            "bounce {}: e = {} from velocities, {} from apex heights, {} from flight times{}",
             k + 1,
-            b.restitution,
-            b.restitution_sigma,
+            measured(b.restitution, b.restitution_sigma, ""),
             show(b.restitution_from_apex),
             show(b.restitution_from_flight_times),
             advice(
@@ -637,11 +637,9 @@ fn contact_check(k: usize, b: &super::bounce::Bounce, dt: f64) -> Check {
         b.contact_gap_s / dt,
         "|gap| <= 3 sigma + 0.1 flash interval".into(),
         format!(
-            "bounce {}: the arcs reach and leave the contact level {:.2} +- {:.2} flash \
-             intervals apart{}",
+            "bounce {}: the arcs reach and leave the contact level {} flash intervals apart{}",
             k + 1,
-            b.contact_gap_s / dt,
-            b.contact_gap_sigma_s / dt,
+            measured(b.contact_gap_s / dt, b.contact_gap_sigma_s / dt, ""),
             advice(
                 outcome,
                 "a flash may be missing or miscounted at this bounce"
