@@ -129,6 +129,12 @@ Examples:
 
 /// Help shown after the plan options.
 pub(crate) const PLAN_HELP: &str = "\
+Exit status:
+  0  the plan meets every wish
+  1  error, or no setting gives a photo that measure resolves (the reason on standard error)
+  3  no setting meets every wish: the closest plan is given, and standard error names each
+     wish to relax and how far
+
 Examples:
   beadline plan scene.toml
   beadline plan scene.toml --preview planned.png --format json";
