@@ -291,3 +291,54 @@ fn the_demo_prints_each_value_with_the_digits_its_sigma_warrants() {
     }
     assert!(pairs >= 8, "{pairs} values with a sigma in {text}");
 }
+
+#[test]
+fn edge_systematic_does_what_its_help_and_the_readme_say() {
+    // The help once said "pixels x radius" and the README "K x max(1/r, 16/r^2)": both now give
+    // the formula the detector uses, checked here on the spots JSON (no shaded fit).
+    let formula = "K x max(1/r, 16/r^2) px";
+    let dir = common::tempdir();
+    let help = beadline(&["spots", "--help"], dir.path());
+    let help = String::from_utf8_lossy(&help.stdout)
+        .split_whitespace()
+        .collect::<Vec<_>>()
+        .join(" ");
+    assert!(help.contains("--edge-systematic <K> K: "), "{help}");
+    assert!(help.contains(formula), "{help}");
+    let readme =
+        std::fs::read_to_string(concat!(env!("CARGO_MANIFEST_DIR"), "/README.md")).unwrap();
+    let row = readme
+        .lines()
+        .find(|l| l.starts_with("| `--edge-systematic K`"))
+        .expect("a README row");
+    assert!(row.contains(formula), "{row}");
+    let (photo, _) = common::shoot(
+        &beadline::synth::scene::Scene::demo(),
+        dir.path(),
+        "demo.png",
+    );
+    let photo = photo.to_str().unwrap();
+    for k in [0.5, 2.0] {
+        let k_text = k.to_string();
+        let args = [
+            "spots",
+            photo,
+            "--format",
+            "json",
+            "--shaded-max-r",
+            "0",
+            "--edge-systematic",
+            &k_text,
+        ];
+        let out = beadline(&args, dir.path());
+        assert!(out.status.success(), "{out:?}");
+        let doc: serde_json::Value = serde_json::from_slice(&out.stdout).unwrap();
+        let r = doc["common_radius_px"].as_f64().unwrap();
+        let expected = k * (1.0 / r).max(16.0 / (r * r));
+        let got = doc["systematic_px"].as_f64().unwrap();
+        assert!(
+            (got - expected).abs() < 1e-12,
+            "K = {k}: {got} vs {expected}"
+        );
+    }
+}

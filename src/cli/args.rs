@@ -334,8 +334,10 @@ pub(crate) struct DetectArgs {
     /// vote, and the rims are fitted at full resolution (0: full resolution throughout).
     #[arg(long, default_value_t = detect::COARSE_R_PX)]
     pub(crate) coarse_r: f64,
-    /// Systematic centre uncertainty of a lit sphere's edge, pixels x radius (common to all images).
-    #[arg(long, default_value_t = 0.5)]
+    /// K: systematic centre sigma of a lit sphere's edge, K x max(1/r, 16/r^2) px for the photo's
+    /// common ball radius r in px (K = 0.5: 0.0125 px at r = 40, 0.125 px at r = 8); common to
+    /// all images, reported as systematic_px; 0 when the shaded fit corrects the images instead.
+    #[arg(long, value_name = "K", default_value_t = 0.5)]
     pub(crate) edge_systematic: f64,
     /// Largest RMS distance of rim points from the fitted circle, pixels (or 2.5 x the median of
     /// the photo's well-covered images, when that is larger).

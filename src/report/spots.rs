@@ -38,7 +38,8 @@ pub struct SpotSettings {
     pub max_rms_px: f64,
     /// All images were taken to share one radius.
     pub one_radius: bool,
-    /// Systematic edge uncertainty, pixels x radius.
+    /// K of the systematic edge sigma K x max(1/r, 16/r^2) px, r the common radius in px
+    /// (`--edge-systematic`).
     pub edge_systematic_px_r: f64,
     /// Largest common radius at which isolated images get the shaded-sphere fit, pixels.
     pub shaded_max_r_px: f64,
