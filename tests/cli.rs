@@ -342,3 +342,76 @@ fn edge_systematic_does_what_its_help_and_the_readme_say() {
         );
     }
 }
+
+#[test]
+fn help_lists_the_options_a_user_needs_first_under_headings() {
+    // `measure --help` listed forty options in one block, the detector's tuning knobs before
+    // --rate. Now: calibration, acceptance, output, then detection and its tuning.
+    let dir = common::tempdir();
+    for (command, headings) in [
+        (
+            "measure",
+            &[
+                "Calibration:",
+                "Acceptance:",
+                "Output:",
+                "Detection:",
+                "Detection tuning:",
+            ][..],
+        ),
+        (
+            "rig",
+            &[
+                "Calibration:",
+                "Acceptance:",
+                "Output:",
+                "Watching a folder:",
+                "Detection tuning:",
+            ][..],
+        ),
+        ("spots", &["Output:", "Detection:", "Detection tuning:"][..]),
+    ] {
+        let out = beadline(&[command, "--help"], dir.path());
+        let help = String::from_utf8_lossy(&out.stdout);
+        let lines: Vec<&str> = help.lines().collect();
+        let at = |heading: &str| {
+            lines
+                .iter()
+                .position(|l| *l == heading)
+                .unwrap_or_else(|| panic!("{command}: no {heading} in {help}"))
+        };
+        let places: Vec<usize> = headings.iter().map(|h| at(h)).collect();
+        assert!(places.is_sorted(), "{command}: {headings:?} at {places:?}");
+        // Each option under its heading: the next heading comes after it.
+        let under = |option: &str, heading: &str| {
+            let line = lines
+                .iter()
+                .position(|l| l.trim_start().starts_with(option))
+                .unwrap_or_else(|| panic!("{command}: no {option}"));
+            let start = at(heading);
+            let next = lines[start + 1..]
+                .iter()
+                .position(|l| l.ends_with(':') && !l.starts_with(' '))
+                .map_or(lines.len(), |i| start + 1 + i);
+            assert!(
+                (start..next).contains(&line),
+                "{command}: {option} not under {heading}"
+            );
+        };
+        if command != "spots" {
+            for option in ["--rate", "--ball-diameter", "--scale", "--plane"] {
+                under(option, "Calibration:");
+            }
+            under("--accept", "Acceptance:");
+        }
+        under("--threshold-sigma", "Detection tuning:");
+        under(
+            if command == "rig" {
+                "--out"
+            } else {
+                "--format"
+            },
+            "Output:",
+        );
+    }
+}
