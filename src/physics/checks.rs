@@ -523,8 +523,9 @@ fn restitution_range(k: usize, b: &super::bounce::Bounce) -> Check {
         e,
         "0 <= e <= 1 within 3 sigma".into(),
         format!(
-            "bounce {}: e = {e:.4}{}",
+            "bounce {}: e = {}{}",
             k + 1,
+            measured(e, b.restitution_sigma, ""),
             advice(
                 outcome,
                 "a ball cannot rebound faster than it hit the floor: the arcs around this bounce \
@@ -558,10 +559,10 @@ fn launch_speed_check(l: &super::incline::Launch, i: &super::incline::InclineRes
         z,
         format!("within {WARN_Z} sigma"),
         format!(
-            "launch {:.4} m/s from the first arc, {:.4} m/s at the end of the incline; the \
-             phases' velocities meet {:.1} sigma outside the gap between their images{}",
-            l.speed_mps,
-            i.end_speed_mps,
+            "launch {} from the first arc, {} at the end of the incline; the phases' \
+             velocities meet {:.1} sigma outside the gap between their images{}",
+            measured(l.speed_mps, l.speed_sigma_mps, "m/s"),
+            measured(i.end_speed_mps, i.end_speed_sigma_mps, "m/s"),
             l.outside_span_z,
             advice(
                 outcome,
