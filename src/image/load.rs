@@ -5,8 +5,9 @@
 //! kept exactly as decoded (no copy four times larger), colour is converted to f32 luma (Rec. 709
 //! weights on the stored values; a YCbCr JPEG gives its stored luma plane directly, which its
 //! encoder made with the Rec. 601 weights, and its chroma is never decoded). A photo can be
-//! decimated to block means for the detection of large balls. Decoding limits refuse hostile files (a header claiming
-//! 100000 x 100000 pixels) before any large allocation.
+//! decimated to block means for the detection of large balls. Decoding limits refuse hostile
+//! files (a header claiming 100000 x 100000 pixels) before any large allocation, naming the size
+//! claimed and the limits.
 
 use crate::error::{Error, Result};
 use image::DynamicImage;

@@ -184,8 +184,8 @@ pub struct Reading {
 
 impl Verdict {
     /// One line for a person: the band, its outcome and every value tested against it, e.g.
-    /// "restitution band 0.79..0.85: fail — bounce 1 0.8120 ± 0.0040 pass, bounce 2 0.7600 ±
-    /// 0.0050 fail".
+    /// "restitution band 0.79..0.85: fail — bounce 1 0.812 ± 0.012 pass, bounce 2 0.760 ± 0.011
+    /// fail".
     pub fn text(&self) -> String {
         use crate::core::{numbers::measured, words::name};
         let b = &self.band;
