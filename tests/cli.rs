@@ -231,6 +231,22 @@ fn text_outputs_name_values_as_the_json_does() {
     let out = beadline(&["spots", photo], dir.path());
     let text = String::from_utf8_lossy(&out.stdout);
     assert!(text.contains("(bright ball"), "{text}");
+    // The table's centres to the decimal place of their sigma's second significant digit.
+    let mut rows = 0;
+    let numbered = |l: &&str| {
+        let first = l.split_whitespace().next();
+        first.is_some_and(|w| w.parse::<usize>().is_ok())
+    };
+    for line in text.lines().filter(numbered) {
+        let cells: Vec<&str> = line.split_whitespace().collect();
+        let (x, y, sigma) = (cells[1], cells[2], cells[4]);
+        let digits = sigma.trim_start_matches(['0', '.']).replace('.', "");
+        assert_eq!(digits.len(), 2, "sigma {sigma} in {line:?}");
+        assert_eq!(decimals(x), decimals(sigma), "{line:?}");
+        assert_eq!(decimals(y), decimals(sigma), "{line:?}");
+        rows += 1;
+    }
+    assert!(rows >= 30, "{rows} rows in {text}");
     for rust in [
         "Fail",
         "Pass",

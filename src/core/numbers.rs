@@ -43,9 +43,9 @@ pub fn measured(value: f64, sigma: f64, unit: &str) -> String {
     format!("{}{unit}", with_sigma(value, sigma))
 }
 
-/// `value ± sigma` (both finite, `sigma` > 0), as [`measured`] writes it without a unit.
-fn with_sigma(value: f64, sigma: f64) -> String {
-    // The decimal place of the sigma's second significant digit: 10^place.
+/// The decimal place of the second significant digit of `sigma` (finite, > 0) once rounded:
+/// 10^place.
+fn sigma_place(sigma: f64) -> i32 {
     let mut place = sigma.log10().floor() as i32 - 1;
     if sigma / 10f64.powi(place) < 9.5 {
         place -= 1; // log10 rounded up at an exact power of ten
@@ -53,6 +53,38 @@ fn with_sigma(value: f64, sigma: f64) -> String {
     if (sigma / 10f64.powi(place)).round() >= 100.0 {
         place += 1; // 0.0996 is 0.10, not 0.100
     }
+    place
+}
+
+/// A table's cells for a value and its sigma, in fixed notation: the value to the decimal place
+/// of the sigma's second significant digit, the sigma to two significant digits. When the sigma
+/// is not a finite number above 0, both with `decimals` decimals. A value that rounds to zero
+/// has no sign; a value that is not finite is "-".
+///
+/// # Examples
+/// ```
+/// use beadline::core::numbers::cells;
+/// assert_eq!(cells(812.34567, 0.0123, 3), ("812.346".to_string(), "0.012".to_string()));
+/// ```
+pub fn cells(value: f64, sigma: f64, decimals: usize) -> (String, String) {
+    let decimals = if sigma.is_finite() && sigma > 0.0 {
+        (-sigma_place(sigma)).max(0) as usize
+    } else {
+        decimals
+    };
+    let cell = |v: f64| {
+        if v.is_finite() {
+            fixed(v, decimals)
+        } else {
+            "-".to_string()
+        }
+    };
+    (cell(value), cell(sigma))
+}
+
+/// `value ± sigma` (both finite, `sigma` > 0), as [`measured`] writes it without a unit.
+fn with_sigma(value: f64, sigma: f64) -> String {
+    let place = sigma_place(sigma);
     let unit_of_place = 10f64.powi(place);
     let rounded = (value / unit_of_place).round() * unit_of_place;
     let magnitude = rounded.abs().max(sigma);
@@ -128,7 +160,7 @@ fn unsigned_zero(text: String) -> String {
 
 #[cfg(test)]
 mod tests {
-    use super::{fixed, measured, plain};
+    use super::{cells, fixed, measured, plain};
 
     #[test]
     fn two_digits_of_the_sigma_and_the_value_to_the_same_place() {
@@ -177,6 +209,16 @@ mod tests {
         assert_eq!(measured(0.75, -1.0, "m"), "0.75 m (uncertainty unknown)");
         assert_eq!(fixed(f64::NAN, 3), "not measured");
         assert_eq!(plain(f64::NAN), "not measured");
+    }
+
+    #[test]
+    fn table_cells_take_the_place_of_the_sigma() {
+        let pair = |a: &str, b: &str| (a.to_string(), b.to_string());
+        assert_eq!(cells(812.34567, 0.0123, 3), pair("812.346", "0.012"));
+        assert_eq!(cells(812.34567, 0.25, 3), pair("812.35", "0.25"));
+        assert_eq!(cells(-0.0001, 0.05, 3), pair("0.000", "0.050"));
+        assert_eq!(cells(812.34567, 0.0, 3), pair("812.346", "0.000"));
+        assert_eq!(cells(f64::NAN, f64::NAN, 3), pair("-", "-"));
     }
 
     #[test]

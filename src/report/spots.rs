@@ -3,6 +3,7 @@
 
 use super::{SCHEMA_VERSION, csv_rows};
 use crate::core::light::Polarity;
+use crate::core::numbers::cells;
 use crate::detect::count::LightGroup;
 use crate::detect::{Rejected, Spot, SpotOptions, SpotReport};
 use serde::{Deserialize, Serialize};
@@ -136,11 +137,14 @@ impl SpotsDoc {
             crate::core::words::name(&self.settings.polarity),
             self.settings.noise_sigma
         );
-        s += "    #      x_px      y_px    r_px  sigma_px  score\n";
+        // Centres to the digits their sigma warrants (crate::core::numbers::cells).
+        s += "    #       x_px       y_px    r_px  sigma_px  score\n";
         for (i, p) in self.spots.iter().enumerate() {
+            let (x, sigma) = cells(p.x_px, p.sigma_px, 3);
+            let (y, _) = cells(p.y_px, p.sigma_px, 3);
             s += &format!(
-                "{:5} {:9.3} {:9.3} {:7.3} {:9.4} {:6.2}\n",
-                i, p.x_px, p.y_px, p.r_px, p.sigma_px, p.score
+                "{i:5} {x:>10} {y:>10} {:7.3} {sigma:>9} {:6.2}\n",
+                p.r_px, p.score
             );
         }
         for r in &self.rejected {
