@@ -55,6 +55,9 @@ pub struct MeasureSettings {
     pub ball_diameter_m: Option<f64>,
     /// Flash rate, hertz (None: the flash interval is estimated from the flight arcs).
     pub rate_hz: Option<f64>,
+    /// The camera's focal length in pixels (the lens's focal length over the sensor's pixel
+    /// pitch), for the motion in depth in metres per second (None: as a relative rate only).
+    pub focal_px: Option<f64>,
     /// The quantity to estimate from the flight arcs (None: gravity when the rate and a scale
     /// are given, otherwise the one missing); see [`MeasureSettings::unknown`].
     pub estimate: Option<Unknown>,
@@ -122,6 +125,9 @@ impl MeasureSettings {
         }
         if let Some(d) = self.ball_diameter_m {
             positive(d, "ball_diameter_m")?;
+        }
+        if let Some(f) = self.focal_px {
+            positive(f, "focal_px")?;
         }
         match &self.scale {
             Some(ScaleSource::PxPerM(s)) => positive(*s, "scale_px_per_m")?,
@@ -495,6 +501,7 @@ fn measure_validated(
         &calibration,
         &measurement,
     ));
+    physics::checks::name_depth_cause(&mut measurement.checks);
     let dt_s = measurement.flash_interval_s.value;
     let mut doc = document(
         photo_path,
@@ -505,7 +512,7 @@ fn measure_validated(
         (&calibration, &in_plane),
         origin,
     );
-    doc.depth = in_plane.doc(dt_s);
+    doc.depth = in_plane.doc(dt_s, settings.focal_px, &doc.measurement.scale_px_per_m);
     if pixels {
         spin::read(photo_path, settings, &mut doc);
     }
@@ -761,6 +768,7 @@ fn document(
         strays: paths.strays.clone(),
         depth: None,
         spin: Vec::new(),
+        spin_bounces: Vec::new(),
         spin_note: None,
         measurement: m,
     }

@@ -86,6 +86,34 @@ fn a_ball_moving_toward_the_camera_is_measured_in_one_plane() {
 }
 
 #[test]
+fn the_focal_length_gives_the_speed_toward_the_camera() {
+    // Truth: the renderer's pinhole camera 1.6 m from the plane where 1 m spans 800 px, so its
+    // focal length is 800 x 1.6 = 1280 px; the ball moves toward it at 0.08 m/s.
+    let dir = common::tempdir();
+    let (photo, truth) = common::shoot(&incline(0.08), dir.path(), "depth.png");
+    let mut settings = common::ball_settings(25.0, 0.04);
+    settings.focal_px = Some(1280.0);
+    let doc = measure_photo(&photo, &settings).expect("a measurement").doc;
+    let depth = doc.depth.expect("the motion in depth");
+    let (v, sigma) = (
+        depth.toward_camera_mps.unwrap(),
+        depth.toward_camera_sigma_mps.unwrap(),
+    );
+    assert!(
+        (v - 0.08).abs() < 3.0 * sigma && sigma < 0.01,
+        "{v} +- {sigma}"
+    );
+    // The distance at the median image: between the first and last image's.
+    let d = depth.distance_m.unwrap();
+    let f = &truth.flashes;
+    let (far, near) = (1.6 - f[0].depth_m, 1.6 - f[f.len() - 1].depth_m);
+    assert!(near < d && d < far, "{d} m, not in {near}..{far}");
+    // Without a focal length only the relative rate is given.
+    let plain = measure_photo(&photo, &common::ball_settings(25.0, 0.04)).unwrap();
+    assert!(plain.doc.depth.unwrap().toward_camera_mps.is_none());
+}
+
+#[test]
 fn a_ball_in_one_plane_is_not_moved() {
     let dir = common::tempdir();
     let (photo, _) = common::shoot(&incline(0.0), dir.path(), "flat.png");

@@ -363,3 +363,54 @@ fn the_clean_plate_is_the_photo_without_the_ball() {
     }
     assert!(far > 100_000 && centres > 10, "{far} {centres}");
 }
+
+#[test]
+fn a_glossy_floor_shows_the_mirror_images_its_truth_lists_and_no_others() {
+    // Plane-mirror geometry: the mirror image of a ball whose underside is h above the floor
+    // starts h below it, so it shows on a plate of visible depth d only when h < d. Truth and
+    // photo must agree: every listed reflection changes the photo under the floor line, and
+    // every change lies on a listed one.
+    for depth_m in [0.02, 0.075] {
+        let mut glossy = Scene::demo();
+        glossy.floor.glossy = true;
+        glossy.floor.depth_m = depth_m;
+        glossy.photo.noise = false;
+        let mut matte = glossy.clone();
+        matte.floor.glossy = false;
+        let (a, b) = (synth::render(&glossy), synth::render(&matte));
+        let listed = &a.truth.reflections;
+        let (w, h) = (a.width as usize, a.height as usize);
+        let mut changed_off_listed = 0;
+        let mut changed_on = vec![false; listed.len()];
+        for y in 0..h {
+            for x in 0..w {
+                let (pa, pb) = (a.pixels[y * w + x], b.pixels[y * w + x]);
+                if (0..3).all(|c| (pa[c] - pb[c]).abs() < 1e-6) {
+                    continue;
+                }
+                let on = listed
+                    .iter()
+                    .position(|m| (m.x_px - x as f64).hypot(m.y_px - y as f64) <= m.r_px + 2.0);
+                match on {
+                    Some(i) => changed_on[i] = true,
+                    None => changed_off_listed += 1,
+                }
+            }
+        }
+        assert_eq!(
+            changed_off_listed, 0,
+            "depth {depth_m}: pixels changed off the list"
+        );
+        let unseen = changed_on.iter().filter(|c| !**c).count();
+        assert_eq!(
+            unseen, 0,
+            "depth {depth_m}: {unseen} listed reflections do not show"
+        );
+        if depth_m > 0.05 {
+            assert!(
+                !listed.is_empty(),
+                "a deep plate shows the low flashes' mirror images"
+            );
+        }
+    }
+}

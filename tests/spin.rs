@@ -4,6 +4,7 @@
 
 mod common;
 
+use beadline::physics::checks::CheckOutcome;
 use beadline::pipeline::measure_photo;
 use beadline::report::measure::MeasureDoc;
 use beadline::synth::Truth;
@@ -98,6 +99,33 @@ fn a_printed_dot_gives_each_image_s_turn_and_each_arc_s_spin() {
             s.spin_hz_sigma
         );
     }
+    // The spin at each bounce read on both sides against the truth's, and the moment-of-inertia
+    // factor it implies against the renderer's solid ball (k = 2/5, the standard rigid-body
+    // formula): the renderer keeps the angular momentum about the contact point.
+    assert!(!doc.spin_bounces.is_empty(), "no spin read across a bounce");
+    for b in &doc.spin_bounces {
+        let t = &truth.bounces[b.bounce - 1];
+        for (got, sigma, want) in [
+            (b.spin_before_hz, b.spin_before_hz_sigma, t.spin_before_hz),
+            (b.spin_after_hz, b.spin_after_hz_sigma, t.spin_after_hz),
+        ] {
+            assert!(
+                (got - want).abs() < 3.0 * sigma,
+                "bounce {}: {got} vs {want}",
+                b.bounce
+            );
+        }
+        let (k, sk) = (b.inertia_factor.unwrap(), b.inertia_factor_sigma.unwrap());
+        assert!((k - 0.4).abs() < 3.0 * sk && sk < 0.05, "k {k} +- {sk}");
+    }
+    let at_bounce: Vec<_> = doc
+        .measurement
+        .checks
+        .iter()
+        .filter(|c| c.check == "spin_at_bounce")
+        .collect();
+    assert_eq!(at_bounce.len(), doc.spin_bounces.len());
+    assert!(at_bounce.iter().all(|c| c.outcome == CheckOutcome::Pass));
 }
 
 #[test]
@@ -153,6 +181,19 @@ origin_y_px = 500.0
             "slip {got} +- {sigma} for {slip}"
         );
         assert!(sigma < 0.015, "slip sigma {sigma}");
+        // The rolling check passes rolling without slipping and warns at 5 %.
+        let check = doc
+            .measurement
+            .checks
+            .iter()
+            .find(|c| c.check == "rolling_slip")
+            .expect("a rolling_slip check");
+        let want = if slip > 0.0 {
+            CheckOutcome::Warn
+        } else {
+            CheckOutcome::Pass
+        };
+        assert_eq!(check.outcome, want, "{}", check.detail);
         slips.push((got, sigma));
     }
     let (a, b) = (slips[0], slips[1]);

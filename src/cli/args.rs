@@ -63,9 +63,14 @@ pub(crate) enum Command {
         measure: Box<MeasureArgs>,
         #[command(flatten)]
         out: OutArgs,
-        /// Write plots (height against time, restitution against impact speed) as SVG.
+        /// Write plots (height against time, restitution against impact speed, each with its
+        /// residuals) as SVG.
         #[arg(long, value_name = "SVG", value_parser = svg_path, help_heading = OUTPUT)]
         plot: Option<PathBuf>,
+        /// Write a self-contained HTML report (summary, pictures, self-checks, settings, every
+        /// number) to FILE; its folder must exist.
+        #[arg(long, value_name = "HTML", value_parser = html_path, help_heading = OUTPUT)]
+        report: Option<PathBuf>,
         #[command(flatten)]
         detect: Box<DetectArgs>,
     },
@@ -204,6 +209,9 @@ pub(crate) struct RigArgs {
     /// Write an overlay per photo into DIR (NAME.overlay.png).
     #[arg(long, value_name = "DIR", help_heading = OUTPUT)]
     pub(crate) overlay_dir: Option<PathBuf>,
+    /// Write an HTML report per photo into DIR (NAME.report.html); DIR must exist.
+    #[arg(long, value_name = "DIR", help_heading = OUTPUT)]
+    pub(crate) report_dir: Option<PathBuf>,
     /// No progress bar and no per-photo error lines on standard error.
     #[arg(long, help_heading = OUTPUT)]
     pub(crate) quiet: bool,
@@ -283,6 +291,29 @@ pub(crate) fn png_path(s: &str) -> std::result::Result<PathBuf, String> {
 /// See [`typed_path`].
 pub(crate) fn svg_path(s: &str) -> std::result::Result<PathBuf, String> {
     typed_path(s, "svg")
+}
+
+/// An HTML report's path: named .html or .htm, in a folder that exists (refused before any work).
+pub(crate) fn html_path(s: &str) -> std::result::Result<PathBuf, String> {
+    let p = PathBuf::from(s);
+    if !matches!(
+        p.extension()
+            .and_then(|e| e.to_str())
+            .map(str::to_ascii_lowercase)
+            .as_deref(),
+        Some("html" | "htm")
+    ) {
+        return Err(format!(
+            "'{s}': the report is HTML, so its name must end in .html"
+        ));
+    }
+    match p.parent().filter(|f| !f.as_os_str().is_empty()) {
+        Some(folder) if !folder.is_dir() => Err(format!(
+            "'{s}': the folder {} does not exist",
+            folder.display()
+        )),
+        _ => Ok(p),
+    }
 }
 
 /// Where and how results go.
@@ -398,6 +429,10 @@ pub(crate) struct MeasureArgs {
     /// Plane file (TOML: [[points]] x_px, y_px, x_m, y_m; optional k1, k2, focal_px).
     #[arg(long, value_name = "FILE", help_heading = CALIBRATION)]
     pub(crate) plane: Option<PathBuf>,
+    /// The camera's focal length in pixels (focal length / pixel pitch): gives the motion in
+    /// depth in m/s.
+    #[arg(long, value_name = "PIXELS", help_heading = CALIBRATION)]
+    pub(crate) focal_px: Option<f64>,
     /// Gravity, m/s^2, when it is not the quantity estimated.
     #[arg(long, default_value_t = STANDARD_GRAVITY_MPS2, help_heading = CALIBRATION)]
     pub(crate) gravity: f64,

@@ -101,27 +101,6 @@ pub(crate) fn write_debug(
     Ok(())
 }
 
-pub(crate) fn spots_overlay(photo: &Path, report: &detect::SpotReport, out: &Path) -> Result<()> {
-    use beadline::draw::overlay::{Canvas, GREEN, RED, YELLOW};
-    let mut c = Canvas::open(photo)?;
-    for (i, s) in report.spots.iter().enumerate() {
-        c.circle(s.x_px, s.y_px, s.r_px, GREEN);
-        c.cross(s.x_px, s.y_px, 3.0, GREEN);
-        c.text(
-            s.x_px + 3.0,
-            s.y_px - s.r_px - 12.0,
-            &i.to_string(),
-            2,
-            YELLOW,
-        );
-    }
-    for s in &report.rejected {
-        c.circle(s.x_px, s.y_px, s.r_px, RED);
-    }
-    c.save(out)?;
-    Ok(())
-}
-
 /// Write a measurement: the document in the chosen format, and the pictures asked for.
 pub(crate) fn write_measure(
     photo: &Path,
@@ -137,6 +116,28 @@ pub(crate) fn write_measure(
         beadline::core::output::write_text(p, &beadline::draw::plot::svg(&m.doc))?;
     }
     emit(out, &text)
+}
+
+/// Write the HTML report of a measurement: its pictures, and the settings with the command line
+/// as typed.
+pub(crate) fn write_report(
+    photo: &Path,
+    m: &beadline::pipeline::Measured,
+    settings: &beadline::pipeline::MeasureSettings,
+    out: &Path,
+) -> Result<()> {
+    let mut rows = beadline::report::html::settings_rows(settings);
+    let typed: Vec<String> = std::env::args().skip(1).collect();
+    rows.insert(
+        0,
+        (
+            "command line".into(),
+            format!("beadline {}", typed.join(" ")),
+        ),
+    );
+    let pictures = beadline::draw::pictures(photo, m)?;
+    beadline::report::html::write(out, &m.doc, &pictures, &rows)?;
+    Ok(())
 }
 
 /// Exit status 4 when a self-check failed (the numbers are not to be trusted), else 3 when a
@@ -208,14 +209,17 @@ pub(crate) fn demo(dir: &Path) -> Result<ExitCode> {
     let json = dir.join("measure.json");
     let overlay = dir.join("overlay.png");
     let plot = dir.join("plot.svg");
+    let report = dir.join("report.html");
     beadline::core::output::write_json(&json, &m.doc)?;
     beadline::draw::overlay::measure_overlay(&photo_path, &m, &overlay)?;
     beadline::core::output::write_text(&plot, &beadline::draw::plot::svg(&m.doc))?;
+    write_report(&photo_path, &m, &settings, &report)?;
     println!(
-        "  measured {}, {}, {}",
+        "  measured {}, {}, {}, {}",
         json.display(),
         overlay.display(),
-        plot.display()
+        plot.display(),
+        report.display()
     );
     println!();
     print!("{}", m.doc.text());

@@ -13,7 +13,7 @@ use beadline::report::spots::SpotsDoc;
 use beadline::synth::{self, scene::Scene};
 use clap::Parser;
 use commands::{
-    demo, detect, emit, formatted, render_to, spots_overlay, verdict_status, write_measure,
+    demo, detect, emit, formatted, render_to, verdict_status, write_measure, write_report,
 };
 use settings::parse_start;
 use std::process::ExitCode;
@@ -129,7 +129,7 @@ fn dispatch(args: Args) -> Result<ExitCode> {
             );
             let text = formatted(out.format, &doc, || doc.text(), || doc.csv())?;
             if let Some(o) = &out.overlay {
-                spots_overlay(&photo, &report, o)?;
+                beadline::draw::overlay::spots_overlay(&photo, &report, o)?;
             }
             emit(&out, &text)?;
             Ok(ExitCode::SUCCESS)
@@ -150,7 +150,7 @@ fn dispatch(args: Args) -> Result<ExitCode> {
             let doc = beadline::report::path::PathDoc::new(&photo.display().to_string(), &result);
             let text = formatted(out.format, &doc, || doc.text(), || doc.csv())?;
             if let Some(o) = &out.overlay {
-                spots_overlay(&photo, &report, o)?;
+                beadline::draw::overlay::path_overlay(&photo, &report, &result, o)?;
             }
             emit(&out, &text)?;
             Ok(ExitCode::SUCCESS)
@@ -161,11 +161,15 @@ fn dispatch(args: Args) -> Result<ExitCode> {
             measure,
             out,
             plot,
+            report,
         } => {
             let d = d.validate()?;
             let settings = measure.validate(&d)?;
             let m = beadline::pipeline::measure_photo(&photo, &settings)?;
             write_measure(&photo, &m, &out, plot.as_deref())?;
+            if let Some(r) = &report {
+                write_report(&photo, &m, &settings, r)?;
+            }
             Ok(verdict_status(&m.doc))
         }
         Command::Plan {

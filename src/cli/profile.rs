@@ -34,6 +34,7 @@ const PROFILE_KEYS: &[(&str, &str)] = &[
     ("ruler", "--ruler"),
     ("ball_diameter_m", "--ball-diameter"),
     ("plane", "--plane"),
+    ("focal_px", "--focal-px"),
     ("gravity_mps2", "--gravity"),
     ("estimate", "--estimate"),
     ("ball", "--ball"),
@@ -123,6 +124,7 @@ pub(crate) fn profile_args(profile: &Profile, skip: &[&str]) -> Vec<String> {
         ("--rate", profile.rate_hz),
         ("--scale", profile.scale_px_per_m),
         ("--ball-diameter", profile.ball_diameter_m),
+        ("--focal-px", profile.focal_px),
         ("--gravity", profile.gravity_mps2),
     ];
     for (flag, v) in numbers {

@@ -35,9 +35,15 @@ pub(crate) fn rig(args: RigArgs) -> Result<ExitCode> {
             folder.display()
         );
     }
+    if let Some(dir) = &args.report_dir
+        && !dir.is_dir()
+    {
+        bail!("{}: --report-dir: the folder does not exist", dir.display());
+    }
     let options = RigOptions {
         settings,
         overlay_dir: args.overlay_dir.clone(),
+        report_dir: args.report_dir.clone(),
         max_decoding: args.max_decoding.unwrap_or(0),
     };
     let sink = match &args.out {

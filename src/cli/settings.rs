@@ -121,6 +121,7 @@ impl MeasureArgs {
             plate: detect.plate.clone(),
             rate_hz: self.rate,
             ball_diameter_m: self.ball_diameter,
+            focal_px: self.focal_px,
             ..MeasureSettings::default()
         };
         s.scale = self.scale_source()?;

@@ -190,6 +190,9 @@ pub struct CircleFit {
     pub points: usize,
     /// Median gradient magnitude of the owned points (contrast of the rim).
     pub edge_strength: f64,
+    /// Upper quartile of the gradient magnitudes of those edge points: the contrast of the
+    /// rim's brightest part (a ball lit from one side: its lit limb).
+    pub limb_strength: f64,
     /// The radius was held at the common radius.
     pub radius_held: bool,
 }

@@ -288,6 +288,8 @@ fn fit_owned(
     let mut mags: Vec<f32> = pts_idx.iter().map(|&k| region.edges[k].magnitude).collect();
     let mid = mags.len() / 2;
     let strength = *mags.select_nth_unstable_by(mid, f32::total_cmp).1 as f64;
+    let upper = (3 * mags.len()) / 4;
+    let limb_strength = *mags.select_nth_unstable_by(upper, f32::total_cmp).1 as f64;
     let inflation = correlation_factor(&fit.circle, used);
     let var = 0.5 * (fit.covariance[(0, 0)] + fit.covariance[(1, 1)]) * inflation;
     Some(CircleFit {
@@ -297,6 +299,7 @@ fn fit_owned(
         rms_px: fit.rms_px,
         points: used.len(),
         edge_strength: strength,
+        limb_strength,
         radius_held: hold.is_some(),
     })
 }

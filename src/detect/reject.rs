@@ -173,7 +173,10 @@ fn reason(
         Some(Reason::Radius)
     } else if f.coverage < options.min_score || f.rms_px > limits.rms_limit {
         Some(Reason::WeakRim)
-    } else if f.edge_strength < options.faint_fraction * limits.median_strength {
+    } else if f.limb_strength < options.faint_fraction * limits.median_strength {
+        // Faint all round, lit limb included: a ball lit from one side has a lit limb as
+        // strong as any image's rim and a dark limb that fades into the backdrop (its median
+        // contrast would call the whole ball faint), a mirror image is faint everywhere.
         Some(Reason::Faint)
     } else if inside {
         Some(Reason::Inside)

@@ -818,3 +818,32 @@ pub fn ball_size(measured_m: f64, given_m: f64) -> Check {
         ),
     )
 }
+
+/// The checks of the motion in the plane that a ball out of that plane makes fail.
+const PLANE_CHECKS: [&str; 7] = [
+    "arc_fit",
+    "arc_agreement",
+    "restitution_agreement",
+    "bounce_timing",
+    "launch_continuity",
+    "launch_speed_agreement",
+    "gravity_plausible",
+];
+
+/// When `radius_trend` fails (the ball's size changes along the path more than the plane, or
+/// the motion in depth, explains), every failed or warned check of the motion in the plane is
+/// told that this is its likeliest cause: its own list of causes cannot know it.
+pub fn name_depth_cause(checks: &mut [Check]) {
+    let depth_failed = checks
+        .iter()
+        .any(|c| c.check == "radius_trend" && c.outcome == CheckOutcome::Fail);
+    if !depth_failed {
+        return;
+    }
+    for c in checks.iter_mut() {
+        if c.outcome != CheckOutcome::Pass && PLANE_CHECKS.contains(&c.check) {
+            c.detail += "; likeliest cause: the ball does not stay in one plane (see \
+                         radius_trend), so its path is not seen as one plane's";
+        }
+    }
+}

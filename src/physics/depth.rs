@@ -44,6 +44,8 @@ pub struct DepthModel {
     pub change: f64,
     /// The distance's rate of change over the reference distance, per flash (positive: away).
     pub distance_rate_per_flash: f64,
+    /// Its 1-sigma (from the line's slope, its covariance scaled by the reduced chi-square).
+    pub distance_rate_sigma_per_flash: f64,
     /// Relative RMS scatter of the radii about the line.
     pub scatter: f64,
     /// Images used in the fit (not left out).
@@ -112,6 +114,7 @@ pub fn fit(n: &[f64], r_m: &[f64]) -> Option<DepthModel> {
         r_ref_m,
         change,
         distance_rate_per_flash: b * r_ref_m,
+        distance_rate_sigma_per_flash: l.sigma(1) * r_ref_m,
         scatter,
         used: keep.len(),
     })

@@ -34,6 +34,7 @@ pub mod frame;
 pub mod incline;
 pub mod phases;
 pub mod recount;
+pub mod spin;
 pub mod systematic;
 
 use crate::core::SCHEMA_VERSION;

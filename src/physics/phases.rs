@@ -7,9 +7,11 @@
 //! divided difference of y (an acceleration estimate from three neighbouring points) jumps to a
 //! large positive value there, where free flight gives -g and rolling gives about zero or a small
 //! negative value. Runs of points whose estimate exceeds max(0.3 g, 5 sigma of the estimate) mark
-//! bounces; the one or two points of a run may lie on either side of the contact, so each is
-//! assigned by trying every split and keeping the one with the smallest total chi-square of the
-//! two neighbouring flight fits. Before the first bounce, the incline is found by trying every
+//! bounces. A run of one point leaves the contact on either side of it, and the side is the
+//! split with the smallest total chi-square of the two neighbouring flight fits; a run of two
+//! points puts the contact between them, whatever the chi-square says (on a real photo a
+//! 3-image arc across the bounce fits exactly and would win); a longer run leaves every split
+//! to the chi-square. An arc too short to fit beside a bounce is in flight. Before the first bounce, the incline is found by trying every
 //! split between a constant-acceleration straight-line segment (x and y quadratic in t) and a
 //! flight arc, keeping the best; the incline is accepted only when it lowers the chi-square by more
 //! than 25 against one flight arc for the whole segment and its acceleration is below 0.8 g.
@@ -70,6 +72,8 @@ impl Segmentation {
         covariance: CovarianceScaling,
     ) -> Segmentation {
         let segments = segment(points, gravity_mps2, drag_gravity);
+        // An arc too short to fit lies beside a bounce when there are others: in flight.
+        let split = segments.arcs.len() > 1;
         let fits = segments
             .arcs
             .iter()
@@ -81,7 +85,7 @@ impl Segmentation {
                 };
                 let flying = fit
                     .as_ref()
-                    .is_some_and(|f| 2.0 * f.y.coefficients[2] < -0.5 * gravity_mps2);
+                    .map_or(split, |f| 2.0 * f.y.coefficients[2] < -0.5 * gravity_mps2);
                 (fit, flying)
             })
             .collect();
@@ -100,6 +104,17 @@ impl Segmentation {
     pub fn flight_ranges(&self) -> Vec<Range<usize>> {
         self.flight_fits().map(|f| f.range.clone()).collect()
     }
+}
+
+/// The splits a bounce run of points `a..=b` allows (the first point after the contact), from
+/// `start` on. Each point i of the run has its acceleration estimate from i - 1, i and i + 1
+/// jump, so the contact lies between i - 1 and i + 1 for every i in the run: one point leaves
+/// it on either side of that point, two points put it between them (their neighbours would
+/// otherwise have jumped too). A longer run (blurred or merged images near the floor) leaves
+/// every split of the run to the chi-square.
+fn contact_splits(a: usize, b: usize, start: usize) -> std::ops::RangeInclusive<usize> {
+    let (first, last) = if b == a + 1 { (b, b) } else { (a, b + 1) };
+    first.max(start)..=last.max(start)
 }
 
 /// Acceleration estimate at interior point i from points i - 1, i, i + 1, and its 1-sigma.
@@ -174,7 +189,7 @@ pub(crate) fn segment(
     for (k, &(a, b)) in runs.iter().enumerate() {
         let next_core_end = runs.get(k + 1).map_or(n, |r| r.0);
         let mut best = (f64::INFINITY, a.max(start));
-        for split in a.max(start)..=b + 1 {
+        for split in contact_splits(a, b, start) {
             let cost = flight_chi_square(points, start..split)
                 + flight_chi_square(points, split..next_core_end);
             if cost < best.0 {
@@ -291,4 +306,43 @@ fn line_model(points: &[TimedPoint]) -> Option<LineModel> {
         chi_square: across + fit.chi_square,
         accel_mps2: 2.0 * fit.coefficients[2].abs(),
     })
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    /// A ball falling onto the floor at 3 m/s with its contact midway between flashes 1 and 2,
+    /// rebounding with e = 0.8 (exact kinematics, g = 9.81 m/s^2, flashes 40 ms apart), flash
+    /// 2's image `offset_sigmas` sigmas high.
+    fn bounce_midway(offset_sigmas: f64) -> Vec<TimedPoint> {
+        let (dt, t_c, g, sigma_m) = (0.04, 0.06, 9.81, 1e-4);
+        (0..13)
+            .map(|n| {
+                let t = n as f64 * dt;
+                let v = if t < t_c { -3.0 } else { 0.8 * 3.0 };
+                let y = 0.02 + v * (t - t_c) - 0.5 * g * (t - t_c).powi(2);
+                let lift = if n == 2 { offset_sigmas * sigma_m } else { 0.0 };
+                TimedPoint {
+                    n,
+                    t_s: t,
+                    x_m: 0.5 * t,
+                    y_m: y + lift,
+                    sigma_m,
+                }
+            })
+            .collect()
+    }
+
+    #[test]
+    fn a_contact_between_two_jumps_splits_between_them_whatever_the_noise() {
+        // Both flashes 1 and 2 see the jump, so the contact lies between them: flash 2 starts
+        // the rebound even when its image is off by 4 sigma (a 3-image arc 0..2 would fit it
+        // exactly and cost nothing).
+        let seg = Segmentation::new(&bounce_midway(4.0), 9.81, None, CovarianceScaling::Sigmas);
+        assert_eq!(seg.segments.arcs, vec![0..2, 2..13]);
+        // The 2-image arc before the bounce is too short to fit; it is in flight, not rolling.
+        assert!(seg.fits[0].0.is_none() && seg.fits[0].1);
+        assert!(seg.fits[1].1);
+    }
 }

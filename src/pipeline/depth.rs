@@ -11,7 +11,7 @@ use crate::calibrate::Calibration;
 use crate::detect::{SpotReport, SpotSource};
 use crate::error::Result;
 use crate::physics::depth::{self, DepthModel};
-use crate::physics::{self, TimedPoint};
+use crate::physics::{self, Quantity, TimedPoint};
 use crate::report::measure::DepthDoc;
 use crate::track::{BallPath, PathPoint};
 
@@ -84,13 +84,31 @@ impl InPlane {
         Some((moved, m))
     }
 
-    /// What the document says of the motion in depth, at flash interval `dt_s`.
-    pub fn doc(&self, dt_s: f64) -> Option<DepthDoc> {
-        self.model.map(|m| DepthDoc {
-            size_change: m.change,
-            distance_change_per_s: m.distance_rate_per_flash / dt_s,
-            radius_scatter: m.scatter,
-            images_used: m.used,
+    /// What the document says of the motion in depth, at flash interval `dt_s`; with the
+    /// camera's focal length in pixels, the distance is that over the scale in the reference
+    /// plane (pinhole camera: a metre there spans focal / distance pixels) and the speed toward
+    /// the camera is the distance's rate of change times it, with the sigmas of the rate and of
+    /// the scale.
+    pub fn doc(&self, dt_s: f64, focal_px: Option<f64>, scale: &Quantity) -> Option<DepthDoc> {
+        self.model.map(|m| {
+            let rate_per_s = m.distance_rate_per_flash / dt_s;
+            let distance_m = focal_px
+                .map(|f| f / scale.value)
+                .filter(|d| d.is_finite() && *d > 0.0);
+            let toward = distance_m.map(|d| -rate_per_s * d);
+            let sigma = distance_m.map(|d| {
+                let rate_sigma = m.distance_rate_sigma_per_flash / dt_s;
+                (rate_sigma * d).hypot(rate_per_s * d * scale.sigma / scale.value)
+            });
+            DepthDoc {
+                size_change: m.change,
+                distance_change_per_s: rate_per_s,
+                distance_m,
+                toward_camera_mps: toward,
+                toward_camera_sigma_mps: sigma,
+                radius_scatter: m.scatter,
+                images_used: m.used,
+            }
         })
     }
 }

@@ -13,7 +13,9 @@
 use super::MeasureSettings;
 use crate::detect::spin::{NoReading, Signature, rings, signatures, steps, turn_deg};
 use crate::image::load::{ColourPhoto, load_colour_exact};
-use crate::report::measure::{MeasureDoc, PathEntry, SpinPhase};
+use crate::physics::spin::{BounceSpin, bounce_check, slip_check};
+use crate::physics::{PhaseKind, checks::Check};
+use crate::report::measure::{MeasureDoc, PathEntry, SpinBounce, SpinPhase};
 use std::path::Path;
 
 /// The smallest sigma given to one turn, degrees (the correlation grid's resolution).
@@ -59,6 +61,7 @@ pub(super) fn read(photo_path: &Path, settings: &MeasureSettings, doc: &mut Meas
     let turns = rolled(consecutive(&sigs, &doc.path), &sigs, doc);
     let sigma = step_sigma_deg(&turns, &n, doc);
     doc.spin = phases(doc, &turns, sigma);
+    checks(doc, settings);
     let links = links(&sigs, &turns, doc);
     // The angles count from the first image a link leaves and follow the links; an image no
     // link reaches has none (the whole turns before it are unknown).
@@ -76,6 +79,66 @@ pub(super) fn read(photo_path: &Path, settings: &MeasureSettings, doc: &mut Meas
         e.spin_angle_sigma_deg = a.map(|(a, m)| (sigma * m.sqrt()).hypot(SPIN_SYSTEMATIC * a));
     }
     doc.spin_note = note(&sigs, angle.iter().filter(|a| a.is_none()).count());
+}
+
+/// The spin checks: the slip of each incline read (`rolling_slip`), and, for each bounce with a
+/// spin read on both sides, the spin before and after (`spin_bounces`) and the spin change
+/// against the horizontal velocity change (`spin_at_bounce`).
+fn checks(doc: &mut MeasureDoc, settings: &MeasureSettings) {
+    let mut out: Vec<Check> = doc
+        .spin
+        .iter()
+        .filter_map(|p| Some(slip_check(p.slip?, p.slip_sigma?)))
+        .collect();
+    let m = &doc.measurement;
+    let mut radii: Vec<f64> = doc.path.iter().map(|p| p.r_px).collect();
+    radii.sort_by(f64::total_cmp);
+    let radius_m = settings.ball_diameter_m.map_or_else(
+        || radii.get(radii.len() / 2).copied().unwrap_or(f64::NAN) / m.scale_px_per_m.value,
+        |d| d / 2.0,
+    );
+    for (i, b) in m.bounces.iter().enumerate() {
+        let Some(phase) = m
+            .phases
+            .iter()
+            .find(|p| p.kind == PhaseKind::Bounce && p.t_start_s <= b.t_s && b.t_s <= p.t_end_s)
+        else {
+            continue;
+        };
+        let before = doc.spin.iter().find(|s| s.last_n == phase.first_n);
+        let after = doc.spin.iter().find(|s| s.first_n == phase.last_n);
+        let (Some(before), Some(after)) = (before, after) else {
+            continue;
+        };
+        let vx_in = b.impact_velocity_mps[0];
+        let change = b
+            .tangential_ratio_sigma
+            .map(|sr| (b.rebound_velocity_mps[0] - vx_in, sr * vx_in.abs()));
+        let mut entry = SpinBounce {
+            bounce: i + 1,
+            spin_before_hz: before.spin_hz,
+            spin_before_hz_sigma: before.spin_hz_sigma,
+            spin_after_hz: after.spin_hz,
+            spin_after_hz_sigma: after.spin_hz_sigma,
+            tangential_change_mps: change.map(|c| c.0),
+            tangential_change_sigma_mps: change.map(|c| c.1),
+            inertia_factor: None,
+            inertia_factor_sigma: None,
+        };
+        if let Some(change) = change.filter(|_| radius_m.is_finite()) {
+            let spin = BounceSpin {
+                before_hz: (before.spin_hz, before.spin_hz_sigma),
+                after_hz: (after.spin_hz, after.spin_hz_sigma),
+                tangential_change_mps: change,
+                radius_m,
+            };
+            let k = spin.inertia_factor();
+            (entry.inertia_factor, entry.inertia_factor_sigma) = (k.map(|k| k.0), k.map(|k| k.1));
+            out.push(bounce_check(i + 1, &spin));
+        }
+        doc.spin_bounces.push(entry);
+    }
+    doc.measurement.checks.extend(out);
 }
 
 /// Turn k is from image k to image k + 1 (degrees) when their flash numbers are consecutive,

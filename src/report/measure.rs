@@ -48,6 +48,13 @@ pub struct DepthDoc {
     /// Rate of change of the ball's distance to the camera over that distance, per second
     /// (positive: away).
     pub distance_change_per_s: f64,
+    /// The distance from the camera to the ball at the median image, metres: the focal length in
+    /// pixels over the scale (null without `--focal-px`).
+    pub distance_m: Option<f64>,
+    /// The ball's speed toward the camera, m/s (negative: away; null without `--focal-px`).
+    pub toward_camera_mps: Option<f64>,
+    /// 1-sigma of `toward_camera_mps`.
+    pub toward_camera_sigma_mps: Option<f64>,
     /// Relative RMS scatter of the radii about the fitted motion in depth.
     pub radius_scatter: f64,
     /// Detected images the fit used (a few blurred or merged ones are left out).
@@ -75,6 +82,30 @@ pub struct SpinPhase {
     pub slip: Option<f64>,
     /// 1-sigma of `slip`.
     pub slip_sigma: Option<f64>,
+}
+
+/// The spin on either side of a bounce, read from the markings of the phases before and after it.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct SpinBounce {
+    /// The bounce's number along the path (1: the first), as in `bounces[]`.
+    pub bounce: usize,
+    /// Spin of the phase before, turns per second, counter-clockwise positive as seen.
+    pub spin_before_hz: f64,
+    /// 1-sigma of `spin_before_hz`.
+    pub spin_before_hz_sigma: f64,
+    /// Spin of the phase after, turns per second.
+    pub spin_after_hz: f64,
+    /// 1-sigma of `spin_after_hz`.
+    pub spin_after_hz_sigma: f64,
+    /// Horizontal velocity after less before, m/s (null when the ball barely moves sideways).
+    pub tangential_change_mps: Option<f64>,
+    /// 1-sigma of `tangential_change_mps`.
+    pub tangential_change_sigma_mps: Option<f64>,
+    /// The moment-of-inertia factor I / (m r^2) the two changes imply, the angular momentum about
+    /// the contact point kept (null unless both changes are over three sigmas).
+    pub inertia_factor: Option<f64>,
+    /// 1-sigma of `inertia_factor`.
+    pub inertia_factor_sigma: Option<f64>,
 }
 
 /// Where the origin of the reported world frame lies. Every position of the document (the path
@@ -136,6 +167,8 @@ pub struct MeasureDoc {
     pub depth: Option<DepthDoc>,
     /// The spin read from the ball's markings, per phase with enough readings.
     pub spin: Vec<SpinPhase>,
+    /// The spin before and after each bounce with a spin read on both sides.
+    pub spin_bounces: Vec<SpinBounce>,
     /// Why some or all images give no spin reading (null when every image was read).
     pub spin_note: Option<String>,
     /// The physics (flattened: `schema_version`, `phases`, `bounces`, `launch`, ...).
@@ -302,6 +335,15 @@ impl MeasureDoc {
                 },
                 fixed(d.size_change.abs() * 100.0, 1),
             );
+            if let (Some(v), Some(sv), Some(z)) =
+                (d.toward_camera_mps, d.toward_camera_sigma_mps, d.distance_m)
+            {
+                s += &format!(
+                    "  depth speed    {} toward the camera ({} m away)\n",
+                    measured(v, sv, "m/s"),
+                    fixed(z, 3)
+                );
+            }
         }
         for p in &self.spin {
             s += &format!(
@@ -317,6 +359,18 @@ impl MeasureDoc {
                     ", slip {} (0: rolling without slipping)",
                     measured(slip, sig, "")
                 );
+            }
+            s += "\n";
+        }
+        for b in &self.spin_bounces {
+            s += &format!(
+                "  spin at bounce {}: {} before, {} after",
+                b.bounce,
+                measured(b.spin_before_hz, b.spin_before_hz_sigma, "turns/s"),
+                measured(b.spin_after_hz, b.spin_after_hz_sigma, "turns/s")
+            );
+            if let (Some(k), Some(sk)) = (b.inertia_factor, b.inertia_factor_sigma) {
+                s += &format!(" (moment-of-inertia factor {})", measured(k, sk, ""));
             }
             s += "\n";
         }

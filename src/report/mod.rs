@@ -5,6 +5,7 @@
 
 use serde::Serialize;
 
+pub mod html;
 pub mod measure;
 pub mod path;
 pub mod spots;

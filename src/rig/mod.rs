@@ -45,6 +45,9 @@ pub struct RigOptions {
     pub settings: MeasureSettings,
     /// Write an overlay per photo into this folder (`NAME.overlay.png`).
     pub overlay_dir: Option<PathBuf>,
+    /// Write an HTML report per photo into this folder (`NAME.report.html`, see
+    /// [`crate::report::html`]).
+    pub report_dir: Option<PathBuf>,
     /// Most photos decoded and measured at once (0: the number of threads).
     pub max_decoding: usize,
 }
@@ -128,6 +131,8 @@ pub struct LineDoc<'a> {
     pub depth: Option<&'a crate::report::measure::DepthDoc>,
     /// See [`MeasureDoc::spin`].
     pub spin: &'a [crate::report::measure::SpinPhase],
+    /// See [`MeasureDoc::spin_bounces`].
+    pub spin_bounces: &'a [crate::report::measure::SpinBounce],
     /// See [`MeasureDoc::spin_note`].
     pub spin_note: Option<&'a str>,
     /// See [`MeasureDoc::measurement`] (flattened: `schema_version` first).
@@ -148,6 +153,7 @@ impl<'a> LineDoc<'a> {
             strays: &doc.strays,
             depth: doc.depth.as_ref(),
             spin: &doc.spin,
+            spin_bounces: &doc.spin_bounces,
             spin_note: doc.spin_note.as_deref(),
             measurement: &doc.measurement,
         }
@@ -179,16 +185,24 @@ impl PhotoResult {
 pub fn measure_one(path: &Path, options: &RigOptions, permits: &Semaphore) -> PhotoResult {
     let file = path.display().to_string();
     let _permit = permits.acquire();
+    let name = path
+        .file_stem()
+        .map(|s| s.to_string_lossy().into_owned())
+        .unwrap_or_else(|| "photo".into());
     let outcome = crate::pipeline::measure_photo(path, &options.settings).and_then(|m| {
         if let Some(dir) = &options.overlay_dir {
-            let name = path
-                .file_stem()
-                .map(|s| s.to_string_lossy().into_owned())
-                .unwrap_or_else(|| "photo".into());
             crate::draw::overlay::measure_overlay(
                 path,
                 &m,
                 &dir.join(format!("{name}.overlay.png")),
+            )?;
+        }
+        if let Some(dir) = &options.report_dir {
+            crate::report::html::write(
+                &dir.join(format!("{name}.report.html")),
+                &m.doc,
+                &crate::draw::pictures(path, &m)?,
+                &crate::report::html::settings_rows(&options.settings),
             )?;
         }
         Ok(m)

@@ -54,6 +54,8 @@ pub struct Profile {
     pub ruler: Option<[f64; 5]>,
     /// Ball diameter, metres (also the scale when no other is given).
     pub ball_diameter_m: Option<f64>,
+    /// The camera's focal length, pixels (focal length / pixel pitch).
+    pub focal_px: Option<f64>,
     /// Plane file (relative to the profile's folder).
     pub plane: Option<PathBuf>,
     /// Gravity, m/s^2, when it is not the quantity estimated.

@@ -112,7 +112,8 @@ pub struct Truth {
     pub flashes: Vec<FlashTruth>,
     /// Round objects that are not the ball.
     pub distractors: Vec<DistractorTruth>,
-    /// Mirror images of the ball in a glossy floor (centres, pixels).
+    /// Mirror images of the ball in a glossy floor (centres, pixels): those of the flashes when
+    /// the ball is low enough for part of its mirror image to show on the floor plate.
     pub reflections: Vec<DistractorTruth>,
     /// What is printed on the ball.
     #[serde(default)]
@@ -363,7 +364,10 @@ impl<'a> Shot<'a> {
                 && c[1] - r >= -0.5
                 && c[0] + r <= w as f64 - 0.5
                 && c[1] + r <= h as f64 - 0.5;
-            if scene.floor.glossy {
+            // The mirror image shows only on the floor plate's visible depth below y = 0: its
+            // top lies as far below the floor as the ball's underside lies above it.
+            let mirror_top_m = m.y_m - scene.ball.radius_m();
+            if scene.floor.glossy && mirror_top_m < scene.floor.depth_m {
                 let mc = self
                     .toward_camera(proj.to_pixel(m.x_m, -m.y_m), self.depth_m(t))
                     .0;

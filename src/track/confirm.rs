@@ -37,10 +37,7 @@ pub fn confirm_missing(
 ) -> Vec<(usize, usize)> {
     let mut found: Vec<(usize, usize)> = Vec::new();
     for &n in &path.missing {
-        let Some(&(a, b)) = phases.iter().find(|(a, b)| *a < n && n < *b) else {
-            continue;
-        };
-        let Some([x, y]) = predict(path, (a, b), n) else {
+        let Some([x, y]) = predicted_position(path, phases, n) else {
             continue;
         };
         let best = rejected
@@ -59,6 +56,18 @@ pub fn confirm_missing(
         }
     }
     found
+}
+
+/// Where missing flash `n` of `path` was, in pixels: from the quadratics in n through the
+/// nearest images of the phase (one of `phases`, flash ranges with constant acceleration) that
+/// holds `n` strictly inside; None when no phase holds it or the phase has too few images.
+pub fn predicted_position(
+    path: &BallPath,
+    phases: &[(usize, usize)],
+    n: usize,
+) -> Option<[f64; 2]> {
+    let &(a, b) = phases.iter().find(|(a, b)| *a < n && n < *b)?;
+    predict(path, (a, b), n)
 }
 
 /// The pixel position of flash `n` from the quadratics in n through the path's nearest images
