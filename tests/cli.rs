@@ -218,10 +218,35 @@ fn text_outputs_name_values_as_the_json_does() {
     ];
     let out = beadline(&args, dir.path());
     let text = String::from_utf8_lossy(&out.stdout);
-    assert!(text.contains("band restitution 0.1..0.2: fail"), "{text}");
+    // The verdict shows each bounce's value with its sigma and its own outcome.
+    let verdict = text
+        .lines()
+        .find(|l| l.contains("restitution band 0.1..0.2: fail — bounce 1 "))
+        .unwrap_or_else(|| panic!("no verdict line in {text}"));
+    assert!(
+        verdict.contains(" ± ") && verdict.contains("bounce 2 "),
+        "{verdict}"
+    );
+    assert!(verdict.ends_with(" fail"), "{verdict}");
     let out = beadline(&["spots", photo], dir.path());
     let text = String::from_utf8_lossy(&out.stdout);
     assert!(text.contains("(bright ball"), "{text}");
+    // The table's centres to the decimal place of their sigma's second significant digit.
+    let mut rows = 0;
+    let numbered = |l: &&str| {
+        let first = l.split_whitespace().next();
+        first.is_some_and(|w| w.parse::<usize>().is_ok())
+    };
+    for line in text.lines().filter(numbered) {
+        let cells: Vec<&str> = line.split_whitespace().collect();
+        let (x, y, sigma) = (cells[1], cells[2], cells[4]);
+        let digits = sigma.trim_start_matches(['0', '.']).replace('.', "");
+        assert_eq!(digits.len(), 2, "sigma {sigma} in {line:?}");
+        assert_eq!(decimals(x), decimals(sigma), "{line:?}");
+        assert_eq!(decimals(y), decimals(sigma), "{line:?}");
+        rows += 1;
+    }
+    assert!(rows >= 30, "{rows} rows in {text}");
     for rust in [
         "Fail",
         "Pass",
@@ -232,5 +257,177 @@ fn text_outputs_name_values_as_the_json_does() {
         "Radius",
     ] {
         assert!(!text.contains(rust), "{rust} in {text}");
+    }
+}
+
+/// The decimals of a number's text ("0.0120" has 4, "12" and "1.2e3" none counted here).
+fn decimals(number: &str) -> Option<usize> {
+    let (_, fraction) = number.split_once('.')?;
+    Some(fraction.len())
+}
+
+#[test]
+fn the_demo_prints_each_value_with_the_digits_its_sigma_warrants() {
+    let dir = common::tempdir();
+    let out = beadline(&["demo", "--dir", "d"], dir.path());
+    assert!(out.status.success(), "{out:?}");
+    let text = String::from_utf8_lossy(&out.stdout);
+    for line in text.lines() {
+        assert_eq!(line, line.trim_end(), "trailing space in {line:?}");
+        for bad in ["NaN", "inf", "+-"] {
+            assert!(!line.contains(bad), "{bad} in {line:?}");
+        }
+        for word in line.split_whitespace() {
+            let negative_zero = word
+                .trim_end_matches([',', ')'])
+                .strip_prefix('-')
+                .is_some_and(|rest| !rest.is_empty() && rest.chars().all(|c| "0.".contains(c)));
+            assert!(!negative_zero, "negative zero {word:?} in {line:?}");
+        }
+    }
+    // Every "value ± sigma" in fixed notation: the sigma has two significant digits and the
+    // value its decimal place.
+    let mut pairs = 0;
+    for line in text.lines() {
+        let words: Vec<&str> = line.split_whitespace().collect();
+        for w in words.windows(3).filter(|w| w[1] == "±") {
+            let (value, sigma) = (w[0], w[2].trim_end_matches(','));
+            if sigma.contains('e') {
+                continue;
+            }
+            let digits = sigma.trim_start_matches(['0', '.']).replace('.', "");
+            assert_eq!(digits.len(), 2, "{sigma:?} in {line:?}");
+            assert_eq!(
+                decimals(value),
+                decimals(sigma),
+                "{value} ± {sigma} in {line:?}"
+            );
+            pairs += 1;
+        }
+    }
+    assert!(pairs >= 8, "{pairs} values with a sigma in {text}");
+}
+
+#[test]
+fn edge_systematic_does_what_its_help_and_the_readme_say() {
+    // The help once said "pixels x radius" and the README "K x max(1/r, 16/r^2)": both now give
+    // the formula the detector uses, checked here on the spots JSON (no shaded fit).
+    let formula = "K x max(1/r, 16/r^2) px";
+    let dir = common::tempdir();
+    let help = beadline(&["spots", "--help"], dir.path());
+    let help = String::from_utf8_lossy(&help.stdout)
+        .split_whitespace()
+        .collect::<Vec<_>>()
+        .join(" ");
+    assert!(help.contains("--edge-systematic <K> K: "), "{help}");
+    assert!(help.contains(formula), "{help}");
+    let readme =
+        std::fs::read_to_string(concat!(env!("CARGO_MANIFEST_DIR"), "/README.md")).unwrap();
+    let row = readme
+        .lines()
+        .find(|l| l.starts_with("| `--edge-systematic K`"))
+        .expect("a README row");
+    assert!(row.contains(formula), "{row}");
+    let (photo, _) = common::shoot(
+        &beadline::synth::scene::Scene::demo(),
+        dir.path(),
+        "demo.png",
+    );
+    let photo = photo.to_str().unwrap();
+    for k in [0.5, 2.0] {
+        let k_text = k.to_string();
+        let args = [
+            "spots",
+            photo,
+            "--format",
+            "json",
+            "--shaded-max-r",
+            "0",
+            "--edge-systematic",
+            &k_text,
+        ];
+        let out = beadline(&args, dir.path());
+        assert!(out.status.success(), "{out:?}");
+        let doc: serde_json::Value = serde_json::from_slice(&out.stdout).unwrap();
+        let r = doc["common_radius_px"].as_f64().unwrap();
+        let expected = k * (1.0 / r).max(16.0 / (r * r));
+        let got = doc["systematic_px"].as_f64().unwrap();
+        assert!(
+            (got - expected).abs() < 1e-12,
+            "K = {k}: {got} vs {expected}"
+        );
+    }
+}
+
+#[test]
+fn help_lists_the_options_a_user_needs_first_under_headings() {
+    // `measure --help` listed forty options in one block, the detector's tuning knobs before
+    // --rate. Now: calibration, acceptance, output, then detection and its tuning.
+    let dir = common::tempdir();
+    for (command, headings) in [
+        (
+            "measure",
+            &[
+                "Calibration:",
+                "Acceptance:",
+                "Output:",
+                "Detection:",
+                "Detection tuning:",
+            ][..],
+        ),
+        (
+            "rig",
+            &[
+                "Calibration:",
+                "Acceptance:",
+                "Output:",
+                "Watching a folder:",
+                "Detection tuning:",
+            ][..],
+        ),
+        ("spots", &["Output:", "Detection:", "Detection tuning:"][..]),
+    ] {
+        let out = beadline(&[command, "--help"], dir.path());
+        let help = String::from_utf8_lossy(&out.stdout);
+        let lines: Vec<&str> = help.lines().collect();
+        let at = |heading: &str| {
+            lines
+                .iter()
+                .position(|l| *l == heading)
+                .unwrap_or_else(|| panic!("{command}: no {heading} in {help}"))
+        };
+        let places: Vec<usize> = headings.iter().map(|h| at(h)).collect();
+        assert!(places.is_sorted(), "{command}: {headings:?} at {places:?}");
+        // Each option under its heading: the next heading comes after it.
+        let under = |option: &str, heading: &str| {
+            let line = lines
+                .iter()
+                .position(|l| l.trim_start().starts_with(option))
+                .unwrap_or_else(|| panic!("{command}: no {option}"));
+            let start = at(heading);
+            let next = lines[start + 1..]
+                .iter()
+                .position(|l| l.ends_with(':') && !l.starts_with(' '))
+                .map_or(lines.len(), |i| start + 1 + i);
+            assert!(
+                (start..next).contains(&line),
+                "{command}: {option} not under {heading}"
+            );
+        };
+        if command != "spots" {
+            for option in ["--rate", "--ball-diameter", "--scale", "--plane"] {
+                under(option, "Calibration:");
+            }
+            under("--accept", "Acceptance:");
+        }
+        under("--threshold-sigma", "Detection tuning:");
+        under(
+            if command == "rig" {
+                "--out"
+            } else {
+                "--format"
+            },
+            "Output:",
+        );
     }
 }

@@ -115,11 +115,13 @@ fn the_flash_unit_limits_are_respected_and_a_wish_to_drop_is_named() {
     let p = plan(&scene).unwrap();
     assert!(p.flashes <= 20 && p.rate_hz <= 25.0);
     assert!(!p.meets_wishes);
+    let wishes: Vec<&str> = p.unmet_wishes.iter().map(|u| u.wish.as_str()).collect();
     assert!(
-        p.warnings.iter().any(|w| w.contains("wishes.")),
+        wishes.contains(&"min_images_per_arc"),
         "{:?}",
-        p.warnings
+        p.unmet_wishes
     );
+    assert!(p.unmet().is_some_and(|e| e.to_string().contains("wishes.")));
     assert!(
         p.images_per_arc.iter().all(|&n| n >= 4),
         "{:?}",
@@ -224,4 +226,38 @@ fn a_plan_is_text_or_json_and_csv_is_refused() {
     assert!(out.status.success(), "{out:?}");
     let doc: serde_json::Value = serde_json::from_slice(&out.stdout).unwrap();
     assert!(doc["rate_hz"].as_f64().is_some(), "{doc}");
+}
+
+#[test]
+fn wishes_no_setting_meets_are_named_with_how_far_to_relax_and_the_run_fails() {
+    // 100 images on every arc at 60 Hz over a drop and two rebounds: no rate gives that (the
+    // poorest arc gets 11 at most). Exit 3, the closest plan on standard output, and standard
+    // error names the wish with the value that setting meets.
+    let dir = common::tempdir();
+    let path = dir.path().join("scene.toml");
+    let wishes = "min_images_per_arc = 100\nmax_blur_px = 0.01";
+    std::fs::write(&path, DropScene::planned(200, 60.0, wishes).toml()).unwrap();
+    let out = common::beadline(&["plan", path.to_str().unwrap()], dir.path());
+    assert_eq!(out.status.code(), Some(3), "{out:?}");
+    let stdout = String::from_utf8_lossy(&out.stdout);
+    assert!(stdout.contains("no setting meets every wish"), "{stdout}");
+    let stderr = String::from_utf8_lossy(&out.stderr);
+    assert_eq!(stderr.lines().count(), 1, "{stderr}");
+    let p = plan(&DropScene::planned(200, 60.0, wishes).scene()).unwrap();
+    let poorest = p.images_per_arc.iter().min().unwrap();
+    for relax in [
+        format!("lower wishes.min_images_per_arc to {poorest}"),
+        "raise wishes.max_blur_px to ".to_string(),
+    ] {
+        assert!(stderr.contains(&relax), "{relax} in {stderr}");
+    }
+    // The relaxed wishes are met.
+    let blur = (p.blur_px * 100.0).ceil() / 100.0;
+    let relaxed = format!("min_images_per_arc = {poorest}\nmax_blur_px = {blur}");
+    let q = plan(&DropScene::planned(200, 60.0, &relaxed).scene()).unwrap();
+    assert!(
+        q.meets_wishes && q.unmet().is_none(),
+        "{:?}",
+        q.unmet_wishes
+    );
 }

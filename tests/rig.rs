@@ -18,6 +18,38 @@ fn lines(text: &[u8]) -> Vec<serde_json::Value> {
         .collect()
 }
 
+/// The keys of a JSON object's text in the order they are written (a `serde_json::Value` sorts
+/// them).
+fn keys_in_order(line: &str) -> Vec<String> {
+    struct Keys(Vec<String>);
+    impl<'de> serde::Deserialize<'de> for Keys {
+        fn deserialize<D: serde::Deserializer<'de>>(d: D) -> Result<Self, D::Error> {
+            struct Visit;
+            impl<'de> serde::de::Visitor<'de> for Visit {
+                type Value = Keys;
+                fn expecting(&self, f: &mut std::fmt::Formatter) -> std::fmt::Result {
+                    f.write_str("a JSON object")
+                }
+                fn visit_map<A: serde::de::MapAccess<'de>>(
+                    self,
+                    mut m: A,
+                ) -> Result<Keys, A::Error> {
+                    let mut keys = Vec::new();
+                    while let Some(k) = m.next_key::<String>()? {
+                        m.next_value::<serde::de::IgnoredAny>()?;
+                        keys.push(k);
+                    }
+                    Ok(Keys(keys))
+                }
+            }
+            d.deserialize_map(Visit)
+        }
+    }
+    serde_json::from_str::<Keys>(line)
+        .unwrap_or_else(|e| panic!("not a JSON object ({e}): {line}"))
+        .0
+}
+
 fn status_of<'a>(results: &'a [serde_json::Value], file: &str) -> &'a str {
     let hits: Vec<_> = results
         .iter()
@@ -116,6 +148,13 @@ fn every_bad_input_gets_an_error_result_and_the_run_goes_on() {
     assert_eq!(out.status.code(), Some(2), "{stderr}");
     let results = lines(&out.stdout);
     assert_eq!(results.len(), files.len());
+    for line in String::from_utf8_lossy(&out.stdout).lines() {
+        let keys = keys_in_order(line);
+        assert_eq!(keys[..2], ["file", "status"], "{line}");
+        if line.contains(r#""status":"error""#) {
+            assert_eq!(keys, ["file", "status", "error"], "{line}");
+        }
+    }
     assert_eq!(status_of(&results, "good.png"), "ok");
     assert_eq!(
         status_of(&results, "deep16.tif"),
@@ -157,7 +196,10 @@ fn every_bad_input_gets_an_error_result_and_the_run_goes_on() {
         .to_string();
     assert!(noise_err.contains("candidate regions"), "{noise_err}");
     let huge_err = stderr.lines().find(|l| l.contains("huge.png")).unwrap();
-    assert!(huge_err.contains("limit"), "{huge_err}");
+    assert!(
+        huge_err.contains("image of 100000 x 100000 px is larger than the limit"),
+        "{huge_err}"
+    );
     assert!(!stderr.contains("panicked"), "{stderr}");
 
     // --quiet: the same results, nothing on stderr.
@@ -244,6 +286,19 @@ fn exit_statuses_and_parseable_outputs() {
     }
     assert!(d.join("overlays/a.overlay.png").is_file());
     assert!(d.join("overlays/b.overlay.png").is_file());
+    // Each line: file and status, then the measure document's keys in its own order.
+    let settings = common::ball_settings(25.0, 0.04);
+    let m = beadline::pipeline::measure_photo(&d.join("shots/a.png"), &settings).unwrap();
+    let doc_keys = keys_in_order(&serde_json::to_string(&m.doc).unwrap());
+    assert_eq!(doc_keys[0], "file");
+    for line in std::fs::read_to_string(d.join("results.jsonl"))
+        .unwrap()
+        .lines()
+    {
+        let keys = keys_in_order(line);
+        assert_eq!(keys[..2], ["file", "status"], "{line}");
+        assert_eq!(keys[2..], doc_keys[1..], "{line}");
+    }
 
     // 3: outside the band.
     let mut args = vec!["rig", "shots/a.png", "--accept", "restitution=0.1..0.2"];

@@ -36,22 +36,23 @@ pub(crate) enum Command {
         /// The photo (JPEG, PNG or TIFF).
         photo: PathBuf,
         #[command(flatten)]
-        detect: Box<DetectArgs>,
-        #[command(flatten)]
         out: OutArgs,
+        // Last: its tuning knobs come after what a user commonly sets.
+        #[command(flatten)]
+        detect: Box<DetectArgs>,
     },
     /// Order the ball images of a strobe photo into the ball's timed path.
     #[command(after_help = PATH_HELP)]
     Path {
         /// The photo (JPEG, PNG or TIFF).
         photo: PathBuf,
-        #[command(flatten)]
-        detect: Box<DetectArgs>,
         /// Start of the path near pixel X,Y (default: found automatically).
         #[arg(long, value_name = "X,Y")]
         start: Option<String>,
         #[command(flatten)]
         out: OutArgs,
+        #[command(flatten)]
+        detect: Box<DetectArgs>,
     },
     /// Measure the ball from a strobe photo: path, calibration, phases, fits, restitution.
     #[command(after_help = MEASURE_HELP)]
@@ -59,19 +60,19 @@ pub(crate) enum Command {
         /// The photo (JPEG, PNG or TIFF).
         photo: PathBuf,
         #[command(flatten)]
-        detect: Box<DetectArgs>,
-        #[command(flatten)]
         measure: Box<MeasureArgs>,
         #[command(flatten)]
         out: OutArgs,
         /// Write plots (height against time, restitution against impact speed, each with its
         /// residuals) as SVG.
-        #[arg(long, value_name = "SVG", value_parser = svg_path)]
+        #[arg(long, value_name = "SVG", value_parser = svg_path, help_heading = OUTPUT)]
         plot: Option<PathBuf>,
         /// Write a self-contained HTML report (summary, pictures, self-checks, settings, every
         /// number) to FILE; its folder must exist.
-        #[arg(long, value_name = "HTML", value_parser = html_path)]
+        #[arg(long, value_name = "HTML", value_parser = html_path, help_heading = OUTPUT)]
         report: Option<PathBuf>,
+        #[command(flatten)]
+        detect: Box<DetectArgs>,
     },
     /// Plan a shot: flash rate, number of flashes, exposure and delay, before taking the photo.
     #[command(after_help = PLAN_HELP)]
@@ -99,6 +100,23 @@ pub(crate) enum Command {
         dir: PathBuf,
     },
 }
+
+/// Help heading of the options that calibrate a measurement: the user's first choices.
+pub(crate) const CALIBRATION: &str = "Calibration";
+/// Help heading of the acceptance bands.
+pub(crate) const ACCEPTANCE: &str = "Acceptance";
+/// Help heading of the physics model and where the path starts.
+pub(crate) const PHYSICS: &str = "Physics and path";
+/// Help heading of where results and pictures go.
+pub(crate) const OUTPUT: &str = "Output";
+/// Help heading of the detection options a user commonly sets.
+pub(crate) const DETECTION: &str = "Detection";
+/// Help heading of the detector's tuning knobs (defaults suit most photos).
+pub(crate) const TUNING: &str = "Detection tuning";
+/// Help heading of rig watch mode.
+pub(crate) const WATCH: &str = "Watching a folder";
+/// Help heading of a rig run's threads and memory.
+pub(crate) const RESOURCES: &str = "Threads and memory";
 
 /// Help shown after the render options.
 pub(crate) const RENDER_HELP: &str = "\
@@ -139,6 +157,12 @@ Examples:
 
 /// Help shown after the plan options.
 pub(crate) const PLAN_HELP: &str = "\
+Exit status:
+  0  the plan meets every wish
+  1  error, or no setting gives a photo that measure resolves (the reason on standard error)
+  3  no setting meets every wish: the closest plan is given, and standard error names each
+     wish to relax and how far
+
 Examples:
   beadline plan scene.toml
   beadline plan scene.toml --preview planned.png --format json";
@@ -180,45 +204,45 @@ pub(crate) struct RigArgs {
     #[arg(long, value_name = "RIG.toml")]
     pub(crate) profile: Option<PathBuf>,
     #[command(flatten)]
-    pub(crate) detect: Box<DetectArgs>,
-    #[command(flatten)]
     pub(crate) measure: Box<MeasureArgs>,
     /// Append the result lines (JSON, one per photo) to FILE instead of standard output.
-    #[arg(long, value_name = "FILE")]
+    #[arg(long, value_name = "FILE", help_heading = OUTPUT)]
     pub(crate) out: Option<PathBuf>,
     /// Write a summary CSV, one row per photo, at the end of the run.
-    #[arg(long, value_name = "FILE")]
+    #[arg(long, value_name = "FILE", help_heading = OUTPUT)]
     pub(crate) summary: Option<PathBuf>,
     /// Write an overlay per photo into DIR (NAME.overlay.png).
-    #[arg(long, value_name = "DIR")]
+    #[arg(long, value_name = "DIR", help_heading = OUTPUT)]
     pub(crate) overlay_dir: Option<PathBuf>,
     /// Write an HTML report per photo into DIR (NAME.report.html); DIR must exist.
-    #[arg(long, value_name = "DIR")]
+    #[arg(long, value_name = "DIR", help_heading = OUTPUT)]
     pub(crate) report_dir: Option<PathBuf>,
+    /// No progress bar and no per-photo error lines on standard error.
+    #[arg(long, help_heading = OUTPUT)]
+    pub(crate) quiet: bool,
     /// Watch DIR and measure each new photo once it is completely written.
-    #[arg(long, value_name = "DIR")]
+    #[arg(long, value_name = "DIR", help_heading = WATCH)]
     pub(crate) watch: Option<PathBuf>,
     /// Journal of the photos done in watch mode (default: DIR/.beadline-journal).
-    #[arg(long, value_name = "FILE")]
+    #[arg(long, value_name = "FILE", help_heading = WATCH)]
     pub(crate) journal: Option<PathBuf>,
     /// Seconds between two looks at the watched folder.
-    #[arg(long, value_name = "SECONDS", default_value_t = 0.5)]
+    #[arg(long, value_name = "SECONDS", default_value_t = 0.5, help_heading = WATCH)]
     pub(crate) poll_interval: f64,
     /// Stop watching after N photos.
-    #[arg(long, value_name = "N")]
+    #[arg(long, value_name = "N", help_heading = WATCH)]
     pub(crate) max_photos: Option<usize>,
     /// Stop watching after SECONDS without a new photo.
-    #[arg(long, value_name = "SECONDS")]
+    #[arg(long, value_name = "SECONDS", help_heading = WATCH)]
     pub(crate) idle_exit: Option<f64>,
     /// Worker threads (default: one per core).
-    #[arg(long, value_name = "N")]
+    #[arg(long, value_name = "N", help_heading = RESOURCES)]
     pub(crate) jobs: Option<usize>,
     /// Most photos decoded at once (default: the number of threads).
-    #[arg(long, value_name = "N")]
+    #[arg(long, value_name = "N", help_heading = RESOURCES)]
     pub(crate) max_decoding: Option<usize>,
-    /// No progress bar and no per-photo error lines on standard error.
-    #[arg(long)]
-    pub(crate) quiet: bool,
+    #[command(flatten)]
+    pub(crate) detect: Box<DetectArgs>,
 }
 
 /// Output format.
@@ -301,13 +325,13 @@ pub(crate) fn html_path(s: &str) -> std::result::Result<PathBuf, String> {
 #[derive(Debug, Clone, ClapArgs)]
 pub(crate) struct OutArgs {
     /// Output format.
-    #[arg(long, value_enum, default_value = "text")]
+    #[arg(long, value_enum, default_value = "text", help_heading = OUTPUT)]
     pub(crate) format: Format,
     /// Write the result to FILE (atomically) instead of standard output.
-    #[arg(short = 'o', long = "output", value_name = "FILE")]
+    #[arg(short = 'o', long = "output", value_name = "FILE", help_heading = OUTPUT)]
     pub(crate) output: Option<PathBuf>,
     /// Draw what was found on the photo and write it as PNG.
-    #[arg(long, value_name = "PNG", value_parser = png_path)]
+    #[arg(long, value_name = "PNG", value_parser = png_path, help_heading = OUTPUT)]
     pub(crate) overlay: Option<PathBuf>,
 }
 
@@ -315,70 +339,72 @@ pub(crate) struct OutArgs {
 #[derive(Debug, Clone, ClapArgs)]
 pub(crate) struct DetectArgs {
     /// Clean plate: the same scene photographed without the ball.
-    #[arg(long, value_name = "PHOTO")]
+    #[arg(long, value_name = "PHOTO", help_heading = DETECTION)]
     pub(crate) plate: Option<PathBuf>,
     /// Ball against background.
-    #[arg(long, value_enum, default_value = "auto")]
+    #[arg(long, value_enum, default_value = "auto", help_heading = DETECTION)]
     pub(crate) polarity: PolarityArg,
     /// How the stored values encode light: srgb (camera JPEGs and PNGs, IEC 61966-2-1) or linear
     /// (a raw or scientific camera's 16-bit TIFF).
-    #[arg(long, value_enum, default_value = "srgb")]
+    #[arg(long, value_enum, default_value = "srgb", help_heading = DETECTION)]
     pub(crate) tone: ToneArg,
     /// Radius range of the ball images, pixels, as MIN..MAX (default: estimated).
-    #[arg(long, value_name = "MIN..MAX")]
+    #[arg(long, value_name = "MIN..MAX", help_heading = DETECTION)]
     pub(crate) radius: Option<String>,
     /// Threshold in robust sigmas of the noise.
-    #[arg(long, default_value_t = 4.5)]
+    #[arg(long, default_value_t = 4.5, help_heading = TUNING)]
     pub(crate) threshold_sigma: f32,
     /// Fixed threshold on the difference from the background, 0..1 (overrides --threshold-sigma).
-    #[arg(long)]
+    #[arg(long, help_heading = TUNING)]
     pub(crate) threshold_level: Option<f32>,
     /// Background grid cell, pixels (0 = automatic).
-    #[arg(long, default_value_t = 0)]
+    #[arg(long, default_value_t = 0, help_heading = TUNING)]
     pub(crate) background_cell: usize,
     /// Gaussian smoothing before edges, pixels.
-    #[arg(long, default_value_t = 0.7)]
+    #[arg(long, default_value_t = 0.7, help_heading = TUNING)]
     pub(crate) smooth: f32,
     /// Rims whose median edge is this many noise sigmas have their points placed on the
     /// unsmoothed gradient (0: all rims; a huge value: none).
-    #[arg(long, default_value_t = 20.0)]
+    #[arg(long, default_value_t = 20.0, help_heading = TUNING)]
     pub(crate) fine_snr: f64,
     /// Edge points need a gradient above this many noise sigmas.
-    #[arg(long, default_value_t = 4.0)]
+    #[arg(long, default_value_t = 4.0, help_heading = TUNING)]
     pub(crate) edge_sigma: f32,
     /// Smallest fraction of the rim with edge support for a ball image, 0..1.
-    #[arg(long, default_value_t = 0.35)]
+    #[arg(long, default_value_t = 0.35, help_heading = TUNING)]
     pub(crate) min_score: f64,
     /// Ball images' radii may differ from the common radius by this fraction.
-    #[arg(long, default_value_t = 0.12)]
+    #[arg(long, default_value_t = 0.12, help_heading = TUNING)]
     pub(crate) radius_tolerance: f64,
     /// The round objects differ in size (not images of one ball): no common radius.
-    #[arg(long)]
+    #[arg(long, help_heading = TUNING)]
     pub(crate) sizes_differ: bool,
     /// Isolated images of a ball up to this radius are refined by fitting a lit sphere's image to
     /// their pixels, pixels (0: edge fit only).
-    #[arg(long, default_value_t = 40.0)]
+    #[arg(long, default_value_t = 40.0, help_heading = TUNING)]
     pub(crate) shaded_max_r: f64,
     /// Smallest radius of a ball on the decimated photo, pixels: with the smallest searched radius
     /// r_min, the photo is averaged over floor(r_min / this) pixels squared for the blobs and the
     /// vote, and the rims are fitted at full resolution (0: full resolution throughout).
-    #[arg(long, default_value_t = detect::COARSE_R_PX)]
+    #[arg(long, default_value_t = detect::COARSE_R_PX, help_heading = TUNING)]
     pub(crate) coarse_r: f64,
-    /// Systematic centre uncertainty of a lit sphere's edge, pixels x radius (common to all images).
-    #[arg(long, default_value_t = 0.5)]
+    /// K: systematic centre sigma of a lit sphere's edge, K x max(1/r, 16/r^2) px for the photo's
+    /// common ball radius r in px (K = 0.5: 0.0125 px at r = 40, 0.125 px at r = 8); common to
+    /// all images, reported as systematic_px; 0 when the shaded fit corrects the images instead.
+    #[arg(long, value_name = "K", default_value_t = 0.5, help_heading = TUNING)]
     pub(crate) edge_systematic: f64,
     /// Largest RMS distance of rim points from the fitted circle, pixels (or 2.5 x the median of
     /// the photo's well-covered images, when that is larger).
-    #[arg(long, default_value_t = 0.5)]
+    #[arg(long, default_value_t = 0.5, help_heading = TUNING)]
     pub(crate) max_rms: f64,
     /// Images fainter than this fraction of the median rim contrast are rejected as reflections.
-    #[arg(long, default_value_t = 0.5)]
+    #[arg(long, default_value_t = 0.5, help_heading = TUNING)]
     pub(crate) faint: f64,
     /// Refuse photos with more candidate regions than this.
-    #[arg(long, default_value_t = 5000)]
+    #[arg(long, default_value_t = 5000, help_heading = TUNING)]
     pub(crate) max_candidates: usize,
     /// Write each stage's intermediate image into DIR.
-    #[arg(long, value_name = "DIR")]
+    #[arg(long, value_name = "DIR", help_heading = TUNING)]
     pub(crate) debug_dir: Option<PathBuf>,
 }
 
@@ -394,45 +420,45 @@ pub(crate) enum EstimateArg {
 #[derive(Debug, Clone, ClapArgs)]
 pub(crate) struct MeasureArgs {
     /// Flash rate, hertz.
-    #[arg(long, value_name = "HZ")]
+    #[arg(long, value_name = "HZ", help_heading = CALIBRATION)]
     pub(crate) rate: Option<f64>,
+    /// Ball diameter, metres (also the scale when no other is given).
+    #[arg(long, value_name = "METRES", help_heading = CALIBRATION)]
+    pub(crate) ball_diameter: Option<f64>,
     /// Scale in the plane of motion, pixels per metre.
-    #[arg(long, value_name = "PX_PER_M")]
+    #[arg(long, value_name = "PX_PER_M", help_heading = CALIBRATION)]
     pub(crate) scale: Option<f64>,
     /// Two image points a known distance apart in the plane of motion: X1,Y1,X2,Y2,METRES.
-    #[arg(long, value_name = "X1,Y1,X2,Y2,METRES")]
+    #[arg(long, value_name = "X1,Y1,X2,Y2,METRES", help_heading = CALIBRATION)]
     pub(crate) ruler: Option<String>,
-    /// Ball diameter, metres (also the scale when no other is given).
-    #[arg(long, value_name = "METRES")]
-    pub(crate) ball_diameter: Option<f64>,
     /// Plane file (TOML: [[points]] x_px, y_px, x_m, y_m; optional k1, k2, focal_px).
-    #[arg(long, value_name = "FILE")]
+    #[arg(long, value_name = "FILE", help_heading = CALIBRATION)]
     pub(crate) plane: Option<PathBuf>,
     /// The camera's focal length in pixels (focal length / pixel pitch): gives the motion in
     /// depth in m/s.
-    #[arg(long, value_name = "PIXELS")]
+    #[arg(long, value_name = "PIXELS", help_heading = CALIBRATION)]
     pub(crate) focal_px: Option<f64>,
     /// Gravity, m/s^2, when it is not the quantity estimated.
-    #[arg(long, default_value_t = STANDARD_GRAVITY_MPS2)]
+    #[arg(long, default_value_t = STANDARD_GRAVITY_MPS2, help_heading = CALIBRATION)]
     pub(crate) gravity: f64,
     /// The quantity estimated from the flight arcs (default: gravity when rate and scale are
     /// given; otherwise the missing one).
-    #[arg(long, value_enum)]
+    #[arg(long, value_enum, help_heading = CALIBRATION)]
     pub(crate) estimate: Option<EstimateArg>,
+    /// Acceptance band QUANTITY=MIN..MAX (repeatable), e.g. restitution=0.73..0.76.
+    #[arg(long = "accept", value_name = "Q=MIN..MAX", help_heading = ACCEPTANCE)]
+    pub(crate) accept: Vec<String>,
     /// Ball build: solid, shell, or thick:INNER_DIAMETER_M.
-    #[arg(long, default_value = "solid")]
+    #[arg(long, default_value = "solid", help_heading = PHYSICS)]
     pub(crate) ball: String,
     /// The camera is level: do not estimate and correct its roll.
-    #[arg(long)]
+    #[arg(long, help_heading = PHYSICS)]
     pub(crate) level: bool,
     /// Fit a quadratic air-drag term to the flight arcs.
-    #[arg(long)]
+    #[arg(long, help_heading = PHYSICS)]
     pub(crate) fit_drag: bool,
-    /// Acceptance band QUANTITY=MIN..MAX (repeatable), e.g. restitution=0.73..0.76.
-    #[arg(long = "accept", value_name = "Q=MIN..MAX")]
-    pub(crate) accept: Vec<String>,
     /// Start of the path near pixel X,Y (default: found automatically).
-    #[arg(long, value_name = "X,Y")]
+    #[arg(long, value_name = "X,Y", help_heading = PHYSICS)]
     pub(crate) start: Option<String>,
 }
 

@@ -4,6 +4,7 @@
 use super::args::{Format, OutArgs};
 use super::settings::Detect;
 use anyhow::{Context, Result};
+use beadline::core::numbers::fixed;
 use beadline::detect;
 use beadline::image::load::LoadOptions;
 use beadline::synth::{self, scene::Scene};
@@ -224,10 +225,12 @@ pub(crate) fn demo(dir: &Path) -> Result<ExitCode> {
     print!("{}", m.doc.text());
     println!();
     println!(
-        "  truth: launch {:.4} m/s at {:.2} deg, restitution {:.3}, gravity {} m/s^2, {} px/m",
-        t.launch.speed_mps,
-        t.launch.angle_deg,
-        t.bounces.first().map_or(f64::NAN, |b| b.restitution),
+        "  truth: launch {} m/s at {} deg, restitution {}, gravity {} m/s^2, {} px/m",
+        fixed(t.launch.speed_mps, 4),
+        fixed(t.launch.angle_deg, 2),
+        t.bounces
+            .first()
+            .map_or("none (no bounce)".to_string(), |b| fixed(b.restitution, 3)),
         t.gravity_mps2,
         t.scale_px_per_m
     );

@@ -199,7 +199,14 @@ fn dispatch(args: Args) -> Result<ExitCode> {
                 },
                 &text,
             )?;
-            Ok(ExitCode::SUCCESS)
+            // The closest plan is given, but the run says it falls short of the wishes.
+            match plan.unmet() {
+                Some(e) => {
+                    eprintln!("beadline: {}: {e}", scene_path.display());
+                    Ok(ExitCode::from(3))
+                }
+                None => Ok(ExitCode::SUCCESS),
+            }
         }
         Command::Demo { dir } => demo(&dir),
         Command::Rig(r) => rig::rig(*r),

@@ -5,6 +5,7 @@ pub mod ball;
 pub mod geometry;
 pub mod light;
 pub mod markup;
+pub mod numbers;
 pub mod output;
 pub mod stats;
 pub mod units;

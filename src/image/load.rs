@@ -5,8 +5,9 @@
 //! kept exactly as decoded (no copy four times larger), colour is converted to f32 luma (Rec. 709
 //! weights on the stored values; a YCbCr JPEG gives its stored luma plane directly, which its
 //! encoder made with the Rec. 601 weights, and its chroma is never decoded). A photo can be
-//! decimated to block means for the detection of large balls. Decoding limits refuse hostile files (a header claiming
-//! 100000 x 100000 pixels) before any large allocation.
+//! decimated to block means for the detection of large balls. Decoding limits refuse hostile
+//! files (a header claiming 100000 x 100000 pixels) before any large allocation, naming the size
+//! claimed and the limits.
 
 use crate::error::{Error, Result};
 use image::DynamicImage;
@@ -284,23 +285,26 @@ fn decode(
             "not a JPEG, PNG or TIFF image (unknown format)",
         ));
     }
+    if reader.format() == Some(image::ImageFormat::Png)
+        && let Some((w, h)) = png_claimed_size(bytes)
+    {
+        check_size(path, Some((w, h)), options)?;
+    }
     let mut limits = image::Limits::default();
     limits.max_image_width = Some(options.max_side_px);
     limits.max_image_height = Some(options.max_side_px);
     limits.max_alloc = Some(options.max_alloc_bytes);
     reader.limits(limits);
     let reader_is_jpeg = reader.format() == Some(image::ImageFormat::Jpeg);
-    let mut decoder = reader.into_decoder().map_err(|e| decode_error(path, e))?;
-    let (w, h) = image::ImageDecoder::dimensions(&decoder);
-    if (w as f64) * (h as f64) > options.max_megapixels * 1e6 {
-        return Err(decode_error(
-            path,
-            format!(
-                "{w} x {h} pixels is over the limit of {} megapixels",
-                options.max_megapixels
-            ),
-        ));
-    }
+    let mut decoder = reader.into_decoder().map_err(|e| match e {
+        image::ImageError::Limits(_) => too_large(path, None, options),
+        e => decode_error(path, e),
+    })?;
+    check_size(
+        path,
+        Some(image::ImageDecoder::dimensions(&decoder)),
+        options,
+    )?;
     let orientation = image::ImageDecoder::orientation(&mut decoder)
         .unwrap_or(image::metadata::Orientation::NoTransforms);
     let grey = if reader_is_jpeg && luma_only {
@@ -324,6 +328,43 @@ fn decode(
         });
     }
     Ok(img)
+}
+
+/// The width and height a PNG's header claims (its first chunk, IHDR), read before any
+/// decoding: a header-only file claiming 100000 x 100000 pixels is named as too large.
+fn png_claimed_size(bytes: &[u8]) -> Option<(u32, u32)> {
+    let be = |b: &[u8]| u32::from_be_bytes([b[0], b[1], b[2], b[3]]);
+    (bytes.len() >= 24 && &bytes[12..16] == b"IHDR")
+        .then(|| (be(&bytes[16..20]), be(&bytes[20..24])))
+}
+
+/// The error for an image over the limits: its size when known, and the limits.
+fn too_large(path: &Path, size_px: Option<(u32, u32)>, options: &LoadOptions) -> Error {
+    let what = match size_px {
+        Some((w, h)) => format!("image of {w} x {h} px"),
+        None => "image".to_string(),
+    };
+    Error::Unusable {
+        path: path.to_path_buf(),
+        message: format!(
+            "{what} is larger than the limit of {} px a side and {} megapixels",
+            options.max_side_px, options.max_megapixels
+        ),
+    }
+}
+
+/// Refuse an image of `size_px` (width, height) over the side or area limit.
+fn check_size(path: &Path, size_px: Option<(u32, u32)>, options: &LoadOptions) -> Result<()> {
+    match size_px {
+        Some((w, h))
+            if w > options.max_side_px
+                || h > options.max_side_px
+                || (w as f64) * (h as f64) > options.max_megapixels * 1e6 =>
+        {
+            Err(too_large(path, size_px, options))
+        }
+        _ => Ok(()),
+    }
 }
 
 /// Decode only the luma plane of a YCbCr or grey JPEG (zune-jpeg skips the chroma's inverse

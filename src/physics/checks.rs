@@ -56,6 +56,7 @@ pub fn worst(checks: &[Check]) -> CheckOutcome {
 }
 
 use super::{ArcResult, Measurement, PhaseKind, Unknown};
+use crate::core::numbers::measured;
 
 /// Reduced chi-square above which a fit fails outright: residuals five times the centre sigmas
 /// (common practice, no source: a point from another phase or a wrong image, not noise).
@@ -362,7 +363,8 @@ fn gravity_check(g: f64, sigma: f64) -> Check {
             GRAVITY_LOOSE * 100.0
         ),
         format!(
-            "gravity estimated from the arcs: {g:.4} +- {sigma:.4} m/s^2{}",
+            "gravity estimated from the arcs: {}{}",
+            measured(g, sigma, "m/s^2"),
             match outcome {
                 CheckOutcome::Warn => advice(
                     outcome,
@@ -487,11 +489,9 @@ fn vacuum_agreement(k: usize, b: &super::bounce::Bounce, fit_drag: bool) -> Chec
             "apex and flight-time estimates within {WARN_Z} sigma or {RESTITUTION_TOLERANCE} of e"
         ),
         format!(
-            "bounce {}: e = {:.4} +- {:.4} from velocities, {} from apex heights, {} from \
-             flight times{}",
+            "bounce {}: e = {} from velocities, {} from apex heights, {} from flight times{}",
             k + 1,
-            b.restitution,
-            b.restitution_sigma,
+            measured(b.restitution, b.restitution_sigma, ""),
             show(b.restitution_from_apex),
             show(b.restitution_from_flight_times),
             advice(
@@ -523,8 +523,9 @@ fn restitution_range(k: usize, b: &super::bounce::Bounce) -> Check {
         e,
         "0 <= e <= 1 within 3 sigma".into(),
         format!(
-            "bounce {}: e = {e:.4}{}",
+            "bounce {}: e = {}{}",
             k + 1,
+            measured(e, b.restitution_sigma, ""),
             advice(
                 outcome,
                 "a ball cannot rebound faster than it hit the floor: the arcs around this bounce \
@@ -558,10 +559,10 @@ fn launch_speed_check(l: &super::incline::Launch, i: &super::incline::InclineRes
         z,
         format!("within {WARN_Z} sigma"),
         format!(
-            "launch {:.4} m/s from the first arc, {:.4} m/s at the end of the incline; the \
-             phases' velocities meet {:.1} sigma outside the gap between their images{}",
-            l.speed_mps,
-            i.end_speed_mps,
+            "launch {} from the first arc, {} at the end of the incline; the phases' \
+             velocities meet {:.1} sigma outside the gap between their images{}",
+            measured(l.speed_mps, l.speed_sigma_mps, "m/s"),
+            measured(i.end_speed_mps, i.end_speed_sigma_mps, "m/s"),
             l.outside_span_z,
             advice(
                 outcome,
@@ -637,11 +638,9 @@ fn contact_check(k: usize, b: &super::bounce::Bounce, dt: f64) -> Check {
         b.contact_gap_s / dt,
         "|gap| <= 3 sigma + 0.1 flash interval".into(),
         format!(
-            "bounce {}: the arcs reach and leave the contact level {:.2} +- {:.2} flash \
-             intervals apart{}",
+            "bounce {}: the arcs reach and leave the contact level {} flash intervals apart{}",
             k + 1,
-            b.contact_gap_s / dt,
-            b.contact_gap_sigma_s / dt,
+            measured(b.contact_gap_s / dt, b.contact_gap_sigma_s / dt, ""),
             advice(
                 outcome,
                 "a flash may be missing or miscounted at this bounce"

@@ -411,7 +411,8 @@ fn validate(points: &[TimedPoint], radius_m: f64, options: &MeasureOptions) -> R
 /// the path; segment the calibrated path with the calibrated gravity for the final phases and
 /// arcs; then the optional drag fit (its gravity the headline one when gravity is estimated),
 /// the floor and the bounces, the restitution trend, the incline and the launch and the
-/// acceptance verdicts; last, the relative systematic joins the sigmas ([`systematic`]).
+/// self-checks; then the relative systematic joins the sigmas ([`systematic`]); last, the
+/// acceptance verdicts (values against bands, shown with those sigmas).
 pub fn measure(
     points: &[TimedPoint],
     radius_m: f64,
@@ -491,11 +492,12 @@ pub fn measure(
         verdicts: Vec::new(),
         checks: Vec::new(),
     };
-    m.verdicts = options.bands.iter().map(|b| b.judge(&m)).collect();
     m.checks = checks::physics_checks(&m, options.unknown, options.fit_drag);
     m.checks
         .extend(checks::above_floor(&pts, &m.floor, radius_m));
     systematic::add_systematic(&mut m, options.unknown);
+    // The bands test values only; judged last, their readings carry the sigmas reported.
+    m.verdicts = options.bands.iter().map(|b| b.judge(&m)).collect();
     Ok(m)
 }
 

@@ -118,7 +118,7 @@ pub fn bounce_check(number: usize, s: &BounceSpin) -> Check {
     )
 }
 
-/// `rolling_slip`: a slip read on an incline passes under `SLIP_TOLERANCE` or within three
+/// `rolling_slip`: a slip read on an incline passes under `SLIP_TOLERANCE` (0.02) or within three
 /// sigmas of 0 (rolling without slipping), and warns beyond.
 pub fn slip_check(slip: f64, sigma: f64) -> Check {
     let z = slip.abs() / sigma;

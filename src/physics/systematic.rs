@@ -6,9 +6,9 @@
 //! given), each bounce's restitution and tangential ratio, the launch speed, the incline's
 //! acceleration and end speed. The launch's speed and angle also take their hold shifts (how
 //! much they change between the launch time held between the phases' images and where the
-//! phases' velocities agree: an image near the launch fits either phase). The self-checks and
-//! verdicts are judged before, on the statistical sigmas alone, so these terms never hide a
-//! disagreement.
+//! phases' velocities agree: an image near the launch fits either phase). The self-checks are
+//! judged before, on the statistical sigmas alone, so these terms never hide a disagreement
+//! (the acceptance verdicts test values only, not sigmas).
 //!
 //! Why: the sigmas of the fits come from the centres' scatter and the arcs' residuals. What
 //! is common to many images and does not average out (the edge's place on a blurred,

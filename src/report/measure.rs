@@ -1,6 +1,7 @@
 //! The document of `beadline measure`: the timed path in pixels and metres, and the physics.
 
 use super::csv_rows;
+use crate::core::numbers::{fixed, measured};
 use crate::core::words::count;
 use crate::physics::checks::{self, Check, CheckOutcome};
 use crate::physics::{Measurement, Quantity};
@@ -175,22 +176,9 @@ pub struct MeasureDoc {
     pub measurement: Measurement,
 }
 
-/// `v` with 4 decimals, a rounding to zero written without its sign.
-fn fixed4(v: f64) -> String {
-    let s = format!("{v:.4}");
-    if s == "-0.0000" { "0.0000".into() } else { s }
-}
-
+/// A calibration quantity with its sigma and where it came from.
 fn quantity(q: &Quantity, unit: &str) -> String {
-    if q.value.is_finite() {
-        if q.sigma.is_finite() && q.sigma > 0.0 {
-            format!("{:.5} +- {:.5} {unit} ({})", q.value, q.sigma, q.source)
-        } else {
-            format!("{:.5} {unit} ({})", q.value, q.source)
-        }
-    } else {
-        format!("unknown ({})", q.source)
-    }
+    format!("{} ({})", measured(q.value, q.sigma, unit), q.source)
 }
 
 /// The checks that did not pass, worst first, one line each; a last line saying whether the
@@ -228,8 +216,57 @@ fn checks_text(checks: &[Check]) -> String {
     s
 }
 
+/// The incline, launch, floor and bounce lines.
+fn motion_text(m: &Measurement) -> String {
+    let mut s = String::new();
+    if let Some(i) = &m.incline {
+        s += &format!(
+            "  incline        {}, accel {} (ideal rolling {}), end speed {} (ideal {}), \
+             rolling loss {}\n",
+            measured(i.angle_deg, i.angle_sigma_deg, "deg"),
+            measured(i.accel_mps2, i.accel_sigma_mps2, "m/s^2"),
+            fixed(i.ideal_accel_mps2, 4),
+            measured(i.end_speed_mps, i.end_speed_sigma_mps, "m/s"),
+            fixed(i.ideal_end_speed_mps, 4),
+            measured(i.rolling_loss, i.rolling_loss_sigma, "")
+        );
+    }
+    if let Some(l) = &m.launch {
+        s += &format!(
+            "  launch         {} at {}, t = {}, at x = {} m, y = {} m\n",
+            measured(l.speed_mps, l.speed_sigma_mps, "m/s"),
+            measured(l.angle_deg, l.angle_sigma_deg, "deg"),
+            measured(l.t_s, l.t_sigma_s, "s"),
+            fixed(l.x_m, 4),
+            fixed(l.y_m, 4)
+        );
+    }
+    s += &format!(
+        "  floor          y = {} ({})\n",
+        measured(m.floor.y_m, m.floor.sigma_m, "m"),
+        m.floor.source
+    );
+    for (i, b) in m.bounces.iter().enumerate() {
+        s += &format!(
+            "  bounce {}       t = {} s, x = {} m, e = {}, impact {} m/s, rebound {} m/s",
+            i + 1,
+            fixed(b.t_s, 4),
+            fixed(b.x_m, 4),
+            measured(b.restitution, b.restitution_sigma, ""),
+            fixed(b.impact_speed_mps, 3),
+            fixed(b.rebound_speed_mps, 3)
+        );
+        if let Some(a) = b.restitution_from_apex {
+            s += &format!(", apex check {}", fixed(a, 4));
+        }
+        s += "\n";
+    }
+    s
+}
+
 impl MeasureDoc {
-    /// Summary for a person.
+    /// Summary for a person: every value with the digits its sigma warrants
+    /// ([`crate::core::numbers`]).
     pub fn text(&self) -> String {
         let m = &self.measurement;
         let mut s = format!(
@@ -246,9 +283,8 @@ impl MeasureDoc {
         s += &format!("  gravity        {}\n", quantity(&m.gravity_mps2, "m/s^2"));
         if let Some(r) = m.level.roll_deg {
             s += &format!(
-                "  camera roll    {:.3} +- {:.3} deg{}\n",
-                r,
-                m.level.roll_sigma_deg.unwrap_or(f64::NAN),
+                "  camera roll    {}{}\n",
+                measured(r, m.level.roll_sigma_deg.unwrap_or(f64::NAN), "deg"),
                 if m.level.corrected {
                     " (corrected)"
                 } else {
@@ -256,129 +292,92 @@ impl MeasureDoc {
                 }
             );
         }
-        if let Some(i) = &m.incline {
-            s += &format!(
-                "  incline        {:.2} deg, accel {:.4} +- {:.4} m/s^2 (ideal rolling {:.4}), \
-                 end speed {:.4} +- {:.4} m/s (ideal {:.4}), rolling loss {:.4}\n",
-                i.angle_deg,
-                i.accel_mps2,
-                i.accel_sigma_mps2,
-                i.ideal_accel_mps2,
-                i.end_speed_mps,
-                i.end_speed_sigma_mps,
-                i.ideal_end_speed_mps,
-                i.rolling_loss
-            );
+        s += &motion_text(m);
+        s += &self.extras_text();
+        for v in &m.verdicts {
+            s += &format!("  {}\n", v.text());
         }
-        if let Some(l) = &m.launch {
-            s += &format!(
-                "  launch         {:.4} +- {:.4} m/s at {:.2} +- {:.2} deg, t = {:.4} s, \
-                 at x = {} m, y = {} m\n",
-                l.speed_mps,
-                l.speed_sigma_mps,
-                l.angle_deg,
-                l.angle_sigma_deg,
-                l.t_s,
-                fixed4(l.x_m),
-                fixed4(l.y_m)
-            );
-        }
-        s += &format!(
-            "  floor          y = {} +- {:.4} m ({})\n",
-            fixed4(m.floor.y_m),
-            m.floor.sigma_m,
-            m.floor.source
-        );
-        for (i, b) in m.bounces.iter().enumerate() {
-            s += &format!(
-                "  bounce {}       t = {:.4} s, x = {} m, e = {:.4} +- {:.4}, impact {:.3} m/s, \
-                 rebound {:.3} m/s",
-                i + 1,
-                b.t_s,
-                fixed4(b.x_m),
-                b.restitution,
-                b.restitution_sigma,
-                b.impact_speed_mps,
-                b.rebound_speed_mps
-            );
-            if let Some(a) = b.restitution_from_apex {
-                s += &format!(", apex check {a:.4}");
-            }
-            s += "\n";
-        }
+        s + &checks_text(&m.checks)
+    }
+
+    /// The restitution trend, drag, motion in depth and spin lines.
+    fn extras_text(&self) -> String {
+        let m = &self.measurement;
+        let mut s = String::new();
         if let Some(t) = &m.restitution_trend {
             s += &format!(
-                "  e vs impact    slope {:.4} +- {:.4} s/m over {}\n",
-                t.slope_s_per_m,
-                t.slope_sigma_s_per_m,
+                "  e vs impact    slope {} over {}\n",
+                measured(t.slope_s_per_m, t.slope_sigma_s_per_m, "s/m"),
                 count(t.bounces, "bounce", "bounces")
             );
         }
         if let Some(d) = &m.drag {
             s += &format!(
-                "  drag           {:.4} +- {:.4} 1/m\n",
-                d.drag_per_m, d.drag_sigma_per_m
+                "  drag           {}\n",
+                measured(d.drag_per_m, d.drag_sigma_per_m, "1/m")
             );
         }
         if let Some(d) = &self.depth {
+            let change = fixed(d.distance_change_per_s * 100.0, 1);
+            let sign = if change.starts_with('-') || change == "0.0" {
+                ""
+            } else {
+                "+"
+            };
             s += &format!(
-                "  depth          the ball's image {} by {:.1} % along the path: its distance \
-                 changes by {:+.1} % per second; every image brought into the plane of the \
-                 median image\n",
+                "  depth          the ball's image {} by {} % along the path: its distance \
+                 changes by {sign}{change} % per second; every image brought into the plane of \
+                 the median image\n",
                 if d.size_change >= 0.0 {
                     "grows"
                 } else {
                     "shrinks"
                 },
-                d.size_change.abs() * 100.0,
-                d.distance_change_per_s * 100.0
+                fixed(d.size_change.abs() * 100.0, 1),
             );
             if let (Some(v), Some(sv), Some(z)) =
                 (d.toward_camera_mps, d.toward_camera_sigma_mps, d.distance_m)
             {
                 s += &format!(
-                    "  depth speed    {v:.4} +- {sv:.4} m/s toward the camera ({z:.3} m away)\n"
+                    "  depth speed    {} toward the camera ({} m away)\n",
+                    measured(v, sv, "m/s"),
+                    fixed(z, 3)
                 );
             }
         }
         for p in &self.spin {
             s += &format!(
-                "  spin           {} n {}..{}: {:.3} +- {:.3} turns/s ({} turns read)",
-                p.kind, p.first_n, p.last_n, p.spin_hz, p.spin_hz_sigma, p.steps_read
+                "  spin           {} n {}..{}: {} ({} turns read)",
+                p.kind,
+                p.first_n,
+                p.last_n,
+                measured(p.spin_hz, p.spin_hz_sigma, "turns/s"),
+                p.steps_read
             );
             if let (Some(slip), Some(sig)) = (p.slip, p.slip_sigma) {
-                s += &format!(", slip {slip:.3} +- {sig:.3} (0: rolling without slipping)");
+                s += &format!(
+                    ", slip {} (0: rolling without slipping)",
+                    measured(slip, sig, "")
+                );
             }
             s += "\n";
         }
         for b in &self.spin_bounces {
             s += &format!(
-                "  spin at bounce {}: {:.3} +- {:.3} turns/s before, {:.3} +- {:.3} after",
+                "  spin at bounce {}: {} before, {} after",
                 b.bounce,
-                b.spin_before_hz,
-                b.spin_before_hz_sigma,
-                b.spin_after_hz,
-                b.spin_after_hz_sigma
+                measured(b.spin_before_hz, b.spin_before_hz_sigma, "turns/s"),
+                measured(b.spin_after_hz, b.spin_after_hz_sigma, "turns/s")
             );
             if let (Some(k), Some(sk)) = (b.inertia_factor, b.inertia_factor_sigma) {
-                s += &format!(" (moment-of-inertia factor {k:.2} +- {sk:.2})");
+                s += &format!(" (moment-of-inertia factor {})", measured(k, sk, ""));
             }
             s += "\n";
         }
         if let Some(note) = &self.spin_note {
             s += &format!("  spin note      {note}\n");
         }
-        for v in &m.verdicts {
-            s += &format!(
-                "  band {} {}..{}: {} {}\n",
-                v.band.quantity,
-                v.band.min,
-                v.band.max,
-                crate::core::words::name(&v.outcome),
-                v.note
-            );
-        }
-        s + &checks_text(&m.checks)
+        s
     }
 
     /// CSV of the path.

@@ -1,6 +1,7 @@
 //! The document of `beadline path`: the ball's path in time order and the strays.
 
 use super::{SCHEMA_VERSION, csv_rows};
+use crate::core::numbers::cells;
 use crate::core::words::{count, name};
 use crate::track::{PathPoint, PathResult, Stray};
 use serde::{Deserialize, Serialize};
@@ -47,12 +48,12 @@ impl PathDoc {
             count(self.other_paths.len(), "other path", "other paths"),
             count(self.strays.len(), "stray", "strays")
         );
-        s += "    n      x_px      y_px    r_px  sigma_px\n";
+        // Centres to the digits their sigma warrants (crate::core::numbers::cells).
+        s += "    n       x_px       y_px    r_px  sigma_px\n";
         for p in &self.path {
-            s += &format!(
-                "{:5} {:9.3} {:9.3} {:7.3} {:9.4}\n",
-                p.n, p.x_px, p.y_px, p.r_px, p.sigma_px
-            );
+            let (x, sigma) = cells(p.x_px, p.sigma_px, 3);
+            let (y, _) = cells(p.y_px, p.sigma_px, 3);
+            s += &format!("{:5} {x:>10} {y:>10} {:7.3} {sigma:>9}\n", p.n, p.r_px);
         }
         for st in &self.strays {
             s += &format!(

@@ -3,6 +3,7 @@
 
 use super::{SCHEMA_VERSION, csv_rows};
 use crate::core::light::Polarity;
+use crate::core::numbers::cells;
 use crate::detect::count::LightGroup;
 use crate::detect::{Rejected, Spot, SpotOptions, SpotReport};
 use serde::{Deserialize, Serialize};
@@ -38,7 +39,8 @@ pub struct SpotSettings {
     pub max_rms_px: f64,
     /// All images were taken to share one radius.
     pub one_radius: bool,
-    /// Systematic edge uncertainty, pixels x radius.
+    /// K of the systematic edge sigma K x max(1/r, 16/r^2) px, r the common radius in px
+    /// (`--edge-systematic`).
     pub edge_systematic_px_r: f64,
     /// Largest common radius at which isolated images get the shaded-sphere fit, pixels.
     pub shaded_max_r_px: f64,
@@ -135,11 +137,14 @@ impl SpotsDoc {
             crate::core::words::name(&self.settings.polarity),
             self.settings.noise_sigma
         );
-        s += "    #      x_px      y_px    r_px  sigma_px  score\n";
+        // Centres to the digits their sigma warrants (crate::core::numbers::cells).
+        s += "    #       x_px       y_px    r_px  sigma_px  score\n";
         for (i, p) in self.spots.iter().enumerate() {
+            let (x, sigma) = cells(p.x_px, p.sigma_px, 3);
+            let (y, _) = cells(p.y_px, p.sigma_px, 3);
             s += &format!(
-                "{:5} {:9.3} {:9.3} {:7.3} {:9.4} {:6.2}\n",
-                i, p.x_px, p.y_px, p.r_px, p.sigma_px, p.score
+                "{i:5} {x:>10} {y:>10} {:7.3} {sigma:>9} {:6.2}\n",
+                p.r_px, p.score
             );
         }
         for r in &self.rejected {

@@ -2,8 +2,9 @@
 //!
 //! Goes in: photo paths (files, folders, globs) or a folder to watch, one [`MeasureSettings`]
 //! (usually from a rig [`profile::Profile`] plus command-line flags) and [`RigOptions`]. Comes out: one
-//! [`PhotoResult`] per photo, written as one whole JSON line each (the measure JSON plus `file`
-//! and `status`: `ok`, `out_of_band` or `error` with an `error` message), an optional summary
+//! [`PhotoResult`] per photo, written as one whole JSON line each ([`ResultLine`]: `file` and
+//! `status` first, `ok`, `out_of_band`, `doubtful` or `error` with an `error` message, then the
+//! measure JSON), an optional summary
 //! CSV ([`summary::summary_csv`]), optional overlays, and in watch mode a [`Journal`] of done photos so a
 //! restart processes each photo exactly once.
 //!
@@ -91,24 +92,91 @@ pub struct PhotoResult {
     pub doc: Option<MeasureDoc>,
 }
 
-impl PhotoResult {
-    /// The result as one JSON line (with the trailing newline).
-    pub fn json_line(&self) -> String {
-        let mut v = match &self.doc {
-            Some(doc) => serde_json::to_value(doc)
-                .unwrap_or_else(|e| serde_json::json!({ "serialise_error": e.to_string() })),
-            None => serde_json::Value::Object(Default::default()),
-        };
-        if let serde_json::Value::Object(map) = &mut v {
-            map.insert("file".into(), self.file.clone().into());
-            map.insert("status".into(), self.status.name().into());
-            if let Some(e) = &self.error {
-                map.insert("error".into(), e.clone().into());
-            }
+/// One result line, its keys in this order: `file`, `status`, `error` (status `error` only),
+/// then the measure document's keys as `beadline measure --format json` writes them (less its
+/// `file`): `width_px` ... `spin_note`, `schema_version` ... `checks` (see [`LineDoc`]).
+#[derive(Debug, Serialize)]
+pub struct ResultLine<'a> {
+    /// The photo as listed.
+    pub file: &'a str,
+    /// `ok`, `out_of_band`, `doubtful` or `error`.
+    pub status: &'static str,
+    /// The one-line error message (status `error`; absent otherwise).
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub error: Option<&'a str>,
+    /// The measurement (absent for status `error`).
+    #[serde(flatten, skip_serializing_if = "Option::is_none")]
+    pub doc: Option<LineDoc<'a>>,
+}
+
+/// The measure document in a result line: every key of [`MeasureDoc`] in its order but `file`
+/// (the line's own `file` comes first).
+#[derive(Debug, Serialize)]
+pub struct LineDoc<'a> {
+    /// See [`MeasureDoc::width_px`].
+    pub width_px: usize,
+    /// See [`MeasureDoc::height_px`].
+    pub height_px: usize,
+    /// See [`MeasureDoc::spots_found`].
+    pub spots_found: usize,
+    /// See [`MeasureDoc::origin`].
+    pub origin: &'a crate::report::measure::WorldOrigin,
+    /// See [`MeasureDoc::path`].
+    pub path: &'a [crate::report::measure::PathEntry],
+    /// See [`MeasureDoc::missing`].
+    pub missing: &'a [usize],
+    /// See [`MeasureDoc::strays`].
+    pub strays: &'a [crate::track::Stray],
+    /// See [`MeasureDoc::depth`].
+    pub depth: Option<&'a crate::report::measure::DepthDoc>,
+    /// See [`MeasureDoc::spin`].
+    pub spin: &'a [crate::report::measure::SpinPhase],
+    /// See [`MeasureDoc::spin_bounces`].
+    pub spin_bounces: &'a [crate::report::measure::SpinBounce],
+    /// See [`MeasureDoc::spin_note`].
+    pub spin_note: Option<&'a str>,
+    /// See [`MeasureDoc::measurement`] (flattened: `schema_version` first).
+    #[serde(flatten)]
+    pub measurement: &'a crate::physics::Measurement,
+}
+
+impl<'a> LineDoc<'a> {
+    /// The line's view of `doc`.
+    pub fn of(doc: &'a MeasureDoc) -> LineDoc<'a> {
+        LineDoc {
+            width_px: doc.width_px,
+            height_px: doc.height_px,
+            spots_found: doc.spots_found,
+            origin: &doc.origin,
+            path: &doc.path,
+            missing: &doc.missing,
+            strays: &doc.strays,
+            depth: doc.depth.as_ref(),
+            spin: &doc.spin,
+            spin_bounces: &doc.spin_bounces,
+            spin_note: doc.spin_note.as_deref(),
+            measurement: &doc.measurement,
         }
-        let mut line = v.to_string();
-        line.push('\n');
-        line
+    }
+}
+
+impl PhotoResult {
+    /// The result as one JSON line (with the trailing newline), keys in the order of
+    /// [`ResultLine`].
+    pub fn json_line(&self) -> String {
+        let line = ResultLine {
+            file: &self.file,
+            status: self.status.name(),
+            error: self.error.as_deref(),
+            doc: self.doc.as_ref().map(LineDoc::of),
+        };
+        let mut text = serde_json::to_string(&line).unwrap_or_else(|e| {
+            serde_json::json!({ "file": self.file, "status": "error",
+                "error": format!("result not written: {e}") })
+            .to_string()
+        });
+        text.push('\n');
+        text
     }
 }
 

@@ -58,10 +58,21 @@ pub struct Plan {
     pub uncovered_path_m: f64,
     /// Every wish is met.
     pub meets_wishes: bool,
-    /// What could not be met and which wish to drop.
+    /// The wishes no setting meets, each with how far to relax it (empty: every wish is met).
+    pub unmet_wishes: Vec<UnmetWish>,
+    /// What the plan could not cover (the ball bounces fewer times, leaves the frame).
     pub warnings: Vec<String>,
     /// Safety caution for the rate, when it applies.
     pub caution: Option<String>,
+}
+
+/// A wish no setting of the flash unit meets, and how to relax it.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct UnmetWish {
+    /// Its key in the scene's `[wishes]` table, e.g. `min_images_per_arc`.
+    pub wish: String,
+    /// What the closest setting gives and the value it would need, in words.
+    pub advice: String,
 }
 
 /// What `measure` resolves, which every recommended shot must give (see the README's spots
@@ -91,6 +102,9 @@ pub enum PlanError {
     NoFlashUnit,
     /// No setting of the flash unit gives a photo that `measure` resolves: the reason.
     Unmeasurable(String),
+    /// Settings give a photo `measure` resolves, but none meets every wish: how to relax each
+    /// wish missed by the closest one ([`Plan::unmet`]).
+    WishesUnmet(Vec<String>),
 }
 
 impl std::fmt::Display for PlanError {
@@ -103,6 +117,12 @@ impl std::fmt::Display for PlanError {
                 f,
                 "refused: no setting of the flash unit gives a photo that measure can resolve: \
                  {why}"
+            ),
+            PlanError::WishesUnmet(advice) => write!(
+                f,
+                "no setting of the flash unit meets every wish: {}; the plan given is the \
+                 closest",
+                advice.join("; ")
             ),
         }
     }
@@ -293,13 +313,15 @@ fn unresolvable(t: &Trial) -> (Vec<String>, Vec<String>) {
         .find(|(_, n)| **n < r.min_images_per_arc)
     {
         out.push(format!(
-            "{n} images on flight arc {k} (measure fits an arc, each side of a bounce, from {})",
+            "{} on flight arc {k} (measure fits an arc, each side of a bounce, from {})",
+            crate::core::words::count(*n, "image", "images"),
             r.min_images_per_arc
         ));
     }
     if let Some(n) = t.incline_images.filter(|n| *n < r.min_images_per_arc) {
         out.push(format!(
-            "{n} images on the incline (the launch needs {} there)",
+            "{} on the incline (the launch needs {} there)",
+            crate::core::words::count(n, "image", "images"),
             r.min_images_per_arc
         ));
     }
@@ -323,6 +345,39 @@ fn misses(t: &Trial, w: &Wishes, covered: &Coverage, max_flashes: usize) -> Vec<
         out.push("bounces");
     }
     out
+}
+
+/// How to relax the wish `wish` (a name from [`misses`]) so that trial `t` meets it.
+fn relax(wish: &str, t: &Trial, wishes: &Wishes, l: &PowerLevel) -> String {
+    // Two decimals, rounded toward what the trial gives (so the relaxed wish is met).
+    let down = |v: f64| (v * 100.0).floor() / 100.0;
+    let up = |v: f64| (v * 100.0).ceil() / 100.0;
+    match wish {
+        "min_images_per_arc" => format!(
+            "the closest gives {:?} images per arc, not {} on each: lower \
+             wishes.min_images_per_arc to {}",
+            t.images_per_arc,
+            wishes.min_images_per_arc,
+            t.images_per_arc.iter().copied().min().unwrap_or(0)
+        ),
+        "min_separation_diameters" => format!(
+            "fast images are only {:.2} diameters apart: lower wishes.min_separation_diameters \
+             to {}",
+            t.fast_d,
+            down(t.fast_d)
+        ),
+        "max_blur_px" => format!(
+            "motion blur is {:.2} px: raise wishes.max_blur_px to {}, or use a shorter flash",
+            t.blur_px,
+            up(t.blur_px)
+        ),
+        _ => format!(
+            "{} at {} cannot cover the path to bounce {}: lower wishes.bounces",
+            crate::core::words::count(l.max_flashes, "flash", "flashes"),
+            l.name,
+            wishes.bounces
+        ),
+    }
 }
 
 /// Plan the shot for `scene`.
@@ -386,29 +441,13 @@ pub fn plan(scene: &Scene) -> Result<Plan, PlanError> {
     };
     let (t, miss) = best;
     let l = &unit.levels[t.level];
-    let mut warnings = covered.warnings.clone();
-    for m in &miss {
-        warnings.push(match *m {
-            "min_images_per_arc" => format!(
-                "no setting gives {} images on every arc (best: {:?}): lower wishes.min_images_per_arc",
-                wishes.min_images_per_arc, t.images_per_arc
-            ),
-            "min_separation_diameters" => format!(
-                "fast images are only {:.2} diameters apart: lower wishes.min_separation_diameters",
-                t.fast_d
-            ),
-            "max_blur_px" => format!(
-                "motion blur {:.2} px over the limit: raise wishes.max_blur_px or use a shorter flash",
-                t.blur_px
-            ),
-            _ => format!(
-                "{} at {} cannot cover the path to bounce {}: lower wishes.bounces",
-                crate::core::words::count(l.max_flashes, "flash", "flashes"),
-                l.name,
-                wishes.bounces
-            ),
-        });
-    }
+    let unmet_wishes = miss
+        .iter()
+        .map(|m| UnmetWish {
+            wish: m.to_string(),
+            advice: relax(m, &t, &wishes, l),
+        })
+        .collect();
     let in_band = t.rate_hz >= CAUTION_BAND_HZ.0 && t.rate_hz <= CAUTION_BAND_HZ.1;
     Ok(Plan {
         power_level: l.name.clone(),
@@ -423,7 +462,8 @@ pub fn plan(scene: &Scene) -> Result<Plan, PlanError> {
         blur_px: t.blur_px,
         uncovered_path_m: t.uncovered_m,
         meets_wishes: miss.is_empty(),
-        warnings,
+        unmet_wishes,
+        warnings: covered.warnings,
         caution: in_band.then(|| CAUTION.to_string()),
     })
 }
@@ -438,6 +478,13 @@ impl Plan {
         s.strobe.flash_duration_s = self.flash_duration_s;
         s.strobe.max_flashes = Some(self.flashes);
         s
+    }
+
+    /// The wishes this plan misses, as the error a caller reports (None: it meets them all).
+    pub fn unmet(&self) -> Option<PlanError> {
+        (!self.unmet_wishes.is_empty()).then(|| {
+            PlanError::WishesUnmet(self.unmet_wishes.iter().map(|u| u.advice.clone()).collect())
+        })
     }
 
     /// Text for a person.
@@ -462,11 +509,14 @@ impl Plan {
             self.flash_duration_s * 1e6
         );
         s += &format!("  path after last image {:.3} m\n", self.uncovered_path_m);
-        s += if self.meets_wishes {
-            "  meets every wish\n"
+        if self.unmet_wishes.is_empty() {
+            s += "  meets every wish\n";
         } else {
-            "  does NOT meet every wish\n"
-        };
+            s += "  no setting meets every wish: this is the closest; relax\n";
+            for u in &self.unmet_wishes {
+                s += &format!("    {}: {}\n", u.wish, u.advice);
+            }
+        }
         for w in &self.warnings {
             s += &format!("  warning: {w}\n");
         }
