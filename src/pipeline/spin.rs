@@ -356,34 +356,74 @@ fn note(sigs: &[Result<Signature, NoReading>], no_angle: usize) -> Option<String
     let plain = count(NoReading::Plain);
     if plain > 0 {
         parts.push(format!(
-            "{plain} show no marking strong enough to read (varying the ball's light by under \
-             10 %)"
+            "{plain} {} no marking strong enough to read (varying the ball's light by under \
+             10 %)",
+            verb(plain, "shows", "show")
         ));
     }
     let symmetric = count(NoReading::Symmetric);
     if symmetric > 0 {
         parts.push(format!(
-            "{symmetric} show markings that look the same turned half a turn"
+            "{symmetric} {} markings that look the same turned half a turn",
+            verb(symmetric, "shows", "show")
         ));
     }
     let covered = count(NoReading::Covered);
     if covered > 0 {
         parts.push(format!(
-            "{covered} are covered by other images or cut by the frame"
+            "{covered} {} covered by other images or cut by the frame",
+            verb(covered, "is", "are")
         ));
     }
     let others = no_angle.saturating_sub(plain + symmetric + covered);
     if others > 0 {
         parts.push(format!(
-            "{others} more are not joined to the others by a turn read (a second match nearly \
+            "{others} more {} not joined to the others by a turn read (a second match nearly \
              as good, a missing flash, or a turn that could be a whole turn more or less: over \
              a quarter turn, or the ball moved over 4 radii, between flashes, with no spin read \
-             nearby to tell; a faster flash rate reads those)"
+             nearby to tell; a faster flash rate reads those)",
+            verb(others, "is", "are")
         ));
     }
     Some(format!(
-        "{no_angle} of {} images have no spin angle: {}",
+        "{no_angle} of {} images {} no spin angle: {}",
         sigs.len(),
+        verb(no_angle, "has", "have"),
         parts.join("; ")
     ))
+}
+
+/// The verb that agrees with a count: `one` for 1, `many` otherwise ("1 shows", "2 show").
+fn verb(n: usize, one: &'static str, many: &'static str) -> &'static str {
+    if n == 1 { one } else { many }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn the_spin_note_agrees_its_verbs_with_the_counts() {
+        let sigs = [
+            Err(NoReading::Plain),
+            Err(NoReading::Covered),
+            Err(NoReading::Symmetric),
+            Err(NoReading::Covered),
+            Err(NoReading::Plain),
+            Err(NoReading::Plain),
+        ];
+        let one = note(&sigs[..3], 4).unwrap();
+        for words in [
+            "1 shows no marking",
+            "1 shows markings",
+            "1 is covered",
+            "1 more is not",
+        ] {
+            assert!(one.contains(words), "{one}");
+        }
+        let many = note(&sigs, 7).unwrap();
+        for words in ["3 show no marking", "2 are covered", "7 of 6 images have"] {
+            assert!(many.contains(words), "{many}");
+        }
+    }
 }
