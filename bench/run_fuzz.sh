@@ -8,7 +8,7 @@
 #   TARGET           load_spots, profile, scene (default: all three)
 # Environment: FUZZ_SANITIZER (address or none, default address), FUZZ_MAX_TIME (seconds, a
 # bound on each run besides the count; default none).
-# The growing corpus is fuzz/corpus/<target> (ignored by git), seeded from fuzz/seeds/<target>.
+# The growing corpus is bench/fuzz/corpus/<target> (ignored by git), seeded from bench/fuzz/seeds/<target>.
 set -euo pipefail
 root="$(cd "$(dirname "$0")/.." && pwd)"
 cd "$root"
@@ -28,15 +28,15 @@ for target in "${targets[@]}"; do
         # Each decode and spot search costs far more than a parse.
         n=$((runs / 10))
     fi
-    corpus="fuzz/corpus/$target"
+    corpus="bench/fuzz/corpus/$target"
     mkdir -p "$corpus"
-    log="fuzz/$target.log"
+    log="bench/fuzz/$target.log"
     extra=()
     [ -n "${FUZZ_MAX_TIME:-}" ] && extra+=("-max_total_time=$FUZZ_MAX_TIME")
     start=$(date +%s)
     # -rss_limit_mb: the decoding limits must keep memory bounded on any input.
     set +e
-    cargo fuzz run --fuzz-dir fuzz --sanitizer "$sanitizer" "$target" "$corpus" "fuzz/seeds/$target" -- \
+    cargo fuzz run --fuzz-dir bench/fuzz --sanitizer "$sanitizer" "$target" "$corpus" "bench/fuzz/seeds/$target" -- \
         -runs="$n" -max_len="$max_len" -rss_limit_mb=2048 -timeout=60 \
         "${extra[@]}" >"$log" 2>&1
     status=$?
@@ -45,7 +45,7 @@ for target in "${targets[@]}"; do
     tail -n 3 "$log"
     execs=$(grep -o 'Done [0-9]* runs' "$log" | tail -n 1 | grep -o '[0-9]*' || echo "?")
     if [ "$status" -ne 0 ]; then
-        echo "run_fuzz: $target: FAILED (status $status) after ${secs} s; see $log and fuzz/artifacts/$target/"
+        echo "run_fuzz: $target: FAILED (status $status) after ${secs} s; see $log and bench/fuzz/artifacts/$target/"
         exit "$status"
     fi
     echo "run_fuzz: $target: $execs executions in ${secs} s without a crash"

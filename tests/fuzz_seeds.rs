@@ -1,7 +1,7 @@
 //! The fuzz targets' inputs replayed without the fuzzer: every committed seed (and every saved
-//! crashing input under fuzz/regressions/) goes through the same calls as the targets in
-//! fuzz/fuzz_targets and must give a result or a typed error naming the file, never a panic.
-//! This is CI's smoke run of the fuzz targets; the fuzzer itself runs with fuzz/smoke.sh.
+//! crashing input under bench/fuzz/regressions/) goes through the same calls as the targets in
+//! bench/fuzz/fuzz_targets and must give a result or a typed error naming the file, never a panic.
+//! This is CI's smoke run of the fuzz targets; the fuzzer itself runs with bench/fuzz/smoke.sh.
 
 use beadline::detect::{SpotOptions, find_spots};
 use beadline::image::load::{LoadOptions, load_bytes};
@@ -9,9 +9,9 @@ use beadline::rig::profile::Profile;
 use beadline::synth::scene::Scene;
 use std::path::{Path, PathBuf};
 
-/// Every file under fuzz/seeds/TARGET and fuzz/regressions/TARGET.
+/// Every file under bench/fuzz/seeds/TARGET and bench/fuzz/regressions/TARGET.
 fn inputs(target: &str) -> Vec<PathBuf> {
-    let root = Path::new(env!("CARGO_MANIFEST_DIR")).join("fuzz");
+    let root = Path::new(env!("CARGO_MANIFEST_DIR")).join("bench/fuzz");
     let mut files = Vec::new();
     for dir in ["seeds", "regressions"] {
         if let Ok(entries) = std::fs::read_dir(root.join(dir).join(target)) {
@@ -26,7 +26,7 @@ fn inputs(target: &str) -> Vec<PathBuf> {
 fn loader_and_spot_finder_take_every_seed() {
     let files = inputs("load_spots");
     assert!(files.len() >= 5, "seeds missing: {files:?}");
-    // The target's tight limits (fuzz/fuzz_targets/load_spots.rs).
+    // The target's tight limits (bench/fuzz/fuzz_targets/load_spots.rs).
     let options = LoadOptions {
         max_side_px: 4096,
         max_megapixels: 4.0,

@@ -397,7 +397,8 @@ pub(crate) struct DetectArgs {
     /// the photo's well-covered images, when that is larger).
     #[arg(long, default_value_t = 0.5, help_heading = TUNING)]
     pub(crate) max_rms: f64,
-    /// Images fainter than this fraction of the median rim contrast are rejected as reflections.
+    /// Images whose brightest rim quarter is fainter than this fraction of the median rim
+    /// contrast are rejected as reflections.
     #[arg(long, default_value_t = 0.5, help_heading = TUNING)]
     pub(crate) faint: f64,
     /// Refuse photos with more candidate regions than this.
