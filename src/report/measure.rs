@@ -248,13 +248,16 @@ fn motion_text(m: &Measurement) -> String {
     );
     for (i, b) in m.bounces.iter().enumerate() {
         s += &format!(
-            "  bounce {}       t = {} s, x = {} m, e = {}, impact {} m/s, rebound {} m/s",
+            "  bounce {}       t = {} s, x = {} m, e = {}, speed in {} m/s (normal {}), out {} \
+             m/s (normal {})",
             i + 1,
             fixed(b.t_s, 4),
             fixed(b.x_m, 4),
             measured(b.restitution, b.restitution_sigma, ""),
             fixed(b.impact_speed_mps, 3),
-            fixed(b.rebound_speed_mps, 3)
+            fixed(b.impact_normal_speed_mps, 3),
+            fixed(b.rebound_speed_mps, 3),
+            fixed(b.rebound_velocity_mps[1].abs(), 3)
         );
         if let Some(a) = b.restitution_from_apex {
             s += &format!(", apex check {}", fixed(a, 4));
