@@ -42,7 +42,9 @@ fn a_ball_moving_in_depth_is_not_measured_silently() {
     // The last arc's apex: by eye its images merge, and the horizontal steps there are
     // 20-24 px a flash (labelled from the overlay, testimages README), so the 69 px from the
     // image at x 708 px to the one at x 777 px holds three flashes, not two. Every step of
-    // that arc, per flash counted, lies within a quarter of the arc's median step.
+    // that arc, per flash counted, lies within a third of the arc's median step (with two flashes
+    // in that gap, the step there is 47 % over it; the steps grow to 30 px at the arc's end as
+    // the ball comes nearer).
     let second = phases
         .iter()
         .rfind(|p| p.kind == PhaseKind::Flight)
@@ -61,7 +63,7 @@ fn a_ball_moving_in_depth_is_not_measured_silently() {
     sorted.sort_by(f64::total_cmp);
     let median = sorted[sorted.len() / 2];
     assert!(
-        steps.iter().all(|s| (s / median - 1.0).abs() < 0.25),
+        steps.iter().all(|s| (s / median - 1.0).abs() < 1.0 / 3.0),
         "x steps per flash {steps:?}"
     );
     // About 30 images by eye (testimages README); the last, faint one is not on the path.

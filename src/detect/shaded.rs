@@ -91,12 +91,12 @@ pub(crate) fn shaded_basis(
 }
 
 /// Evidence that a shaded fit's light `fit_uv`, and not `other_uv`, lit the ball image in
-/// `window`: `n ln(RSS_other / RSS_fit)` at the fitted silhouette `c`, less Schwarz's penalty for the two light
-/// parameters (`2 ln n`), `n` the pixels divided by the correlation factor of their residuals
-/// (BIC, Schwarz, Ann. Statist. 6, 1978). Positive: the pixels tell the two lights apart and
-/// prefer the fit's; at or below zero, the other light explains them as well (a small image
-/// whose shading is mostly blur, where the fitted light wanders). None when either residual
-/// cannot be computed.
+/// `window`: `n ln(RSS_other / RSS_fit)` at the fitted silhouette `c`, less Schwarz's penalty
+/// for the two light parameters (`2 ln n`), `n` the pixels divided by the correlation factor of
+/// their residuals (BIC, Schwarz, Ann. Statist. 6, 1978). Positive: the pixels tell the two
+/// lights apart and prefer the fit's; at or below zero, the other light explains them as well (a
+/// small image whose shading is mostly blur, where the fitted light wanders). None when either
+/// residual cannot be computed.
 pub fn light_evidence(
     window: &[WindowPixel],
     c: Circle,

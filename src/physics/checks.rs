@@ -741,8 +741,8 @@ const DEPTH_CHANGE: f64 = 0.03;
 const DEPTH_CHANGE_FAIL: f64 = 0.10;
 
 /// The ball's size in the plane of motion should not change along the path: a trend means
-/// motion in depth, which the in-plane model cannot follow. `flash_n` and `r_m` are the path's flash indexes
-/// and image radii in metres (pixels over the local scale).
+/// motion in depth, which the in-plane model cannot follow. `flash_n` and `r_m` are the path's
+/// flash indexes and image radii in metres (pixels over the local scale).
 pub fn radius_trend(flash_n: &[f64], r_m: &[f64]) -> Option<Check> {
     let n = flash_n.len();
     if n < 6 || r_m.len() != n {
@@ -819,8 +819,10 @@ pub fn ball_size(measured_m: f64, given_m: f64) -> Check {
     )
 }
 
-/// The checks of the motion in the plane that a ball out of that plane makes fail.
-const PLANE_CHECKS: [&str; 7] = [
+/// The checks of the motion in the plane that a ball out of that plane makes fail (the floor
+/// too: the contact level of one bounce is not the floor's where the ball is nearer or farther).
+const PLANE_CHECKS: [&str; 8] = [
+    "above_floor",
     "arc_fit",
     "arc_agreement",
     "restitution_agreement",

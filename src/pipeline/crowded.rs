@@ -5,12 +5,13 @@
 //! to the spots, found `predicted_and_confirmed`), and the measurement run again on them; or
 //! everything as it was when nothing was added or the physics did not keep it.
 //!
-//! Three stretches are tried: the crowded start of a roll (the flashes before the first image
+//! Four stretches are tried: the crowded start of a roll (the flashes before the first image
 //! of a path that begins on the incline, backwards to the release and a few flashes at rest
 //! before it); what led into a path that begins with a flight (that flight, earlier, or a roll
 //! from rest through the strays behind its first image: an incline whose images all merged,
-//! none on the path; whichever misfits the pixels less); and each run of missing flashes inside
-//! a fitted phase (between the phase's images on both sides). All fit
+//! none on the path; whichever misfits the pixels less); each run of missing flashes inside
+//! a fitted phase (between the phase's images on both sides); and the flash after the path's
+//! last image, where the phase that ends there puts it (a faint last image). All fit
 //! the photo's own image of the ball along the phase's motion; the result is kept only when no
 //! more checks fail or warn and the phases and bounces stay the same
 //! ([`super::kept_if_no_worse`]; for the roll led into a flight, an incline phase comes first
@@ -121,7 +122,8 @@ pub(super) fn crowded(
     let Some((photo_path, settings)) = photo else {
         return state;
     };
-    let wanted = |s: &State| start_wanted(s) || lead_in_wanted(s) || !gaps(s).is_empty();
+    let wanted =
+        |s: &State| start_wanted(s) || lead_in_wanted(s) || !gaps(s).is_empty() || end_wanted(s);
     if !wanted(&state) {
         return state;
     }
@@ -194,7 +196,85 @@ pub(super) fn crowded(
             Some((n0, fit_chain(&pixels, &one, &stretch.borrow(&to_px), r_px)?))
         })
         .collect();
-    try_with(state, filled, false)
+    let state = try_with(state, filled, false);
+    let ended: Vec<(i64, ChainFit)> = end_stretch(&state, &plane, r_px, (w, h))
+        .and_then(|(n0, stretch)| {
+            Some((n0, fit_chain(&pixels, &one, &stretch.borrow(&to_px), r_px)?))
+        })
+        .into_iter()
+        .collect();
+    try_with(state, ended, false)
+}
+
+/// The path's last image ends a fitted phase with enough images to seed the flash after it.
+fn end_wanted(state: &State) -> bool {
+    let (_, paths, _, m) = state;
+    let Some(last) = paths.paths.first().and_then(|b| b.points.last()) else {
+        return false;
+    };
+    m.phases.iter().any(|p| {
+        p.kind != PhaseKind::Bounce
+            && p.kind != PhaseKind::Unfitted
+            && p.last_n == last.n
+            && p.last_n >= p.first_n + END_SEEDS - 1
+    })
+}
+
+/// Images of its phase before the path's last that seed the flash after it.
+const END_SEEDS: usize = 4;
+
+/// The flash after the path's last image, when that image ends a fitted phase (a flight, a
+/// roll) of at least [`END_SEEDS`] images on the path and the phase's motion puts the flash's
+/// image wholly inside the `w` x `h` photo: a faint last image (a flash that fired weaker, the
+/// edge of the light) that the detector called a weak rim. One flash only: the phase may end
+/// there (a bounce, the floor), and the pixels must then show no ball where it would be.
+fn end_stretch(
+    state: &State,
+    plane: &Plane,
+    r_px: f64,
+    (w, h): (f64, f64),
+) -> Option<(i64, Owned)> {
+    let (report, paths, _, m) = state;
+    let best = paths.paths.first()?;
+    let last = best.points.last()?;
+    let phase = m.phases.iter().rfind(|p| {
+        matches!(
+            p.kind,
+            PhaseKind::Incline | PhaseKind::Flight | PhaseKind::Floor
+        ) && p.last_n == last.n
+    })?;
+    let seeds: Vec<&PathPoint> = best
+        .points
+        .iter()
+        .filter(|p| p.n >= phase.first_n)
+        .collect();
+    let seeds = &seeds[seeds.len().saturating_sub(END_SEEDS)..];
+    if seeds.len() < END_SEEDS {
+        return None;
+    }
+    let a = last.n as i64 + 1;
+    let found: Vec<(i64, [f64; 2])> = seeds
+        .iter()
+        .map(|p| (p.n as i64 - a, plane.of_px([p.x_px, p.y_px])))
+        .collect();
+    let motion = Motion::through(&found)?;
+    let [x, y] = plane.to_px(motion.at(0.0));
+    if x < r_px || y < r_px || x > w - 1.0 - r_px || y > h - 1.0 - r_px {
+        return None;
+    }
+    let trials = [0i64];
+    let others = others_near((report, best), seeds, (plane, &motion, &trials), r_px);
+    Some((
+        a,
+        Owned {
+            base: found.iter().map(|f| f.0).collect(),
+            found,
+            trials: trials.to_vec(),
+            others,
+            from_rest: false,
+            seed: None,
+        },
+    ))
 }
 
 /// A stretch with its own storage (a [`Stretch`] borrows it).
