@@ -849,3 +849,46 @@ pub fn name_depth_cause(checks: &mut [Check]) {
         }
     }
 }
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn check(name: &'static str, outcome: CheckOutcome) -> Check {
+        Check {
+            check: name,
+            outcome,
+            value: None,
+            expected: String::new(),
+            detail: "found".into(),
+        }
+    }
+
+    #[test]
+    fn a_ball_leaving_the_plane_is_named_on_the_checks_it_fails() {
+        // The floor check too: a floor drawn through one bounce's contact is not the floor's
+        // where the ball is nearer or farther (the real photo in testimages/).
+        let mut checks = vec![
+            check("radius_trend", CheckOutcome::Fail),
+            check("above_floor", CheckOutcome::Fail),
+            check("arc_fit", CheckOutcome::Warn),
+            check("arc_agreement", CheckOutcome::Pass),
+            check("images_accounted", CheckOutcome::Warn),
+        ];
+        name_depth_cause(&mut checks);
+        let named = |c: &Check| c.detail.contains("does not stay in one plane");
+        let names: Vec<&str> = checks
+            .iter()
+            .filter(|c| named(c))
+            .map(|c| c.check)
+            .collect();
+        assert_eq!(names, ["above_floor", "arc_fit"]);
+        // Without the radius trend failing, nothing is named.
+        let mut calm = vec![
+            check("radius_trend", CheckOutcome::Pass),
+            check("above_floor", CheckOutcome::Fail),
+        ];
+        name_depth_cause(&mut calm);
+        assert!(!calm.iter().any(named));
+    }
+}
