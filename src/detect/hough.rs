@@ -72,6 +72,20 @@ pub struct EdgePoint {
     pub uy: f64,
     /// Gradient magnitude, luma per pixel.
     pub magnitude: f32,
+    /// Distance across the dark side at which the level rises again, pixels: the width of a
+    /// dark mark whose edge this may be (infinite: the dark side stays dark, as past a rim).
+    /// See [`MARK_RISE`] and [`settle_marks`].
+    pub mark_px: f32,
+}
+
+impl EdgePoint {
+    /// This point is the edge of a dark mark printed on the ball image of centre (`cx`, `cy`)
+    /// and radius `r_px`: the level rises again inside its disc, not past its rim (where a
+    /// neighbouring image or a plate the ball touches may lie).
+    pub fn marks_inside(&self, cx: f64, cy: f64, r_px: f64) -> bool {
+        let rho = (self.x_px - cx).hypot(self.y_px - cy);
+        rho + self.mark_px as f64 <= r_px + MARK_INSIDE_PX
+    }
 }
 
 /// A crop of the photo around a blob, with its edge points.
@@ -267,6 +281,7 @@ fn edge_points(
         strong,
     } = smoothed_gradient(raw, w, h, options.smooth_px);
     let rim_snr = strong / sigma_g;
+    let noise = pixel_noise(raw, w);
     let threshold = (options.edge_k_sigma * sigma_g).max(0.08 * strong);
     let mut edges = Vec::new();
     let mut at_pixel = Vec::new();
@@ -284,12 +299,15 @@ fn edge_points(
             if !keep(ex, ey) {
                 continue;
             }
+            let local = (ex - x0 as f64, ey - y0 as f64);
+            let mark_px = mark_reach(raw, (w, h), local, (ux, uy), noise);
             edges.push(EdgePoint {
                 x_px: ex,
                 y_px: ey,
                 ux,
                 uy,
                 magnitude: m,
+                mark_px,
             });
             at_pixel.push((x, y));
         }
@@ -314,6 +332,113 @@ fn edge_points(
         }
     }
     (edges, rim_snr)
+}
+
+/// How far across the dark side of an edge a printed mark may end, pixels.
+pub const MARK_REACH_PX: f64 = 6.0;
+/// A mark's far side lies inside a disc when it is less than this past the rim, pixels.
+pub const MARK_INSIDE_PX: f64 = 0.5;
+/// A rise of at least this fraction of the bright side's level, back to at least
+/// [`MARK_BACK`] of it, within [`MARK_REACH_PX`] across an edge's dark side shows a dark line
+/// on the ball (a seam, a panel line), not a rim: past a rim lies the backdrop. Near a
+/// neighbouring image or a plate the ball touches a rim shows the same rise, hence the
+/// photo-wide decision of [`settle_marks`].
+pub const MARK_RISE: f32 = 0.3;
+/// See [`MARK_RISE`].
+pub const MARK_BACK: f32 = 0.6;
+/// The dark side of a mark's edge stays above this fraction of the bright side (printed ink
+/// reflects some light; the gap between two images that nearly touch falls to the backdrop).
+pub const MARK_FLOOR: f32 = 0.1;
+
+/// A photo's balls carry printed marks when at least this fraction of its regions' edge points
+/// are marks' edges (see [`MARK_RISE`]). Measured on the bench photos (bench/out, 2026-12-05):
+/// plain balls 0.000-0.057 (the rise of rims near a neighbour or a plate: 0.057 with images
+/// half a radius apart), marked balls 0.118-0.435 (seams, panels, a band; 0.118 lit from one
+/// side, most of the ball dark).
+pub const MARKED_FRACTION: f64 = 0.08;
+
+/// Keep the marks' edges of `regions` as such when the photo's balls carry printed marks (see
+/// [`MARKED_FRACTION`]): the rims alone vote a second time ([`vote`]: a seam's edges vote for
+/// circles of their own, which can hide an image's peak), no circle whose disc holds a mark's
+/// far side fits it ([`EdgePoint::marks_inside`]), and a circle fitted mostly to marks' edges
+/// is no image ([`crate::detect::joint::MARKS_MAKE_NO_RIM`]). Otherwise forget them (every
+/// `mark_px` infinite): a plain ball's rim next to a neighbour or a plate rises again too, and
+/// that rim is the ball's. Gives whether the photo's balls carry marks.
+pub fn settle_marks(regions: &mut [Region]) -> bool {
+    let (marks, all) = regions.iter().fold((0usize, 0usize), |(m, n), r| {
+        let k = r.edges.iter().filter(|e| e.mark_px.is_finite()).count();
+        (m + k, n + r.edges.len())
+    });
+    let printed = all > 0 && marks as f64 >= MARKED_FRACTION * all as f64;
+    if !printed {
+        for e in regions.iter_mut().flat_map(|r| r.edges.iter_mut()) {
+            e.mark_px = f32::INFINITY;
+        }
+    }
+    printed
+}
+
+/// Robust noise sigma of one pixel of a difference crop `w` wide, from the differences of
+/// horizontal neighbours.
+fn pixel_noise(raw: &[f32], w: usize) -> f32 {
+    let mut d: Vec<f32> = raw
+        .windows(2)
+        .enumerate()
+        .filter(|(i, _)| (i + 1) % w != 0)
+        .step_by(3)
+        .map(|(_, p)| (p[1] - p[0]) * std::f32::consts::FRAC_1_SQRT_2)
+        .collect();
+    robust_sigma(&mut d)
+}
+
+/// How far across the dark side of the edge at `p` (crop pixels, unit gradient `u`) the level,
+/// having fallen to a floor above [`MARK_FLOOR`] of the bright side, rises again (see
+/// [`MARK_RISE`]), pixels; infinite where it does not within [`MARK_REACH_PX`], or where the
+/// bright side does not stand 8 noise sigmas clear.
+fn mark_reach(
+    raw: &[f32],
+    (w, h): (usize, usize),
+    p: (f64, f64),
+    u: (f64, f64),
+    noise: f32,
+) -> f32 {
+    let at = |t: f64| -> Option<f32> {
+        let (x, y) = (p.0 + t * u.0, p.1 + t * u.1);
+        let (fx, fy) = (x.floor(), y.floor());
+        if fx < 0.0 || fy < 0.0 || fx as usize + 1 >= w || fy as usize + 1 >= h {
+            return None;
+        }
+        let (ix, iy) = (fx as usize, fy as usize);
+        let (ax, ay) = ((x - fx) as f32, (y - fy) as f32);
+        let v = |i: usize, j: usize| raw[j * w + i];
+        Some(
+            (v(ix, iy) * (1.0 - ax) + v(ix + 1, iy) * ax) * (1.0 - ay)
+                + (v(ix, iy + 1) * (1.0 - ax) + v(ix + 1, iy + 1) * ax) * ay,
+        )
+    };
+    let none = f32::INFINITY;
+    let Some(bright) = at(1.5) else {
+        return none;
+    };
+    if bright < 8.0 * noise {
+        return none;
+    }
+    let mut floor = f32::INFINITY;
+    let mut t = 0.5;
+    while t <= MARK_REACH_PX {
+        let Some(v) = at(-t) else {
+            return none;
+        };
+        floor = floor.min(v);
+        if floor < MARK_FLOOR * bright {
+            return none;
+        }
+        if v - floor >= MARK_RISE * bright && v >= MARK_BACK * bright {
+            return t as f32;
+        }
+        t += 0.5;
+    }
+    none
 }
 
 /// Smoothed (Gaussian, sigma in pixels; 0 = none) Sobel gradient of a crop: x, y components and
@@ -419,7 +544,36 @@ pub fn vote(
     let radii: Vec<f64> = (0..=steps)
         .map(|s| r_min_px + (r_max_px - r_min_px) * s as f64 / steps as f64)
         .collect();
-    let (acc, rsum) = accumulate(region, &radii);
+    let (mut peaks, sm) = peaks_of(region, &radii, options, false);
+    // Marks' edges vote for circles of the marks, strong enough to hide an image's own peak
+    // where images crowd: the rims alone vote again, and their peaks join.
+    if region.edges.iter().any(|e| e.mark_px.is_finite()) {
+        let nms = (options.nms_fraction * r_min_px).max(1.5);
+        let (rims, _) = peaks_of(region, &radii, options, true);
+        for c in rims {
+            if peaks
+                .iter()
+                .all(|p| (p.x_px - c.x_px).hypot(p.y_px - c.y_px) > nms)
+            {
+                peaks.push(c);
+            }
+        }
+    }
+    peaks.sort_by(|a, b| b.strength.total_cmp(&a.strength));
+    (peaks, if keep_votes { sm } else { Vec::new() })
+}
+
+/// The peaks of the votes of `region`'s edge points (of its rims only when `rims_only`: no
+/// marks' edges) for circles of the given radii, and the smoothed accumulator.
+fn peaks_of(
+    region: &Region,
+    radii: &[f64],
+    options: &HoughOptions,
+    rims_only: bool,
+) -> (Vec<Candidate>, Vec<f32>) {
+    let (r_min_px, r_max_px) = (radii[0], radii[radii.len() - 1]);
+    let steps = radii.len() - 1;
+    let (acc, rsum) = accumulate(region, radii, rims_only);
     let sm = box_smooth(&acc, region.width, region.height);
     let r_mid = 0.5 * (r_min_px + r_max_px);
     // A complete rim: about 2 pi r edge points, each landing (steps + 1) votes spread over the
@@ -448,20 +602,23 @@ pub fn vote(
             }
         }
     }
-    peaks.sort_by(|a, b| b.strength.total_cmp(&a.strength));
-    (peaks, if keep_votes { sm } else { Vec::new() })
+    (peaks, sm)
 }
 
 /// Every edge point's votes for the centres at the given radii along its gradient, splatted
 /// bilinearly. Goes in: the region and the radii; comes out: the accumulator and the
 /// vote-weighted sum of radii per cell (a radius histogram per cell is too costly), row-major
 /// over the region.
-fn accumulate(region: &Region, radii: &[f64]) -> (Vec<f32>, Vec<f32>) {
+fn accumulate(region: &Region, radii: &[f64], rims_only: bool) -> (Vec<f32>, Vec<f32>) {
     let (w, h) = (region.width, region.height);
     let mut acc = vec![0f32; w * h];
     let mut rsum = vec![0f32; w * h];
     let (wf, hf) = ((w - 1) as f64, (h - 1) as f64);
-    for e in &region.edges {
+    for e in region
+        .edges
+        .iter()
+        .filter(|e| !rims_only || e.mark_px.is_infinite())
+    {
         let (ex, ey) = (e.x_px - region.x0 as f64, e.y_px - region.y0 as f64);
         for &r in radii {
             let (cx, cy) = (ex + r * e.ux, ey + r * e.uy);
@@ -572,5 +729,135 @@ impl Votes<'_> {
             r_px: sr / s,
             strength: (self.sm[y * w + x] / full) as f64,
         })
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    /// A disc of radius `r` (level 1, edge by 4 x 4 supersampling) centred in a `w` x `w` crop,
+    /// with a dark line (level 0.25, `line_w` px wide) along the chord at `chord` from the
+    /// centre, when given, and a bright bar (level `bar`) from 1 px below the disc's bottom,
+    /// 3 px thick; noise of 0.005 from a fixed linear congruential sequence.
+    fn crop(w: usize, r: f64, chord: Option<(f64, f64)>, bar: f32) -> Vec<f32> {
+        let c = (w as f64 - 1.0) / 2.0;
+        let mut seed = 12345u64;
+        let mut out = vec![0f32; w * w];
+        for y in 0..w {
+            for x in 0..w {
+                let mut v = 0.0;
+                for k in 0..16 {
+                    let (sx, sy) = (x as f64 + (k % 4) as f64 / 4.0 - 0.375, y as f64);
+                    let sy = sy + (k / 4) as f64 / 4.0 - 0.375;
+                    let (dx, dy) = (sx - c, sy - c);
+                    if dx.hypot(dy) > r {
+                        let below = dy - r - 1.0;
+                        v += if (0.0..3.0).contains(&below) {
+                            bar
+                        } else {
+                            0.0
+                        };
+                    } else if chord.is_some_and(|(d, lw)| (dy - d).abs() < lw / 2.0) {
+                        v += 0.25;
+                    } else {
+                        v += 1.0;
+                    }
+                }
+                seed = seed
+                    .wrapping_mul(6364136223846793005)
+                    .wrapping_add(1442695040888963407);
+                let n = ((seed >> 33) as f32 / (1u64 << 31) as f32 - 0.5) * 0.01;
+                out[y * w + x] = v / 16.0 + n;
+            }
+        }
+        out
+    }
+
+    /// The edge points of a crop with their distance from its centre.
+    fn edges_of(raw: &[f32], w: usize) -> Vec<(EdgePoint, f64)> {
+        let c = (w as f64 - 1.0) / 2.0;
+        let (edges, _) = edge_points(raw, (w, w, 0, 0), &HoughOptions::default(), |_, _| true);
+        edges
+            .into_iter()
+            .map(|e| (e, (e.x_px - c).hypot(e.y_px - c)))
+            .collect()
+    }
+
+    #[test]
+    fn a_dark_line_on_the_ball_is_told_from_the_rim() {
+        // A 20 px disc crossed by a 2 px line 12 px below its centre: the line's edges are
+        // marks (the level rises again 2-3 px across their dark side), the rim away from the
+        // line is not (the backdrop stays dark).
+        let (w, r) = (61, 20.0);
+        let found = edges_of(&crop(w, r, Some((12.0, 2.0)), 0.0), w);
+        let c = (w as f64 - 1.0) / 2.0;
+        let rim: Vec<_> = found
+            .iter()
+            .filter(|(e, rho)| (rho - r).abs() < 1.0 && e.y_px - c < 8.0)
+            .collect();
+        let line: Vec<_> = found
+            .iter()
+            .filter(|(e, rho)| *rho < r - 3.0 && (e.y_px - c - 12.0).abs() < 2.5)
+            .collect();
+        assert!(
+            rim.len() > 60 && line.len() > 30,
+            "{} {}",
+            rim.len(),
+            line.len()
+        );
+        let marked = |v: &[&(EdgePoint, f64)]| {
+            v.iter().filter(|(e, _)| e.mark_px.is_finite()).count() as f64 / v.len() as f64
+        };
+        assert_eq!(marked(&rim), 0.0);
+        assert!(
+            marked(&line) > 0.9,
+            "{:.2} of the line's edges",
+            marked(&line)
+        );
+        let mut regions = vec![Region {
+            x0: 0,
+            y0: 0,
+            width: w,
+            height: w,
+            edges: found.iter().map(|(e, _)| *e).collect(),
+            rim_snr: 0.0,
+        }];
+        assert!(settle_marks(&mut regions));
+        let (cx, cy) = (c, c);
+        let line_marks = |cr: f64| {
+            line.iter()
+                .filter(|(e, _)| e.marks_inside(cx, cy, cr))
+                .count()
+        };
+        assert_eq!(
+            line_marks(r),
+            line.iter().filter(|(e, _)| e.mark_px.is_finite()).count()
+        );
+        // A circle drawn by the line's edge (its far side past that circle's rim) keeps them.
+        assert_eq!(line_marks(r - 8.0), 0);
+    }
+
+    #[test]
+    fn a_plain_ball_on_a_plate_keeps_every_edge() {
+        // The rim just above a bright plate rises again across its dark side like a mark's
+        // edge; too few such points make no printed ball, and every edge point stays.
+        let (w, r) = (61, 20.0);
+        let found = edges_of(&crop(w, r, None, 0.6), w);
+        let near_plate = found
+            .iter()
+            .filter(|(e, rho)| (rho - r).abs() < 1.0 && e.mark_px.is_finite())
+            .count();
+        assert!(near_plate > 0, "the plate's contact shows no rise");
+        let mut regions = vec![Region {
+            x0: 0,
+            y0: 0,
+            width: w,
+            height: w,
+            edges: found.iter().map(|(e, _)| *e).collect(),
+            rim_snr: 0.0,
+        }];
+        assert!(!settle_marks(&mut regions));
+        assert!(regions[0].edges.iter().all(|e| e.mark_px.is_infinite()));
     }
 }

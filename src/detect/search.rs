@@ -179,6 +179,7 @@ pub fn find_regions(
     if faint.is_some() {
         work_regions = prepare(&options.hough);
     }
+    hough::settle_marks(&mut work_regions);
     let voted: Vec<(Vec<Candidate>, Vec<f32>)> = work_regions
         .par_iter()
         .map(|r| hough::vote(r, rw_min, rw_max, &options.hough, debug.is_some()))
@@ -261,7 +262,7 @@ fn full_resolution_regions(
     let df = d as f64;
     let full = |v: f64| v * df + 0.5 * (df - 1.0);
     let band = BAND_PX + BAND_FRACTION * r_min_px;
-    work_regions
+    let (mut regions, starts): (Vec<Region>, Vec<Vec<Candidate>>) = work_regions
         .par_iter()
         .zip(voted)
         .map(|(r, (c, _))| {
@@ -306,5 +307,7 @@ fn full_resolution_regions(
             let region = hough::prepare_band(photo, bg, bbox, &circles, band, &options.hough);
             (region, starts)
         })
-        .unzip()
+        .unzip();
+    hough::settle_marks(&mut regions);
+    (regions, starts)
 }
