@@ -354,7 +354,7 @@ pub const MARK_FLOOR: f32 = 0.1;
 /// are marks' edges (see [`MARK_RISE`]). Measured on the bench photos (bench/out, 2026-12-05):
 /// plain balls 0.000-0.057 (the rise of rims near a neighbour or a plate: 0.057 with images
 /// half a radius apart), marked balls 0.118-0.435 (seams, panels, a band; 0.118 lit from one
-/// side, most of the ball dark).
+/// side, most of the ball dark); the real photo in testimages/ (a seamed ball) 0.28-0.31.
 pub const MARKED_FRACTION: f64 = 0.08;
 
 /// Keep the marks' edges of `regions` as such when the photo's balls carry printed marks (see
