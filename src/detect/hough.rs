@@ -10,13 +10,15 @@
 //! choice), differentiated with the Sobel operator, thinned by non-maximum suppression along
 //! the gradient, and each edge point is placed at sub-pixel precision by a parabola through the
 //! gradient magnitude across the edge (after Devernay, "A non-maxima suppression method for
-//! edge detection with sub-pixel accuracy", INRIA RR-2724, 1995). Where the rims are strong (median edge magnitude at least
-//! `fine_snr` noise sigmas), the points are placed again, by the same parabola, on the gradient
-//! of the unsmoothed difference: without smoothing, a lit ball's limb shading does not pull them
-//! inwards. Every edge point then votes, with bilinear splatting, for the
-//! centres at distances rmin..rmax along its gradient (the gradient of a bright disc points at its
-//! centre: Kimme, Ballard & Sklansky, "Finding circles by an array of accumulators", CACM 18, 1975).
-//! Peaks are local maxima of the smoothed accumulator within a disc of `nms_fraction` x radius, so
+//! edge detection with sub-pixel accuracy", INRIA RR-2724, 1995). Where the rims are strong
+//! (median edge magnitude at least `fine_snr` noise sigmas), the points are placed again, by
+//! the same parabola, on the gradient of the unsmoothed difference: without smoothing, a lit
+//! ball's limb shading does not pull them inwards. Each edge point also records whether the
+//! level rises again across its dark side (a printed mark's edge, see [`MARK_RISE`]; ours).
+//! Every edge point then votes, with bilinear splatting, for the centres at distances
+//! rmin..rmax along its gradient (the gradient of a bright disc points at its centre: Kimme,
+//! Ballard & Sklansky, "Finding circles by an array of accumulators", CACM 18, 1975). Peaks are
+//! local maxima of the smoothed accumulator within a disc of `nms_fraction` x radius, so
 //! neighbours down to 0.8 radius apart stay separate.
 
 use crate::core::stats::robust_sigma;
