@@ -786,6 +786,18 @@ mod tests {
             .collect()
     }
 
+    /// A `w` x `w` region holding the edge points `found`.
+    fn region_of(found: &[(EdgePoint, f64)], w: usize) -> Region {
+        Region {
+            x0: 0,
+            y0: 0,
+            width: w,
+            height: w,
+            edges: found.iter().map(|(e, _)| *e).collect(),
+            rim_snr: 0.0,
+        }
+    }
+
     #[test]
     fn a_dark_line_on_the_ball_is_told_from_the_rim() {
         // A 20 px disc crossed by a 2 px line 12 px below its centre: the line's edges are
@@ -817,14 +829,7 @@ mod tests {
             "{:.2} of the line's edges",
             marked(&line)
         );
-        let mut regions = vec![Region {
-            x0: 0,
-            y0: 0,
-            width: w,
-            height: w,
-            edges: found.iter().map(|(e, _)| *e).collect(),
-            rim_snr: 0.0,
-        }];
+        let mut regions = vec![region_of(&found, w)];
         assert!(settle_marks(&mut regions));
         let (cx, cy) = (c, c);
         let line_marks = |cr: f64| {
@@ -851,14 +856,7 @@ mod tests {
             .filter(|(e, rho)| (rho - r).abs() < 1.0 && e.mark_px.is_finite())
             .count();
         assert!(near_plate > 0, "the plate's contact shows no rise");
-        let mut regions = vec![Region {
-            x0: 0,
-            y0: 0,
-            width: w,
-            height: w,
-            edges: found.iter().map(|(e, _)| *e).collect(),
-            rim_snr: 0.0,
-        }];
+        let mut regions = vec![region_of(&found, w)];
         assert!(!settle_marks(&mut regions));
         assert!(regions[0].edges.iter().all(|e| e.mark_px.is_infinite()));
     }
