@@ -550,7 +550,7 @@ pub fn vote(
     // Marks' edges vote for circles of the marks, strong enough to hide an image's own peak
     // where images crowd: the rims alone vote again, and their peaks join.
     if region.edges.iter().any(|e| e.mark_px.is_finite()) {
-        let nms = (options.nms_fraction * r_min_px).max(1.5);
+        let nms = nms_px(options, r_min_px);
         let (rims, _) = peaks_of(region, &radii, options, true);
         for c in rims {
             if peaks
@@ -563,6 +563,12 @@ pub fn vote(
     }
     peaks.sort_by(|a, b| b.strength.total_cmp(&a.strength));
     (peaks, if keep_votes { sm } else { Vec::new() })
+}
+
+/// Peaks are maxima within this distance, pixels: `nms_fraction` of the smallest radius
+/// searched, at least 1.5 px.
+fn nms_px(options: &HoughOptions, r_min_px: f64) -> f64 {
+    (options.nms_fraction * r_min_px).max(1.5)
 }
 
 /// The peaks of the votes of `region`'s edge points (of its rims only when `rims_only`: no
@@ -591,7 +597,7 @@ fn peaks_of(
         h: region.height,
     };
     let min_peak = (options.min_peak_fraction as f32) * full;
-    let nms = (options.nms_fraction * r_min_px).max(1.5);
+    let nms = nms_px(options, r_min_px);
     let mut peaks = Vec::new();
     for y in 1..votes.h.saturating_sub(1) {
         for x in 1..votes.w.saturating_sub(1) {
