@@ -437,6 +437,18 @@ fn measure_validated(
             }
             None => (points, first, paths),
         };
+    let (paths, points, first) = match adopted_strays(
+        &report,
+        &paths,
+        &first,
+        (timed, |p: &[TimedPoint]| {
+            physics::measure(p, radius_m, &physics_options)
+        }),
+        r_px,
+    ) {
+        Some(adopted) => adopted,
+        None => (paths, points, first),
+    };
     let (report, paths, points, first) = match second_pass(
         &report,
         &paths,
@@ -449,16 +461,16 @@ fn measure_validated(
         Some(confirmed) => confirmed,
         None => (report, paths, points, first),
     };
+    let plane = matches!(settings.scale, Some(ScaleSource::Plane(_)));
     let (report, paths, points, first) = crowded::crowded(
         pixels.then_some((photo_path, settings)),
-        &calibration,
+        (&calibration, plane),
         (report, paths, points, first),
         (timed, |p: &[TimedPoint]| {
             physics::measure(p, radius_m, &physics_options)
         }),
         r_px,
     );
-    let plane = matches!(settings.scale, Some(ScaleSource::Plane(_)));
     let in_plane = depth::InPlane::of(&report, &paths.paths[0], &calibration, plane);
     let (points, first) = match in_plane.measured(
         &paths.paths[0],
@@ -585,14 +597,13 @@ fn second_pass(
     if count(first, CheckOutcome::Fail) > 0 {
         return None;
     }
-    let phases: Vec<(usize, usize)> = first
-        .phases
-        .iter()
-        .filter(|p| !matches!(p.kind, PhaseKind::Bounce | PhaseKind::Unfitted))
-        .map(|p| (p.first_n, p.last_n))
-        .collect();
-    let confirmed =
-        track::confirm::confirm_missing(best, &phases, &report.rejected, r_px, radius_tolerance);
+    let confirmed = track::confirm::confirm_missing(
+        best,
+        &fitted_phases(first),
+        &report.rejected,
+        r_px,
+        radius_tolerance,
+    );
     if confirmed.is_empty() {
         return None;
     }
@@ -629,6 +640,61 @@ fn second_pass(
     let m = measure(&points).ok()?;
     // The images fill gaps inside phases: the phases and bounces stay what they were.
     kept_if_no_worse(first, &m).then_some((report, paths, points, m))
+}
+
+/// The spots the walk stepped over put on the path where it misses a flash inside a fitted
+/// phase and the phase's neighbouring images place that flash on them
+/// ([`track::confirm::adopt_strays`]); kept when the physics on the longer path is no worse
+/// ([`kept_if_no_worse`]). None when no spot is adopted or the physics is worse.
+fn adopted_strays(
+    report: &SpotReport,
+    paths: &PathResult,
+    first: &physics::Measurement,
+    (timed, measure): (
+        impl Fn(&PathPoint) -> TimedPoint,
+        impl Fn(&[TimedPoint]) -> Result<physics::Measurement>,
+    ),
+    r_px: f64,
+) -> Option<(PathResult, Vec<TimedPoint>, physics::Measurement)> {
+    let best = paths.paths.first()?;
+    let adopted = track::confirm::adopt_strays(best, &fitted_phases(first), &paths.strays, r_px);
+    if adopted.is_empty() {
+        return None;
+    }
+    let mut paths = paths.clone();
+    for &(n, i) in &adopted {
+        let index = paths.strays[i].spot_index;
+        let s = &report.spots[index];
+        paths.paths[0].points.push(PathPoint {
+            n,
+            spot_index: index,
+            x_px: s.x_px,
+            y_px: s.y_px,
+            r_px: s.r_px,
+            sigma_px: s.sigma_px,
+        });
+    }
+    let mut taken: Vec<usize> = adopted.iter().map(|a| a.1).collect();
+    taken.sort_unstable_by(|a, b| b.cmp(a));
+    for i in taken {
+        paths.strays.remove(i);
+    }
+    let path = &mut paths.paths[0];
+    path.points.sort_by_key(|p| p.n);
+    path.missing.retain(|n| !adopted.iter().any(|a| a.0 == *n));
+    let points: Vec<TimedPoint> = path.points.iter().map(&timed).collect();
+    let m = measure(&points).ok()?;
+    kept_if_no_worse(first, &m).then_some((paths, points, m))
+}
+
+/// The flash ranges of `m`'s fitted phases (no bounce, nothing unfitted): constant acceleration
+/// within each.
+fn fitted_phases(m: &physics::Measurement) -> Vec<(usize, usize)> {
+    m.phases
+        .iter()
+        .filter(|p| !matches!(p.kind, PhaseKind::Bounce | PhaseKind::Unfitted))
+        .map(|p| (p.first_n, p.last_n))
+        .collect()
 }
 
 /// A second run of the physics `m` on more images is kept when no more checks fail or warn
@@ -669,9 +735,10 @@ struct Origin {
 
 /// The origin of the reported frame from the first run `m` of the physics on `points` (input
 /// frame), whose results lie in `frame` (`radius_m` is the ball's radius in that frame): with a
-/// plane file, the plane's own origin; otherwise y = 0 at the floor line when the floor was found (else at the underside of the ball at its
-/// lowest image), and x = 0 at the ball's centre at the launch off the incline, else at its
-/// centre at the first bounce contact, else at its first image.
+/// plane file, the plane's own origin; otherwise y = 0 at the floor line when the floor was
+/// found (else at the underside of the ball at its lowest image), and x = 0 at the ball's
+/// centre at the launch off the incline, else at its centre at the first bounce contact, else
+/// at its first image.
 fn origin_of(
     m: &physics::Measurement,
     points: &[TimedPoint],

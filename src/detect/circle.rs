@@ -81,8 +81,22 @@ pub fn geometric_fit(
     start: Circle,
     fixed_r: Option<f64>,
 ) -> Option<GeometricFit> {
+    weighted_geometric_fit(points, None, start, fixed_r)
+}
+
+/// [`geometric_fit`] with a weight per point (None: all 1): the weighted sum of squared
+/// orthogonal distances is minimised, the residual variance is that sum over the weights' sum
+/// less the parameters, and the RMS residual is weighted alike.
+pub fn weighted_geometric_fit(
+    points: &[[f64; 2]],
+    weights: Option<&[f64]>,
+    start: Circle,
+    fixed_r: Option<f64>,
+) -> Option<GeometricFit> {
     let p = if fixed_r.is_some() { 2 } else { 3 };
-    if points.len() <= p {
+    let w = |k: usize| weights.map_or(1.0, |w| w[k]);
+    let total: f64 = (0..points.len()).map(w).sum();
+    if points.len() <= p || total <= p as f64 {
         return None;
     }
     let mut c = start;
@@ -92,16 +106,17 @@ pub fn geometric_fit(
     let cost = |c: &Circle| -> f64 {
         points
             .iter()
-            .map(|q| {
+            .enumerate()
+            .map(|(k, q)| {
                 let d = dist(q[0] - c.x_px, q[1] - c.y_px) - c.r_px;
-                d * d
+                w(k) * d * d
             })
             .sum()
     };
     let normal = |c: &Circle| -> (Matrix3<f64>, Vector3<f64>) {
         let mut jtj = Matrix3::zeros();
         let mut jtr = Vector3::zeros();
-        for q in points {
+        for (k, q) in points.iter().enumerate() {
             let (dx, dy) = (q[0] - c.x_px, q[1] - c.y_px);
             let rho = dist(dx, dy).max(1e-12);
             let res = rho - c.r_px;
@@ -110,8 +125,8 @@ pub fn geometric_fit(
                 -dy / rho,
                 if fixed_r.is_some() { 0.0 } else { -1.0 },
             );
-            jtj += j * j.transpose();
-            jtr += j * res;
+            jtj += w(k) * j * j.transpose();
+            jtr += w(k) * j * res;
         }
         if fixed_r.is_some() {
             jtj[(2, 2)] = 1.0;
@@ -159,7 +174,7 @@ pub fn geometric_fit(
         return None;
     }
     let (jtj, _) = normal(&c);
-    let dof = (points.len() - p) as f64;
+    let dof = total - p as f64;
     let s2 = f / dof;
     let mut covariance = jtj.try_inverse()? * s2;
     if fixed_r.is_some() {
@@ -171,7 +186,7 @@ pub fn geometric_fit(
     Some(GeometricFit {
         circle: c,
         covariance,
-        rms_px: (f / points.len() as f64).sqrt(),
+        rms_px: (f / total).sqrt(),
     })
 }
 

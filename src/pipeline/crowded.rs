@@ -15,7 +15,8 @@
 //! the photo's own image of the ball along the phase's motion; the result is kept only when no
 //! more checks fail or warn and the phases and bounces stay the same
 //! ([`super::kept_if_no_worse`]; for the roll led into a flight, an incline phase comes first
-//! and the others stay the same).
+//! and the others stay the same). A ball moving in depth is judged in the plane of its path,
+//! as the report measures it ([`InPlane`]).
 
 use super::{kept_if_no_worse, renumbered};
 use crate::calibrate::Calibration;
@@ -28,6 +29,7 @@ use crate::image::load::load_colour_exact;
 use crate::physics::checks::CheckOutcome;
 use crate::physics::{self, PhaseKind, TimedPoint};
 use crate::pipeline::MeasureSettings;
+use crate::pipeline::depth::InPlane;
 use crate::track::{BallPath, PathPoint, PathResult};
 use std::path::Path;
 
@@ -111,7 +113,7 @@ impl Plane<'_> {
 /// median radius.
 pub(super) fn crowded(
     photo: Option<(&Path, &MeasureSettings)>,
-    calibration: &Calibration,
+    (calibration, plane_file): (&Calibration, bool),
     state: State,
     (timed, measure): (
         impl Fn(&PathPoint) -> TimedPoint,
@@ -169,13 +171,28 @@ pub(super) fn crowded(
         let (report, paths) = with_images(&state.0, &state.1, &found, (&plane, r_px));
         let points: Vec<TimedPoint> = paths.paths[0].points.iter().map(&timed).collect();
         let paths = renumbered(paths, &points);
-        let kept = |m: &physics::Measurement| match led_in {
-            false => kept_if_no_worse(&state.3, m),
-            true => led_in_kept(&state.3, m),
+        let kept = |before: &physics::Measurement, m: &physics::Measurement| match led_in {
+            false => kept_if_no_worse(before, m),
+            true => led_in_kept(before, m),
         };
-        match measure(&points) {
-            Ok(m) if kept(&m) => (report, paths, points, m),
-            _ => state,
+        let Ok(m) = measure(&points) else {
+            return state;
+        };
+        // A ball moving in depth is judged in the plane of its path, as it is reported (see
+        // [`InPlane`]): without it the arcs misfit by more than the images found move them.
+        let in_plane = |report: &SpotReport, paths: &PathResult| {
+            InPlane::of(report, &paths.paths[0], calibration, plane_file)
+                .measured(&paths.paths[0], (&timed, &measure))
+                .map(|(_, m)| m)
+        };
+        let judged = match (in_plane(&state.0, &state.1), in_plane(&report, &paths)) {
+            (Some(before), Some(after)) => kept(&before, &after),
+            _ => kept(&state.3, &m),
+        };
+        if judged {
+            (report, paths, points, m)
+        } else {
+            state
         }
     };
     let started: Vec<(i64, ChainFit)> = start_stretch(&state, &plane, r_px)

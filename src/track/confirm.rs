@@ -1,10 +1,11 @@
-//! Second pass from the physics: the path's missing flashes looked for among the candidates the
-//! detector fitted but rejected.
+//! Second pass from the physics: the path's missing flashes looked for among the spots the walk
+//! stepped over and the candidates the detector fitted but rejected.
 //!
 //! Goes in: the best [`BallPath`], the flash ranges of its fitted phases (incline, flight
-//! arcs, floor runs: constant acceleration within each), the detector's [`Rejected`]
-//! candidates, the path's radius and the radius tolerance. Comes out: per confirmed missing
-//! flash, its index `n` and the candidate's index in the rejected list.
+//! arcs, floor runs: constant acceleration within each), the walk's [`Stray`]s or the
+//! detector's [`Rejected`] candidates, the path's radius and the radius tolerance. Comes out:
+//! per missing flash found, its index `n` and the index of the stray ([`adopt_strays`]) or of
+//! the candidate ([`confirm_missing`]).
 //!
 //! Method (ours): within a phase the ball moves with constant acceleration and the flash fires
 //! at equal intervals, so x and y are quadratics in n. A missing flash inside a phase is
@@ -14,10 +15,11 @@
 //! after the tone curve) is kept as that flash's image when its centre lies within
 //! [`GATE_RADII`] radius of the prediction and its radius within the tolerance; a candidate of
 //! another size or kind, or one off the prediction, is never taken, and no image is made where
-//! the detector fitted none.
+//! the detector fitted none. A spot the walk left off the path (merged images at an apex give
+//! it two near choices, and a tenth of a pixel can turn it to the other) is taken alike.
 
 use crate::detect::reject::{Reason, Rejected};
-use crate::track::BallPath;
+use crate::track::{BallPath, Stray, StrayReason};
 use nalgebra::{DMatrix, DVector};
 
 /// Path images used to predict a missing flash (the nearest in n, within its phase).
@@ -49,6 +51,36 @@ pub fn confirm_missing(
                     && !found.iter().any(|f| f.1 == *i)
             })
             .map(|(i, c)| (i, (c.x_px - x).hypot(c.y_px - y)))
+            .filter(|(_, d)| *d <= GATE_RADII * r_px)
+            .min_by(|p, q| p.1.total_cmp(&q.1));
+        if let Some((i, _)) = best {
+            found.push((n, i));
+        }
+    }
+    found
+}
+
+/// The path's missing flashes looked for among the spots the walk left off every path
+/// ([`StrayReason::OffPath`]: a ball image by the detector's rules that the walk stepped over,
+/// as where merged images crowd an apex): per missing flash inside a phase, the nearest such
+/// spot within [`GATE_RADII`] radius of its prediction (see [`predicted_position`]). Comes
+/// out: `(n, index into strays)` per flash.
+pub fn adopt_strays(
+    path: &BallPath,
+    phases: &[(usize, usize)],
+    strays: &[Stray],
+    r_px: f64,
+) -> Vec<(usize, usize)> {
+    let mut found: Vec<(usize, usize)> = Vec::new();
+    for &n in &path.missing {
+        let Some([x, y]) = predicted_position(path, phases, n) else {
+            continue;
+        };
+        let best = strays
+            .iter()
+            .enumerate()
+            .filter(|(i, s)| s.reason == StrayReason::OffPath && !found.iter().any(|f| f.1 == *i))
+            .map(|(i, s)| (i, (s.x_px - x).hypot(s.y_px - y)))
             .filter(|(_, d)| *d <= GATE_RADII * r_px)
             .min_by(|p, q| p.1.total_cmp(&q.1));
         if let Some((i, _)) = best {
@@ -146,5 +178,28 @@ mod tests {
         // Outside every phase (a bounce between two arcs), or with no candidate: nothing.
         assert!(confirm_missing(&path, &[(0, 2), (4, 6)], &rejected, 20.0, 0.12).is_empty());
         assert!(confirm_missing(&path, &[(0, 6)], &rejected[..3], 20.0, 0.12).is_empty());
+    }
+
+    #[test]
+    fn a_spot_the_walk_stepped_over_fills_its_flash_when_it_lies_on_the_prediction() {
+        // The same motion; flash 3 at (190, 29) is missing and spots are left over.
+        let path = BallPath {
+            points: [0, 1, 2, 4, 5, 6].into_iter().map(point).collect(),
+            missing: vec![3],
+        };
+        let stray = |x_px: f64, y_px: f64, reason: StrayReason| Stray {
+            spot_index: 99,
+            x_px,
+            y_px,
+            reason,
+        };
+        let strays = [
+            stray(196.0, 29.0, StrayReason::OffPath), // 6 px off: past 0.2 radius
+            stray(190.5, 29.5, StrayReason::RadiusDiffers), // another size
+            stray(191.0, 28.0, StrayReason::OffPath), // 1.4 px off: this flash
+        ];
+        assert_eq!(adopt_strays(&path, &[(0, 6)], &strays, 20.0), vec![(3, 2)]);
+        assert!(adopt_strays(&path, &[(0, 2), (4, 6)], &strays, 20.0).is_empty());
+        assert!(adopt_strays(&path, &[(0, 6)], &strays[..2], 20.0).is_empty());
     }
 }
