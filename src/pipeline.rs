@@ -628,18 +628,13 @@ fn second_pass(
             source: SpotSource::PredictedAndConfirmed,
         });
     }
-    let mut taken: Vec<usize> = confirmed.iter().map(|c| c.1).collect();
-    taken.sort_unstable_by(|a, b| b.cmp(a));
-    for i in taken {
-        report.rejected.remove(i);
-    }
-    path.points.sort_by_key(|p| p.n);
-    path.missing
-        .retain(|n| !confirmed.iter().any(|c| c.0 == *n));
-    let points: Vec<TimedPoint> = path.points.iter().map(&timed).collect();
-    let m = measure(&points).ok()?;
+    remove_all(
+        &mut report.rejected,
+        confirmed.iter().map(|c| c.1).collect(),
+    );
     // The images fill gaps inside phases: the phases and bounces stay what they were.
-    kept_if_no_worse(first, &m).then_some((report, paths, points, m))
+    let (points, m) = filled_and_kept(&mut paths, &confirmed, first, (timed, measure))?;
+    Some((report, paths, points, m))
 }
 
 /// The spots the walk stepped over put on the path where it misses a flash inside a fitted
@@ -674,17 +669,38 @@ fn adopted_strays(
             sigma_px: s.sigma_px,
         });
     }
-    let mut taken: Vec<usize> = adopted.iter().map(|a| a.1).collect();
-    taken.sort_unstable_by(|a, b| b.cmp(a));
-    for i in taken {
-        paths.strays.remove(i);
+    remove_all(&mut paths.strays, adopted.iter().map(|a| a.1).collect());
+    let (points, m) = filled_and_kept(&mut paths, &adopted, first, (timed, measure))?;
+    Some((paths, points, m))
+}
+
+/// The elements of `v` at `indices` removed.
+fn remove_all<T>(v: &mut Vec<T>, mut indices: Vec<usize>) {
+    indices.sort_unstable_by(|a, b| b.cmp(a));
+    for i in indices {
+        v.remove(i);
     }
+}
+
+/// The best path of `paths`, its new points pushed for the flashes of `filled` (`(n, _)`): its
+/// points put in flash order, those flashes no longer missing, and the physics (`measure`, on
+/// points made by `timed`) run on them; the points and the measurement when it is no worse
+/// than `first` ([`kept_if_no_worse`]).
+fn filled_and_kept(
+    paths: &mut PathResult,
+    filled: &[(usize, usize)],
+    first: &physics::Measurement,
+    (timed, measure): (
+        impl Fn(&PathPoint) -> TimedPoint,
+        impl Fn(&[TimedPoint]) -> Result<physics::Measurement>,
+    ),
+) -> Option<(Vec<TimedPoint>, physics::Measurement)> {
     let path = &mut paths.paths[0];
     path.points.sort_by_key(|p| p.n);
-    path.missing.retain(|n| !adopted.iter().any(|a| a.0 == *n));
+    path.missing.retain(|n| !filled.iter().any(|f| f.0 == *n));
     let points: Vec<TimedPoint> = path.points.iter().map(&timed).collect();
     let m = measure(&points).ok()?;
-    kept_if_no_worse(first, &m).then_some((paths, points, m))
+    kept_if_no_worse(first, &m).then_some((points, m))
 }
 
 /// The flash ranges of `m`'s fitted phases (no bounce, nothing unfitted): constant acceleration

@@ -550,17 +550,16 @@ pub fn second_pass(
 mod tests {
     use super::*;
 
-    #[test]
-    fn the_biweight_drops_a_seam_along_the_rim_that_the_trimming_keeps() {
-        // The rim of the test below with the seam's edge 1.3 px inside over 60 degrees: its
-        // points widen the robust sigma past their own offset, so no trimming drops them and
-        // the fit stays 0.41 px off; the biweight, from that fit, weighs them down and finds
-        // the centre. (Over 65 degrees or more it cannot either: a known limit. Measured from
-        // 50 to 80 degrees and 0.8 to 2 px deep.)
+    /// A 20 px rim at (50, 50), one point a degree with a small wobble, and a seam's edge
+    /// 1.3 px inside it over the degrees `seam` in place of the rim there; the first geometric
+    /// fit from the true circle, and the distance of a fit's centre from (50, 50).
+    fn rim_with_seam(
+        seam: std::ops::Range<usize>,
+    ) -> (Vec<[f64; 2]>, GeometricFit, impl Fn(&GeometricFit) -> f64) {
         let pts: Vec<[f64; 2]> = (0..360)
             .map(|k| {
                 let a = (k as f64).to_radians();
-                let r = if (20..80).contains(&k) { 18.7 } else { 20.0 };
+                let r = if seam.contains(&k) { 18.7 } else { 20.0 };
                 let wobble = 0.1 * ((k * 7) as f64).sin();
                 [50.0 + (r + wobble) * a.cos(), 50.0 + (r + wobble) * a.sin()]
             })
@@ -572,6 +571,16 @@ mod tests {
         };
         let first = geometric_fit(&pts, start, None).unwrap();
         let off = |f: &GeometricFit| (f.circle.x_px - 50.0).hypot(f.circle.y_px - 50.0);
+        (pts, first, off)
+    }
+
+    #[test]
+    fn the_biweight_drops_a_seam_along_the_rim_that_the_trimming_keeps() {
+        // The seam over 60 degrees: its points widen the robust sigma past their own offset,
+        // so no trimming drops them and the fit stays 0.41 px off; the biweight, from that
+        // fit, weighs them down and finds the centre. (Over 65 degrees or more it cannot
+        // either: a known limit. Measured from 50 to 80 degrees and 0.8 to 2 px deep.)
+        let (pts, first, off) = rim_with_seam(20..80);
         let (trim, _) = trimmed(&pts, first, None, 8, PRINTED_TRIM_ROUNDS);
         let (polished, inliers) = biweight(&pts, trim, None, 8).unwrap();
         assert!(off(&trim) > 0.2, "trimmed: {:.3} px off", off(&trim));
@@ -586,26 +595,11 @@ mod tests {
 
     #[test]
     fn repeated_trimming_drops_a_seam_along_the_rim() {
-        // A 20 px rim at (50, 50), one point a degree, with a seam's edge 1.3 px inside it over
-        // 40 degrees in place of the rim there: the first fit leans towards the seam, so one
-        // trimming keeps some of its points and stays 0.13 px off; repeated from each new fit
-        // it drops all 40 and finds the centre. (Over 55 degrees or more the seam's points
-        // widen the robust sigma past its own offset and neither drops them: a known limit.)
-        let pts: Vec<[f64; 2]> = (0..360)
-            .map(|k| {
-                let a = (k as f64).to_radians();
-                let r = if (20..60).contains(&k) { 18.7 } else { 20.0 };
-                let wobble = 0.1 * ((k * 7) as f64).sin();
-                [50.0 + (r + wobble) * a.cos(), 50.0 + (r + wobble) * a.sin()]
-            })
-            .collect();
-        let start = Circle {
-            x_px: 50.0,
-            y_px: 50.0,
-            r_px: 20.0,
-        };
-        let first = geometric_fit(&pts, start, None).unwrap();
-        let off = |f: &GeometricFit| (f.circle.x_px - 50.0).hypot(f.circle.y_px - 50.0);
+        // The seam over 40 degrees: the first fit leans towards it, so one trimming keeps
+        // some of its points and stays 0.13 px off; repeated from each new fit it drops all
+        // 40 and finds the centre. (Over 55 degrees or more the seam's points widen the
+        // robust sigma past its own offset and neither drops them: a known limit.)
+        let (pts, first, off) = rim_with_seam(20..60);
         let (once, _) = trimmed(&pts, first, None, 8, 1);
         let (again, kept) = trimmed(&pts, first, None, 8, PRINTED_TRIM_ROUNDS);
         assert!(off(&once) > 0.1, "one trimming: {:.3} px off", off(&once));

@@ -406,7 +406,12 @@ mod tests {
         let copy = [lit(-0.28, -0.15), lit(-0.33, 0.0), lit(0.56, 1.57)];
         assert!(edge_bias(&copy.iter().collect::<Vec<_>>()).is_none());
         // Rendered balls: shifts that scatter within their sigmas give the pull and its scatter.
-        let rendered = [lit(0.10, 0.02), lit(0.14, -0.05), lit(0.05, 0.08), lit(0.12, 0.0)];
+        let rendered = [
+            lit(0.10, 0.02),
+            lit(0.14, -0.05),
+            lit(0.05, 0.08),
+            lit(0.12, 0.0),
+        ];
         let (bias, scatter_px) = edge_bias(&rendered.iter().collect::<Vec<_>>()).unwrap();
         assert_eq!((bias[0], bias[1]), (0.12, 0.02));
         assert!(scatter_px < 0.16, "{scatter_px}");
