@@ -65,10 +65,10 @@ pub fn disc_coverage(px: f64, py: f64, cx: f64, cy: f64, r: f64) -> f64 {
 }
 
 /// Mean surface normal of a sphere of radius `r` over the part of a pixel its image covers
-/// (`coverage`), the pixel centre at (dx, dy) from the image's centre: the normal at the pixel centre
-/// for a pixel wholly inside; for a rim pixel, the mean over the radial strip of the covered
-/// width inside the rim, where the normal turns fastest (nz grows as sqrt(2 t / r) at depth t),
-/// so a grazing light on a small image is not misjudged by a pixel-centre sample.
+/// (`coverage`), the pixel centre at (dx, dy) from the image's centre: the normal at the pixel
+/// centre for a pixel wholly inside; for a rim pixel, the mean over the radial strip of the covered
+/// width inside the rim, where the normal turns fastest (nz grows as sqrt(2 t / r) at depth t), so
+/// a grazing light on a small image is not misjudged by a pixel-centre sample.
 pub fn sphere_normal(dx: f64, dy: f64, r: f64, coverage: f64) -> [f64; 3] {
     if coverage >= 1.0 {
         let (nx, ny) = (dx / r, dy / r);

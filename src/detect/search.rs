@@ -27,10 +27,10 @@ pub const BAND_PX: f64 = 3.0;
 /// See [`BAND_PX`].
 pub const BAND_FRACTION: f64 = 0.1;
 
-/// With the radius left to estimate, the blobs that estimate it come from the photo decimated
-/// to about this many megapixels (a 24 MP photo by 4, a 12 MP one by 2). The detection stays
-/// there when the radius found allows it (see [`SpotOptions::coarse_r_px`]: the smallest radius is at least
-/// that many decimated pixels and less than twice as many), else it starts again at the
+/// With the radius left to estimate, the blobs that estimate it come from the photo decimated to
+/// about this many megapixels (a 24 MP photo by 4, a 12 MP one by 2). The detection stays there
+/// when the radius found allows it (see [`SpotOptions::coarse_r_px`]: the smallest radius is at
+/// least that many decimated pixels and less than twice as many), else it starts again at the
 /// decimation the radius asks for.
 pub const SURVEY_MEGAPIXELS: f64 = 1.5;
 
@@ -197,11 +197,11 @@ pub fn find_regions(
 /// The Hough options of a faint photo, None for any other: when most ball-sized blobs (area at
 /// least half a disc of the smallest searched radius `rw_min`, in work pixels) show no rim above
 /// the noise at the default smoothing ([`hough::FAINT_SNR`]), every crop is smoothed by
-/// [`hough::FAINT_SMOOTH_R`] of that radius, at least [`hough::FAINT_SMOOTH_MIN_PX`] while that
-/// is under [`hough::FAINT_SMOOTH_SMALL_R`] of it, at most [`hough::FAINT_SMOOTH_MAX_PX`]. A
-/// dark ball on a bright backdrop dims it by one flash's light: its rims can sit below the pixels' noise while their length holds plenty of
-/// signal. The decision is the photo's, so that a normal photo's specks and faint corners keep
-/// the default.
+/// [`hough::FAINT_SMOOTH_R`] of that radius, at least [`hough::FAINT_SMOOTH_MIN_PX`] while that is
+/// under [`hough::FAINT_SMOOTH_SMALL_R`] of it, at most [`hough::FAINT_SMOOTH_MAX_PX`]. A dark ball
+/// on a bright backdrop dims it by one flash's light: its rims can sit below the pixels' noise
+/// while their length holds plenty of signal. The decision is the photo's, so that a normal photo's
+/// specks and faint corners keep the default.
 fn faint_options(
     blobs: &Blobs,
     regions: &[Region],

@@ -224,19 +224,18 @@ fn lit_otherwise(
 /// Fewest shaded fits that measure the photo's edge bias for the others.
 const EDGE_BIAS_MIN_FITS: usize = 3;
 
-/// The edge fits beside shaded fits. When the shaded fits disagree with the edge fits beyond
-/// their sigmas (`MODEL_DISAGREES`), the shaded model does not fit this ball: every spot keeps
-/// its edge fit (`keep_edge_fits`). Otherwise: the lit limb pulls every edge fit of a photo alike (one
+/// The edge fits beside shaded fits. When the shaded fits disagree with the edge fits beyond their
+/// sigmas (`MODEL_DISAGREES`), the shaded model does not fit this ball: every spot keeps its edge
+/// fit (`keep_edge_fits`). Otherwise: the lit limb pulls every edge fit of a photo alike (one
 /// light, one ball), so the shaded fits, which it does not pull, measure that pull: the median of
 /// (shaded - edge) over the refined images corrects the others (images overlapping a neighbour),
-/// and the scatter of those differences (1.4826 x their median absolute deviation, the larger
-/// axis) joins their sigma. Nothing common is left, so the photo's systematic becomes 0. With one
-/// or two shaded fits the pull is not measured: the edge fits keep their centres and the
-/// systematic joins their sigma (it is now a difference between images, not common to all).
-/// When most shaded fits are uniform discs (a dark ball against its plate), there is no lit limb
-/// to pull the edge fits: they keep their centres and sigmas, and the systematic is 0 (the
-/// differences would be the two fits' noise, and correcting by them adds error rather than
-/// removing it).
+/// and the scatter of those differences (1.4826 x their median absolute deviation, the larger axis)
+/// joins their sigma. Nothing common is left, so the photo's systematic becomes 0. With one or two
+/// shaded fits the pull is not measured: the edge fits keep their centres and the systematic joins
+/// their sigma (it is now a difference between images, not common to all). When most shaded fits
+/// are uniform discs (a dark ball against its plate), there is no lit limb to pull the edge fits:
+/// they keep their centres and sigmas, and the systematic is 0 (the differences would be the two
+/// fits' noise, and correcting by them adds error rather than removing it).
 fn correct_edge_fits(report: &mut SpotReport, shaded: &[Option<Shaded>]) {
     let fits: Vec<&Shaded> = shaded.iter().flatten().collect();
     if fits.is_empty() {

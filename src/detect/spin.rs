@@ -135,14 +135,14 @@ fn terms(ring: &[f64; ANGLES]) -> Vec<(f64, f64)> {
         .collect()
 }
 
-/// What turns with the ball. The light's shading and highlight are fixed to the camera and the
-/// same on every image, while the markings turn: the mean of every image's rings (the common
-/// light) holds the first, with the markings averaged out over the turns. Each image's light
-/// divided by the common light, less one, is its markings alone (a marking multiplies the
-/// surface's light), wherever the common light is not dark. An image whose ratio varies by
-/// under `MIN_CONTRAST` (10 %) (RMS, weighted by the common light squared) is plain; one whose odd
-/// terms carry under `MIN_ODD_SHARE` (a tenth) of the power is symmetric under a half turn. Fewer than
-/// three images sampled: every image is plain (the markings cannot be told from the light).
+/// What turns with the ball. The light's shading and highlight are fixed to the camera and the same
+/// on every image, while the markings turn: the mean of every image's rings (the common light)
+/// holds the first, with the markings averaged out over the turns. Each image's light divided by
+/// the common light, less one, is its markings alone (a marking multiplies the surface's light),
+/// wherever the common light is not dark. An image whose ratio varies by under `MIN_CONTRAST` (10
+/// %) (RMS, weighted by the common light squared) is plain; one whose odd terms carry under
+/// `MIN_ODD_SHARE` (a tenth) of the power is symmetric under a half turn. Fewer than three images
+/// sampled: every image is plain (the markings cannot be told from the light).
 pub fn signatures(rings: &[Result<Rings, NoReading>]) -> Vec<Result<Signature, NoReading>> {
     let read: Vec<&Rings> = rings.iter().filter_map(|r| r.as_ref().ok()).collect();
     if read.len() < 3 {

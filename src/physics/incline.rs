@@ -5,9 +5,10 @@
 //! time is where the incline's velocity (x and y quadratics in t) and the first arc's velocity
 //! agree best in least squares: position and velocity are continuous at the launch, only the
 //! acceleration jumps, so matching velocities is well conditioned where matching positions (a
-//! double root) is not. Rolling without slipping (standard rigid-body mechanics) gives
-//! a = g (sin theta - c cos theta) / (1 + k) and v = sqrt(2 g h / (1 + k)) at c = 0, with k the
-//! moment-of-inertia factor and c an effective rolling-loss coefficient, solved from the measured a.
+//! double root) is not. Rolling without slipping (standard rigid-body mechanics) gives a = g (sin
+//! theta - c cos theta) / (1 + k) and v = sqrt(2 g h / (1 + k)) at c = 0, with k the
+//! moment-of-inertia factor and c an effective rolling-loss coefficient, solved from the measured
+//! a.
 
 use super::TimedPoint;
 use super::fit::{

@@ -7,20 +7,20 @@
 //! divided difference of y (an acceleration estimate from three neighbouring points) jumps to a
 //! large positive value there, where free flight gives -g and rolling gives about zero or a small
 //! negative value. Runs of points whose estimate exceeds max(0.3 g, 5 sigma of the estimate) mark
-//! bounces. A run of one point leaves the contact on either side of it, and the side is the
-//! split with the smallest total chi-square of the two neighbouring flight fits; a run of two
-//! points puts the contact between them, whatever the chi-square says (on a real photo a
-//! 3-image arc across the bounce fits exactly and would win); a longer run leaves every split
-//! to the chi-square. An arc too short to fit beside a bounce is in flight. Before the first bounce, the incline is found by trying every
-//! split between a constant-acceleration straight-line segment (x and y quadratic in t) and a
-//! flight arc, keeping the best; the incline is accepted only when it lowers the chi-square by more
-//! than 25 against one flight arc for the whole segment and its acceleration is below 0.8 g.
-//! An image a small part of a flash interval from the launch fits both phases; when the cheapest
-//! end puts the launch (where the phases' velocities agree) outside the gap between their
-//! images and the neighbouring end, nearly as cheap, puts it inside, the neighbour wins.
-//! With drag fitted, a flight's chi-square is the smaller of the parabola's and a one-arc drag
-//! fit's (gravity held, its own drag coefficient): drag's residuals on a parabola would
-//! otherwise move the boundaries to shed them.
+//! bounces. A run of one point leaves the contact on either side of it, and the side is the split
+//! with the smallest total chi-square of the two neighbouring flight fits; a run of two points puts
+//! the contact between them, whatever the chi-square says (on a real photo a 3-image arc across the
+//! bounce fits exactly and would win); a longer run leaves every split to the chi-square. An arc
+//! too short to fit beside a bounce is in flight. Before the first bounce, the incline is found by
+//! trying every split between a constant-acceleration straight-line segment (x and y quadratic in
+//! t) and a flight arc, keeping the best; the incline is accepted only when it lowers the
+//! chi-square by more than 25 against one flight arc for the whole segment and its acceleration is
+//! below 0.8 g. An image a small part of a flash interval from the launch fits both phases; when
+//! the cheapest end puts the launch (where the phases' velocities agree) outside the gap between
+//! their images and the neighbouring end, nearly as cheap, puts it inside, the neighbour wins. With
+//! drag fitted, a flight's chi-square is the smaller of the parabola's and a one-arc drag fit's
+//! (gravity held, its own drag coefficient): drag's residuals on a parabola would otherwise move
+//! the boundaries to shed them.
 
 use super::TimedPoint;
 use super::fit::{CovarianceScaling, FitOptions, polynomial_fit};

@@ -1,12 +1,11 @@
 //! Rig: measure many strobe photos unattended on a test rig.
 //!
 //! Goes in: photo paths (files, folders, globs) or a folder to watch, one [`MeasureSettings`]
-//! (usually from a rig [`profile::Profile`] plus command-line flags) and [`RigOptions`]. Comes out: one
-//! [`PhotoResult`] per photo, written as one whole JSON line each ([`ResultLine`]: `file` and
+//! (usually from a rig [`profile::Profile`] plus command-line flags) and [`RigOptions`]. Comes out:
+//! one [`PhotoResult`] per photo, written as one whole JSON line each ([`ResultLine`]: `file` and
 //! `status` first, `ok`, `out_of_band`, `doubtful` or `error` with an `error` message, then the
-//! measure JSON), an optional summary
-//! CSV ([`summary::summary_csv`]), optional overlays, and in watch mode a [`Journal`] of done photos so a
-//! restart processes each photo exactly once.
+//! measure JSON), an optional summary CSV ([`summary::summary_csv`]), optional overlays, and in
+//! watch mode a [`Journal`] of done photos so a restart processes each photo exactly once.
 //!
 //! Photos are measured in parallel; a counting [`Semaphore`] bounds how many are decoded and
 //! measured at once so memory stays flat whatever the queue length. Bad photos never stop the

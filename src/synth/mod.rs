@@ -602,8 +602,8 @@ impl Rig {
         }
     }
 
-    /// Coverage (0..1) and brightness level of the rig at world point `p`; `scale` in px per metre for
-    /// antialiasing.
+    /// Coverage (0..1) and brightness level of the rig at world point `p`; `scale` in px per metre
+    /// for antialiasing.
     fn cover(&self, p: [f64; 2], scale: f64) -> Option<(f64, f64)> {
         let aa = |d_m: f64| (0.5 - d_m * scale).clamp(0.0, 1.0);
         // Floor: inside when -depth <= y <= 0; signed distance to the band.

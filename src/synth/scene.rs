@@ -390,7 +390,8 @@ pub struct PhotoLook {
     pub ball_albedo: Option<f64>,
     /// Linear brightness the backdrop reaches over the whole exposure, 0..1 (default 0.05 bright,
     /// 0.75 dark). A ball image hides the backdrop for its own flash only, so a dark ball on a
-    /// bright backdrop dims it by about 1/N of this level for N flashes, as in a real long exposure.
+    /// bright backdrop dims it by about 1/N of this level for N flashes, as in a real long
+    /// exposure.
     #[serde(default)]
     pub backdrop_level: Option<f64>,
     /// Linear brightness of the floor plate over the exposure, 0..1.

@@ -441,8 +441,8 @@ fn offset_at_floor(
     chosen
 }
 
-/// Global flash count and level where the falling side of `before` (global n = local + ob) meets the rising side of
-/// `after` (global n = local + oa), when they meet between the two tops.
+/// Global flash count and level where the falling side of `before` (global n = local + ob) meets
+/// the rising side of `after` (global n = local + oa), when they meet between the two tops.
 fn crossing(before: &Arc, ob: i64, after: &Arc, oa: i64) -> Option<(f64, f64)> {
     let (tb, ta) = (before.top_n() + ob as f64, after.top_n() + oa as f64);
     if ta <= tb {

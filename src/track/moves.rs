@@ -75,12 +75,12 @@ impl Finder<'_> {
         moves
     }
 
-    /// A step that gives the arc after a bounce its third image must give it the acceleration
-    /// of the arc before the bounce (one gravity, when that arc had four images or more), within [`GRAVITY_TOLERANCE`] and three sigmas
-    /// of the centres. Two images after a bounce leave their flash count open; the big gate of
-    /// a two-point prediction then lets a chain at every other flash (a quarter of the
-    /// acceleration per step squared) or at twice the rate through, which stays consistent
-    /// with itself ever after. True for any other step.
+    /// A step that gives the arc after a bounce its third image must give it the acceleration of
+    /// the arc before the bounce (one gravity, when that arc had four images or more), within
+    /// [`GRAVITY_TOLERANCE`] and three sigmas of the centres. Two images after a bounce leave their
+    /// flash count open; the big gate of a two-point prediction then lets a chain at every other
+    /// flash (a quarter of the acceleration per step squared) or at twice the rate through, which
+    /// stays consistent with itself ever after. True for any other step.
     fn same_gravity(&self, walk: &Walk, item: usize, k: i64) -> bool {
         let arc = &walk.nodes[walk.arc_start..];
         // The arc before the bounce measured its acceleration from four images or more (not
@@ -105,12 +105,12 @@ impl Finder<'_> {
         norm(sub(implied, carried)) <= GRAVITY_TOLERANCE * norm(carried) + noise_px
     }
 
-    /// Steps from the last point of a flight arc where the acceleration changes: the ball
-    /// leaves an incline for free flight, seen backward in time. Position and velocity are continuous there, so
-    /// the next image lies where some acceleration (a mean of the two) would put it; the one
-    /// the step implies must be no larger than the measured one (gravity is the largest
-    /// acceleration on a path). Its direction is left free: the last point may already lie
-    /// past the change (its image mixes the two accelerations into the velocity).
+    /// Steps from the last point of a flight arc where the acceleration changes: the ball leaves an
+    /// incline for free flight, seen backward in time. Position and velocity are continuous there,
+    /// so the next image lies where some acceleration (a mean of the two) would put it; the one the
+    /// step implies must be no larger than the measured one (gravity is the largest acceleration on
+    /// a path). Its direction is left free: the last point may already lie past the change (its
+    /// image mixes the two accelerations into the velocity).
     fn kink_moves(&self, walk: &Walk, moves: &mut Vec<Move>) {
         let arc_len = walk.nodes.len() - walk.arc_start;
         let (Some(last), Some(v), Some(a)) =
