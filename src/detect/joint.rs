@@ -326,6 +326,19 @@ fn fit_owned(
 /// residuals of a few hundredths of a pixel, which are not outliers.
 const LEAST_CUT_PX: f64 = 0.05;
 
+/// The residuals of `pts` from circle `c` (signed, pixels) and `sigmas` robust sigmas of them
+/// (1.4826 x their median absolute value), at least [`LEAST_CUT_PX`].
+fn residuals_and_cut(pts: &[[f64; 2]], c: &Circle, sigmas: f64) -> (Vec<f64>, f64) {
+    let res: Vec<f64> = pts
+        .iter()
+        .map(|q| dist(q[0] - c.x_px, q[1] - c.y_px) - c.r_px)
+        .collect();
+    let mut abs: Vec<f64> = res.iter().map(|r| r.abs()).collect();
+    abs.sort_by(f64::total_cmp);
+    let cut = (sigmas * MAD_TO_SIGMA * abs[abs.len() / 2]).max(LEAST_CUT_PX);
+    (res, cut)
+}
+
 /// Rounds of trimming of a circle fit in a photo of a printed ball: each drops the points
 /// beyond 3 robust sigmas of the last fit and fits again, until none is dropped.
 pub const PRINTED_TRIM_ROUNDS: usize = 3;
@@ -342,17 +355,11 @@ fn trimmed(
 ) -> (GeometricFit, Option<Vec<[f64; 2]>>) {
     let mut kept_pts = None;
     for _ in 0..rounds {
-        let res: Vec<f64> = pts
-            .iter()
-            .map(|q| (dist(q[0] - fit.circle.x_px, q[1] - fit.circle.y_px) - fit.circle.r_px).abs())
-            .collect();
-        let mut sorted = res.clone();
-        sorted.sort_by(f64::total_cmp);
-        let cut = (3.0 * MAD_TO_SIGMA * sorted[sorted.len() / 2]).max(LEAST_CUT_PX);
+        let (res, cut) = residuals_and_cut(pts, &fit.circle, 3.0);
         let kept: Vec<[f64; 2]> = pts
             .iter()
             .zip(&res)
-            .filter(|(_, r)| **r <= cut)
+            .filter(|(_, r)| r.abs() <= cut)
             .map(|(q, _)| *q)
             .collect();
         if kept.len() < min_points {
@@ -399,13 +406,7 @@ fn biweight(
 ) -> Option<(GeometricFit, Vec<[f64; 2]>)> {
     let mut weights = vec![1.0; pts.len()];
     for _ in 0..BIWEIGHT_ROUNDS {
-        let res: Vec<f64> = pts
-            .iter()
-            .map(|q| dist(q[0] - fit.circle.x_px, q[1] - fit.circle.y_px) - fit.circle.r_px)
-            .collect();
-        let mut abs: Vec<f64> = res.iter().map(|r| r.abs()).collect();
-        abs.sort_by(f64::total_cmp);
-        let cut = (BIWEIGHT_C * MAD_TO_SIGMA * abs[abs.len() / 2]).max(LEAST_CUT_PX);
+        let (res, cut) = residuals_and_cut(pts, &fit.circle, BIWEIGHT_C);
         for (w, r) in weights.iter_mut().zip(&res) {
             let u = r / cut;
             *w = if u.abs() < 1.0 {

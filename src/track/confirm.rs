@@ -37,27 +37,15 @@ pub fn confirm_missing(
     r_px: f64,
     radius_tolerance: f64,
 ) -> Vec<(usize, usize)> {
-    let mut found: Vec<(usize, usize)> = Vec::new();
-    for &n in &path.missing {
-        let Some([x, y]) = predicted_position(path, phases, n) else {
-            continue;
-        };
-        let best = rejected
-            .iter()
-            .enumerate()
-            .filter(|(i, c)| {
-                matches!(c.reason, Reason::Faint | Reason::WeakRim)
-                    && (c.r_px - r_px).abs() <= radius_tolerance * r_px
-                    && !found.iter().any(|f| f.1 == *i)
-            })
-            .map(|(i, c)| (i, (c.x_px - x).hypot(c.y_px - y)))
-            .filter(|(_, d)| *d <= GATE_RADII * r_px)
-            .min_by(|p, q| p.1.total_cmp(&q.1));
-        if let Some((i, _)) = best {
-            found.push((n, i));
-        }
-    }
-    found
+    let usable: Vec<Option<[f64; 2]>> = rejected
+        .iter()
+        .map(|c| {
+            (matches!(c.reason, Reason::Faint | Reason::WeakRim)
+                && (c.r_px - r_px).abs() <= radius_tolerance * r_px)
+                .then_some([c.x_px, c.y_px])
+        })
+        .collect();
+    nearest_per_flash(path, phases, &usable, r_px)
 }
 
 /// The path's missing flashes looked for among the spots the walk left off every path
@@ -71,16 +59,32 @@ pub fn adopt_strays(
     strays: &[Stray],
     r_px: f64,
 ) -> Vec<(usize, usize)> {
+    let usable: Vec<Option<[f64; 2]>> = strays
+        .iter()
+        .map(|s| (s.reason == StrayReason::OffPath).then_some([s.x_px, s.y_px]))
+        .collect();
+    nearest_per_flash(path, phases, &usable, r_px)
+}
+
+/// Per missing flash of `path` inside one of `phases`, the nearest of the `usable` candidates
+/// (None: not usable) within [`GATE_RADII`] radius of its prediction and not taken by an
+/// earlier flash: `(n, index into usable)`.
+fn nearest_per_flash(
+    path: &BallPath,
+    phases: &[(usize, usize)],
+    usable: &[Option<[f64; 2]>],
+    r_px: f64,
+) -> Vec<(usize, usize)> {
     let mut found: Vec<(usize, usize)> = Vec::new();
     for &n in &path.missing {
         let Some([x, y]) = predicted_position(path, phases, n) else {
             continue;
         };
-        let best = strays
+        let best = usable
             .iter()
             .enumerate()
-            .filter(|(i, s)| s.reason == StrayReason::OffPath && !found.iter().any(|f| f.1 == *i))
-            .map(|(i, s)| (i, (s.x_px - x).hypot(s.y_px - y)))
+            .filter(|(i, _)| !found.iter().any(|f| f.1 == *i))
+            .filter_map(|(i, c)| c.map(|[cx, cy]| (i, (cx - x).hypot(cy - y))))
             .filter(|(_, d)| *d <= GATE_RADII * r_px)
             .min_by(|p, q| p.1.total_cmp(&q.1));
         if let Some((i, _)) = best {
