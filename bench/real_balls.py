@@ -3,8 +3,9 @@
 that are not the renderer's plain sphere (the real-balls issue): printed markings (seams, panel
 lines, a band, a dot on a spinning ball), light from one side (a crescent), a glossy highlight
 from another direction, motion toward the camera, and a bright shape on the backdrop behind the
-path. Each look is rendered at three radii beside the plain ball of the same scene, so every
-figure is measured side by side in one run.
+path. Each look is rendered at three radii, three times with other seeds (`--copies`), beside
+the plain ball of the same scene, so every figure is measured side by side in one run; the
+centre RMS of each look is given against its plain look's with a bootstrap interval.
 
 Per look: the spots' recall (images 0.8 radius or more from a neighbour), precision, centre RMS
 (isolated and overlapping images), spots found twice on one image; the path of `measure` (images
@@ -64,12 +65,27 @@ LOOKS = {
 }
 
 
-def scenes():
-    """(name, look, radius, extension, scene dict) of every photo."""
+# The plain look each look is held against (same scene, light and compression, no markings);
+# `dot_spin` is a throw, which no plain look renders.
+YARDSTICK = {"seams": "plain", "panels_jpeg": "plain_jpeg", "band": "plain",
+             "side_lit": "plain_side_lit", "glossy": "plain", "depth": "plain",
+             "backdrop": "plain"}
+
+
+def scenes(copies):
+    """(name, look, radius, extension, scene dict) of every photo: each look at each radius,
+    `copies` times with other seeds (other noise, other turns of the markings)."""
+    out = []
+    for k in range(copies):
+        out += scenes_of_copy(k)
+    return out
+
+
+def scenes_of_copy(k):
     out = []
     for li, (look, (_, ball, photo, extra, throw)) in enumerate(LOOKS.items()):
         for ri, r in enumerate(RADII):
-            doc = suite.scene(1100 + 10 * li + ri, r, incline=not throw)
+            doc = suite.scene(1100 + 10 * li + ri + 1000 * k, r, incline=not throw)
             doc["ball"].update(ball)
             doc["photo"].update(photo)
             if throw and "spin_hz" in extra:
@@ -78,7 +94,8 @@ def scenes():
                 if k != "spin_hz":
                     doc[k] = v
             ext = "jpg" if photo.get("jpeg_quality", 92) < 92 else "png"
-            out.append((f"{look}_r{int(r)}", look, r, ext, doc))
+            suffix = f"_c{k}" if k else ""
+            out.append((f"{look}_r{int(r)}{suffix}", look, r, ext, doc))
     return out
 
 
@@ -204,7 +221,41 @@ def summarise(rows):
     }
 
 
-def report(path, rows, binary, elapsed_s):
+def ratio_with_interval(rows, look, yardstick, overlap, resamples=2000):
+    """Centre RMS of `look` over that of `yardstick` (isolated or overlapping images) and its
+    bootstrap 68 % interval (images resampled with replacement within each look; Efron,
+    "Bootstrap methods: another look at the jackknife", Ann. Statist. 7, 1979)."""
+    def squared(name):
+        e = [r["err"][r["overlap"] == overlap] for r in rows if r["look"] == name]
+        return (np.concatenate(e) ** 2).sum(axis=1) if e else np.zeros(0)
+    a, b = squared(look), squared(yardstick)
+    if not len(a) or not len(b) or b.mean() <= 0:
+        return None
+    rng = np.random.default_rng(1)
+    ra = a[rng.integers(0, len(a), (resamples, len(a)))].mean(axis=1)
+    rb = b[rng.integers(0, len(b), (resamples, len(b)))].mean(axis=1)
+    boot = np.sqrt(ra / np.maximum(rb, 1e-300))
+    lo, hi = np.percentile(boot, [16, 84])
+    return float(np.sqrt(a.mean() / b.mean())), float(lo), float(hi), len(a)
+
+
+def ratio_table(rows):
+    L = ["", "## Centre RMS against the plain ball", "",
+         "Each look's centre RMS over that of the plain look of the same scene, light and "
+         "compression (the issue's target: at most 2), with its bootstrap 68 % interval "
+         "(images resampled within each look, 2000 times) and the images counted.", "",
+         "| look | against | isolated | overlapping |", "|---|---|---|---|"]
+    for look, yard in YARDSTICK.items():
+        cells = []
+        for overlap in (False, True):
+            q = ratio_with_interval(rows, look, yard, overlap)
+            cells.append("–" if q is None else
+                         f"{q[0]:.2f} ({q[1]:.2f}-{q[2]:.2f}; {q[3]} images)")
+        L.append(f"| {look} | {yard} | {cells[0]} | {cells[1]} |")
+    return L
+
+
+def report(path, rows, binary, elapsed_s, copies):
     L = ["# Real-balls benchmark: results", "",
          f"Date: {datetime.datetime.now(datetime.timezone.utc):%Y-%m-%d %H:%M} UTC  ",
          f"Machine: {sb.machine()}  ",
@@ -212,7 +263,9 @@ def report(path, rows, binary, elapsed_s):
          f"Command: `bench/run_real_balls.sh` ({elapsed_s / 60:.1f} min in all)", "",
          "Photos rendered by `beadline render` (photon noise on) from the spots suite's incline "
          "scene (a throw for `dot_spin`), one look at a time, at radii "
-         + ", ".join(f"{r:.0f}" for r in RADII) + " px. `spots` gets the truth's radius range "
+         + ", ".join(f"{r:.0f}" for r in RADII) + f" px, {copies} times each with other seeds "
+         "(other noise, other turns of the markings; the first copy's photos carry no suffix). "
+         "`spots` gets the truth's radius range "
          "-20 %/+20 %; `measure` the truth's flash rate and ball diameter. Recall counts images "
          "0.8 radius or more from a neighbour; *twice* counts spots within one radius of an "
          "image already matched; *e* counts each bounce's restitution against the truth: right "
@@ -241,6 +294,7 @@ def report(path, rows, binary, elapsed_s):
                  f"({sb.fmt(s['angle_rms'], '.2f')}) | {s['spin_phases']} "
                  f"({sb.fmt(s['spin_worst_rel'], '.2%')}, {s['spin_over_3sigma']}) | "
                  f"{s['spin_checks']} ({s['spin_false']}) |")
+    L += ratio_table(rows)
     L += ["", "## Per photo", "",
           "| photo | recall | fp | twice | RMS px | path / truth | numbered | exit | e |",
           "|---|---|---|---|---|---|---|---|---|"]
@@ -257,13 +311,15 @@ def main():
     ap = argparse.ArgumentParser(description=__doc__.split("\n")[0])
     ap.add_argument("--beadline", default="target/release/beadline")
     ap.add_argument("--out", default="bench/REAL_BALLS_RESULTS.md")
+    ap.add_argument("--copies", type=int, default=3,
+                    help="photos of each look and radius, each with its own seed")
     args = ap.parse_args()
     t0 = time.perf_counter()
     scene_dir, photo_dir = pathlib.Path("bench/out/real/scenes"), pathlib.Path("bench/out/real")
     scene_dir.mkdir(parents=True, exist_ok=True)
     entries = []
     looks = {}
-    for name, look, _r, ext, doc in scenes():
+    for name, look, _r, ext, doc in scenes(args.copies):
         (scene_dir / f"{name}.toml").write_text(suite.to_toml(doc))
         entries.append((name, ext, False))
         looks[name] = look
@@ -288,7 +344,7 @@ def main():
         print(f"  {name}: spots {res['tp']}/{res['n_truth']} fp {res['fp']} twice "
               f"{res['twice']}, path {res['path_points']}, exit {status}, "
               f"e {' '.join(res['e_classes'])}")
-    report(pathlib.Path(args.out), rows, args.beadline, time.perf_counter() - t0)
+    report(pathlib.Path(args.out), rows, args.beadline, time.perf_counter() - t0, args.copies)
     print(f"wrote {args.out}")
 
 

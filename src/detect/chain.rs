@@ -790,6 +790,7 @@ fn correlation_factor(window: &[Sample], res: &[f64]) -> f64 {
                 y_px: s.y_px,
                 value: s.value,
                 backdrop: 0.0,
+                weight: 1.0,
             };
             (q, *r)
         })

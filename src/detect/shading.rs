@@ -73,6 +73,7 @@ fn shade_window(
                 y_px: yf,
                 value: tone.to_linear(photo.at(x, y)) - tone.to_linear(bg.at(x, y)),
                 backdrop: bg.smooth_at(x, y, |v| tone.to_linear(v)),
+                weight: 1.0,
             });
         }
     }

@@ -253,11 +253,11 @@ fn find_arcs(line: &Line, fall_px_per_flash2: Option<f64>) -> Vec<(Arc, Hits)> {
             Some(c) => Some((c, KNOWN_CURVATURE_SPREAD)),
             None => arcs.first().map(|a| (a.0.c, CURVATURE_SPREAD)),
         };
-        let Some((arc, hits)) = best_arc(line, &explained, c_ref) else {
+        let needed = if arcs.is_empty() { MIN_FIRST } else { MIN_NEW };
+        let Some((arc, hits)) = best_arc(line, &explained, c_ref, needed) else {
             break;
         };
         let new = distinct_new(&hits, &explained);
-        let needed = if arcs.is_empty() { MIN_FIRST } else { MIN_NEW };
         if new < needed {
             break;
         }
@@ -270,12 +270,20 @@ fn find_arcs(line: &Line, fall_px_per_flash2: Option<f64>) -> Vec<(Arc, Hits)> {
 }
 
 /// The best-supported arc over every sample of three spots (gaps 1 or 2), refitted; with
-/// `c_ref` only arcs of that curvature (within its relative spread).
-fn best_arc(line: &Line, explained: &[bool], c_ref: Option<(f64, f64)>) -> Option<(Arc, Hits)> {
+/// `c_ref` only arcs of that curvature (within its relative spread). `needed`: the new spots
+/// an arc must explain to be kept.
+fn best_arc(
+    line: &Line,
+    explained: &[bool],
+    c_ref: Option<(f64, f64)>,
+    needed: usize,
+) -> Option<(Arc, Hits)> {
     let n = line.s.len();
     let curvature_ok =
         |c: f64| c > 0.0 && c_ref.is_none_or(|(r, spread)| (c - r).abs() <= spread * r);
-    let mut best: Option<(i64, Arc)> = None;
+    // Of arcs as well supported, one with the `needed` new spots to be kept wins: one without
+    // them would end the search while another as good is there.
+    let mut best: Option<((i64, bool), Arc)> = None;
     for i in 0..n {
         for j in 0..n {
             for k in 0..n {
@@ -288,10 +296,11 @@ fn best_arc(line: &Line, explained: &[bool], c_ref: Option<(f64, f64)>) -> Optio
                         continue;
                     }
                     let (hits, empty) = support(line, &arc);
-                    let new = distinct_new(&hits, explained) as i64;
-                    let score = new - 2 * empty as i64;
-                    if best.as_ref().is_none_or(|b| score > b.0) {
-                        best = Some((score, arc));
+                    let new = distinct_new(&hits, explained);
+                    let score = new as i64 - 2 * empty as i64;
+                    let rank = (score, new >= needed);
+                    if best.as_ref().is_none_or(|b| rank > b.0) {
+                        best = Some((rank, arc));
                     }
                 }
             }
