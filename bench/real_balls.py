@@ -62,6 +62,9 @@ LOOKS = {
     "plain_side_lit": ("the plain sphere lit from the right side, fill 0.05 (the yardstick of "
                        "side_lit)", {}, {"light_dir": [1.0, -0.15, 0.25], "fill": 0.05}, {},
                        False),
+    "plain_backdrop": ("the plain sphere before the bright panel (the yardstick of backdrop)", {},
+                       {}, {"backdrop_shapes": [{"x_px": 760.0, "y_px": 560.0, "width_px": 260.0,
+                                                 "height_px": 330.0, "level": 0.45}]}, False),
 }
 
 
@@ -69,7 +72,7 @@ LOOKS = {
 # `dot_spin` is a throw, which no plain look renders.
 YARDSTICK = {"seams": "plain", "panels_jpeg": "plain_jpeg", "band": "plain",
              "side_lit": "plain_side_lit", "glossy": "plain", "depth": "plain",
-             "backdrop": "plain"}
+             "backdrop": "plain_backdrop"}
 
 
 def scenes(copies):
@@ -81,11 +84,12 @@ def scenes(copies):
     return out
 
 
-def scenes_of_copy(k):
+def scenes_of_copy(copy):
+    """The photos of copy number `copy` (0: the first, whose seeds and names have no suffix)."""
     out = []
     for li, (look, (_, ball, photo, extra, throw)) in enumerate(LOOKS.items()):
         for ri, r in enumerate(RADII):
-            doc = suite.scene(1100 + 10 * li + ri + 1000 * k, r, incline=not throw)
+            doc = suite.scene(1100 + 10 * li + ri + 1000 * copy, r, incline=not throw)
             doc["ball"].update(ball)
             doc["photo"].update(photo)
             if throw and "spin_hz" in extra:
@@ -94,7 +98,7 @@ def scenes_of_copy(k):
                 if k != "spin_hz":
                     doc[k] = v
             ext = "jpg" if photo.get("jpeg_quality", 92) < 92 else "png"
-            suffix = f"_c{k}" if k else ""
+            suffix = f"_c{copy}" if copy else ""
             out.append((f"{look}_r{int(r)}{suffix}", look, r, ext, doc))
     return out
 

@@ -248,6 +248,11 @@ pub fn find_spots(
         return Ok(report);
     };
     let (regions, candidates) = search::find_regions(photo, &bg, &work, radius, options, debug);
+    // The photo's balls carry printed marks: some edges are still marks' edges once the
+    // photo-wide decision ([`hough::settle_marks`]) is made.
+    let printed = regions
+        .iter()
+        .any(|r| r.edges.iter().any(|e| e.mark_px.is_finite()));
     // The decimated photo and its blobs are done with.
     drop(work);
     let first = joint::first_pass(&regions, &candidates, &options.refine);
@@ -269,7 +274,7 @@ pub fn find_spots(
         &mut report,
     );
     if common <= options.shaded_max_r_px {
-        shading::refine_spots(photo, &bg, options.tone, &mut report);
+        shading::refine_spots(photo, &bg, options.tone, &mut report, printed);
     }
     report.spots.sort_by(|a, b| a.x_px.total_cmp(&b.x_px));
     report.rejected.sort_by(|a, b| a.x_px.total_cmp(&b.x_px));

@@ -591,6 +591,14 @@ const RESTORED_AGREES: f64 = 3.0;
 /// repeated, twice at most. The covariance is
 /// the Gauss-Newton one scaled by the residual variance.
 pub fn shaded_fit(window: &[WindowPixel], start: Circle) -> Option<ShadedFit> {
+    shaded_fit_of(window, start, false)
+}
+
+/// [`shaded_fit`] of an image on a photo whose balls carry printed marks (`printed`, the
+/// photo-wide decision of [`crate::detect::hough::settle_marks`]): the pixels left out beside
+/// a mark's outliers come back, weighted, ring by ring. On a plain ball the outliers are an
+/// incline's or backdrop's edge, a highlight or compression blocks, and their margin stays.
+pub fn shaded_fit_of(window: &[WindowPixel], start: Circle, printed: bool) -> Option<ShadedFit> {
     const NP: usize = SHADED_NP;
     let mut pixels: Vec<WindowPixel> = window.to_vec();
     let mut p = light_start(window, start);
@@ -638,8 +646,11 @@ pub fn shaded_fit(window: &[WindowPixel], start: Circle) -> Option<ShadedFit> {
     }
     let (f, jtj, mut n, res) = out?;
     let clean = (p, f, res, jtj);
+    let restored = printed
+        .then(|| with_rings_restored(window, &pixels, &clean))
+        .flatten();
     let (f, res, jtj);
-    (p, f, res, jtj) = match with_rings_restored(window, &pixels, &clean) {
+    (p, f, res, jtj) = match restored {
         Some((restored, state)) => {
             n = restored.len();
             pixels = restored;
@@ -933,7 +944,7 @@ mod tests {
                 y_px: cy + 0.1,
                 r_px: r + 0.1,
             };
-            let fit = shaded_fit(&window, start).expect("fit converges");
+            let fit = shaded_fit_of(&window, start, true).expect("fit converges");
             let (ex, ey) = (fit.circle.x_px - cx, fit.circle.y_px - cy);
             err2 += ex * ex + ey * ey;
             z2 += (ex * ex + ey * ey) / (fit.sigma_px * fit.sigma_px);

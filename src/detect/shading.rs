@@ -11,15 +11,28 @@
 use crate::core::light::Tone;
 use crate::core::stats::{MAD_TO_SIGMA, upper_median};
 use crate::detect::circle::Circle;
-use crate::detect::shaded::{ShadedFit, WindowPixel, light_evidence, shaded_fit};
+use crate::detect::shaded::{ShadedFit, WindowPixel, light_evidence, shaded_fit_of};
 use crate::detect::{Reason, Rejected, Spot, SpotReport};
 use crate::image::background::Background;
 use crate::image::load::Photo;
 use rayon::prelude::*;
 
-/// Refine the spots of `report` by their shading (see the module's doc).
-pub fn refine_spots(photo: &Photo, bg: &Background, tone: Tone, report: &mut SpotReport) {
-    let shaded = shade_spots(photo, bg, tone, &mut report.spots, report.systematic_px);
+/// Refine the spots of `report` by their shading (see the module's doc); `printed`: the photo's
+/// balls carry printed marks ([`crate::detect::shaded::shaded_fit_of`]).
+pub fn refine_spots(
+    photo: &Photo,
+    bg: &Background,
+    tone: Tone,
+    report: &mut SpotReport,
+    printed: bool,
+) {
+    let shaded = shade_spots(
+        photo,
+        bg,
+        tone,
+        (&mut report.spots, printed),
+        report.systematic_px,
+    );
     let shaded = drop_other_lights(photo, bg, tone, report, shaded);
     correct_edge_fits(report, &shaded);
 }
@@ -335,7 +348,7 @@ fn shade_spots(
     photo: &Photo,
     bg: &Background,
     tone: Tone,
-    spots: &mut [Spot],
+    (spots, printed): (&mut [Spot], bool),
     systematic_px: f64,
 ) -> Vec<Option<Shaded>> {
     let fits: Vec<Option<ShadedFit>> = spots
@@ -347,7 +360,7 @@ fn shade_spots(
                 y_px: s.y_px,
                 r_px: s.r_px,
             };
-            shaded_fit(&window, start)
+            shaded_fit_of(&window, start, printed)
         })
         .collect();
     let mut shaded = vec![None; spots.len()];
