@@ -10,7 +10,7 @@
 //! not significant (Schwarz's criterion), a uniform disc's silhouette is kept.
 
 use crate::core::geometry::{disc_coverage, sphere_normal};
-use crate::core::stats::MAD_TO_SIGMA;
+use crate::core::stats::{MAD_TO_SIGMA, median_f32};
 use crate::detect::circle::Circle;
 use std::f64::consts::FRAC_1_SQRT_2;
 
@@ -459,6 +459,24 @@ fn light_start(window: &[WindowPixel], c: Circle) -> [f64; SHADED_NP] {
 /// within `g` pixels of it are left out too, since where it meets the rim the rim's pixels mix
 /// the two.
 fn without_outliers(pixels: &[WindowPixel], res: &[f64], cut: f64, g: i64) -> Vec<WindowPixel> {
+    let (outlier, structured) = outlier_structures(pixels, res, cut);
+    pixels
+        .iter()
+        .filter(|q| {
+            !outlier.get(q, 0, 0)
+                && !(-g..=g).any(|dy| (-g..=g).any(|dx| structured.get(q, dx, dy)))
+        })
+        .copied()
+        .collect()
+}
+
+/// The outliers of `pixels` (residual beyond `cut`) and, of those, the ones next to another
+/// (a structure: a mark, an edge, a streak).
+fn outlier_structures(
+    pixels: &[WindowPixel],
+    res: &[f64],
+    cut: f64,
+) -> (WindowGrid<bool>, WindowGrid<bool>) {
     let mut outlier = WindowGrid::new(pixels, false);
     for (q, r) in pixels.iter().zip(res) {
         if r.abs() > cut {
@@ -473,14 +491,13 @@ fn without_outliers(pixels: &[WindowPixel], res: &[f64], cut: f64, g: i64) -> Ve
             structured.set(q, joined);
         }
     }
-    pixels
-        .iter()
-        .filter(|q| {
-            !outlier.get(q, 0, 0)
-                && !(-g..=g).any(|dy| (-g..=g).any(|dx| structured.get(q, dx, dy)))
-        })
-        .copied()
-        .collect()
+    (outlier, structured)
+}
+
+/// The median of the residuals' absolute values (the upper of the middle two); NaN for none.
+fn median_abs(res: &[f64]) -> f64 {
+    let mut abs: Vec<f32> = res.iter().map(|r| r.abs() as f32).collect();
+    median_f32(&mut abs) as f64
 }
 
 /// The pixels left out of a shaded fit only for lying near a structure of outliers, given back
@@ -498,9 +515,7 @@ fn restore_rings(
     res: &[f64],
 ) -> Option<Vec<WindowPixel>> {
     let all = residuals_beyond(window, pixels, p, Shading::Lambert)?;
-    let mut abs: Vec<f32> = res.iter().map(|r| r.abs() as f32).collect();
-    let mid = abs.len() / 2;
-    let sigma = MAD_TO_SIGMA * *abs.select_nth_unstable_by(mid, f32::total_cmp).1 as f64;
+    let sigma = MAD_TO_SIGMA * median_abs(res);
     if sigma.is_nan() || sigma <= 0.0 {
         return None;
     }
@@ -532,18 +547,10 @@ fn restore_rings(
 /// Chessboard distance of each pixel of `window` from the nearest structure of outliers (an
 /// outlier beyond `cut` next to another), up to [`SHADED_MASK_GROW`]; larger elsewhere.
 fn structure_distance(window: &[WindowPixel], res: &[f64], cut: f64) -> WindowGrid<i64> {
-    let mut outlier = WindowGrid::new(window, false);
-    for (q, r) in window.iter().zip(res) {
-        outlier.set(q, r.abs() > cut);
-    }
+    let (_, structured) = outlier_structures(window, res, cut);
     let mut near = WindowGrid::new(window, i64::MAX);
     let g = SHADED_MASK_GROW;
-    for q in window {
-        let joined = outlier.get(q, 0, 0)
-            && (-1..=1).any(|dy| (-1..=1).any(|dx| (dx, dy) != (0, 0) && outlier.get(q, dx, dy)));
-        if !joined {
-            continue;
-        }
+    for q in window.iter().filter(|q| structured.get(q, 0, 0)) {
         for dy in -g..=g {
             for dx in -g..=g {
                 if let Some(i) = near.index(q, dx, dy) {
@@ -609,9 +616,7 @@ pub fn shaded_fit_of(window: &[WindowPixel], start: Circle, printed: bool) -> Op
         }
         let (q, f, res, jtj) = shaded_lm(&pixels, p, Shading::Lambert)?;
         p = q;
-        let mut abs: Vec<f32> = res.iter().map(|r| r.abs() as f32).collect();
-        let mid = abs.len() / 2;
-        let mad = *abs.select_nth_unstable_by(mid, f32::total_cmp).1 as f64;
+        let mad = median_abs(&res);
         // Noise-free pixels (a rendered photo without noise) leave only the model's own small
         // misfit, which is not an outlier: the cut is at least 1 % of the image's contrast.
         let contrast = pixels.iter().fold(0.0f64, |m, q| m.max(q.value.abs()));
