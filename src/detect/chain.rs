@@ -791,6 +791,7 @@ fn correlation_factor(window: &[Sample], res: &[f64]) -> f64 {
                 value: s.value,
                 backdrop: 0.0,
                 weight: 1.0,
+                others: [0.0; 3],
             };
             (q, *r)
         })

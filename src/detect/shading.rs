@@ -6,12 +6,16 @@
 //! ([`crate::detect::shaded::shaded_fit`], a Lambertian sphere by variable projection), spots
 //! lit by another light rejected as [`Reason::OtherLight`], the edge fits of the others
 //! corrected by the median lit-limb pull (robust sigma 1.4826 x MAD of the pulls joins theirs)
-//! and the photo's systematic set accordingly.
+//! and the photo's systematic set accordingly. On a printed ball whose lone images the shaded
+//! model describes, the images that overlap a neighbour are then refitted by their pixels too,
+//! their neighbours held in place ([`crate::detect::shaded::shaded_fit_held`]).
 
 use crate::core::light::Tone;
 use crate::core::stats::{MAD_TO_SIGMA, upper_median};
 use crate::detect::circle::Circle;
-use crate::detect::shaded::{ShadedFit, WindowPixel, light_evidence, shaded_fit_of};
+use crate::detect::shaded::{
+    ShadedFit, WindowPixel, held_terms, light_evidence, shaded_fit_held, shaded_fit_of,
+};
 use crate::detect::{Reason, Rejected, Spot, SpotReport};
 use crate::image::background::Background;
 use crate::image::load::Photo;
@@ -34,18 +38,22 @@ pub fn refine_spots(
         report.systematic_px,
     );
     let shaded = drop_other_lights(photo, bg, tone, report, shaded);
-    correct_edge_fits(report, &shaded);
+    let light_uv = correct_edge_fits(report, &shaded);
+    if let Some(light_uv) = light_uv.filter(|_| printed) {
+        refine_overlapping(photo, bg, tone, (report, &shaded), light_uv);
+    }
 }
 
 /// The pixels around spot `s` in linear light, from 0.65 radius (or 6 px) inside its rim to
-/// 2.5 px outside, without those a neighbouring image may reach; None when a neighbour overlaps
-/// it or takes half of the window.
+/// 2.5 px outside. Alone (`held` None): without those a neighbouring image may reach, and None
+/// when a neighbour overlaps it or takes half of the window. With the photo's light `held`: every
+/// pixel, the neighbours held in place in [`WindowPixel::others`].
 fn shade_window(
     photo: &Photo,
     bg: &Background,
     tone: Tone,
-    spots: &[Spot],
-    s: &Spot,
+    (spots, s): (&[Spot], &Spot),
+    held: Option<[f64; 2]>,
 ) -> Option<Vec<WindowPixel>> {
     let outer = s.r_px + SHADED_OUTSIDE_PX;
     // An overlapping neighbour leaves this image no clean rim; one that is near keeps the
@@ -53,7 +61,7 @@ fn shade_window(
     let mut neighbours = Vec::new();
     for o in spots {
         let d = (o.x_px - s.x_px).hypot(o.y_px - s.y_px);
-        if d > 0.3 * s.r_px && d < o.r_px + s.r_px {
+        if d > 0.3 * s.r_px && d < o.r_px + s.r_px && held.is_none() {
             return None;
         }
         if d > 0.3 * s.r_px && d < o.r_px + outer + 2.0 {
@@ -75,9 +83,10 @@ fn shade_window(
                 continue;
             }
             annulus += 1;
-            if neighbours
-                .iter()
-                .any(|o| (xf - o.x_px).hypot(yf - o.y_px) < o.r_px + 2.0)
+            if held.is_none()
+                && neighbours
+                    .iter()
+                    .any(|o| (xf - o.x_px).hypot(yf - o.y_px) < o.r_px + 2.0)
             {
                 continue;
             }
@@ -87,6 +96,7 @@ fn shade_window(
                 value: tone.to_linear(photo.at(x, y)) - tone.to_linear(bg.at(x, y)),
                 backdrop: bg.smooth_at(x, y, |v| tone.to_linear(v)),
                 weight: 1.0,
+                others: [0.0; 3],
             });
         }
     }
@@ -96,6 +106,12 @@ fn shade_window(
     let mean = window.iter().map(|q| q.backdrop).sum::<f64>() / window.len() as f64;
     for q in &mut window {
         q.backdrop -= mean;
+        if let Some(light_uv) = held {
+            q.others = neighbours.iter().fold([0.0; 3], |sum, o| {
+                let t = held_terms(q, circle_of(o), light_uv);
+                [sum[0] + t[0], sum[1] + t[1], sum[2] + t[2]]
+            });
+        }
     }
     // On a large image, every few pixels away from the rim say as much about the shading as all
     // of them: keep the rim's band and thin the rest to the pixel budget.
@@ -135,6 +151,8 @@ struct Shaded {
     light_sigma: [f64; 2],
     /// Fitted as a uniform disc: the ball's shading was below the noise.
     flat: bool,
+    /// RMS residual of the fit, linear light units.
+    rms: f64,
 }
 
 /// Fewest shaded fits that give the photo's light for the others.
@@ -225,13 +243,8 @@ fn lit_otherwise(
     fit_uv: [f64; 2],
     photo_uv: [f64; 2],
 ) -> bool {
-    let circle = Circle {
-        x_px: s.x_px,
-        y_px: s.y_px,
-        r_px: s.r_px,
-    };
-    shade_window(photo, bg, tone, spots, s)
-        .and_then(|window| light_evidence(&window, circle, fit_uv, photo_uv))
+    shade_window(photo, bg, tone, (spots, s), None)
+        .and_then(|window| light_evidence(&window, circle_of(s), fit_uv, photo_uv))
         .is_none_or(|evidence| evidence > 0.0)
 }
 
@@ -250,27 +263,26 @@ const EDGE_BIAS_MIN_FITS: usize = 3;
 /// are uniform discs (a dark ball against its plate), there is no lit limb to pull the edge fits:
 /// they keep their centres and sigmas, and the systematic is 0 (the differences would be the two
 /// fits' noise, and correcting by them adds error rather than removing it).
-fn correct_edge_fits(report: &mut SpotReport, shaded: &[Option<Shaded>]) {
+fn correct_edge_fits(report: &mut SpotReport, shaded: &[Option<Shaded>]) -> Option<[f64; 2]> {
     let fits: Vec<&Shaded> = shaded.iter().flatten().collect();
     if fits.is_empty() {
-        return;
+        return None;
     }
     if 2 * fits.iter().filter(|f| f.flat).count() > fits.len() {
         report.systematic_px = 0.0;
-        return;
+        return None;
     }
     let lit: Vec<&Shaded> = fits.iter().copied().filter(|f| !f.flat).collect();
-    let (bias, scatter_px) = if lit.len() >= EDGE_BIAS_MIN_FITS {
-        match edge_bias(&lit) {
-            Some(measured) => measured,
-            None => {
-                keep_edge_fits(report, shaded);
-                return;
-            }
-        }
+    let measured = if lit.len() >= EDGE_BIAS_MIN_FITS {
+        let Some(measured) = edge_bias(&lit) else {
+            keep_edge_fits(report, shaded);
+            return None;
+        };
+        Some(measured)
     } else {
-        ([0.0; 3], report.systematic_px)
+        None
     };
+    let (bias, scatter_px) = measured.unwrap_or(([0.0; 3], report.systematic_px));
     for (s, shift) in report.spots.iter_mut().zip(shaded) {
         if shift.is_none() {
             s.x_px += bias[0];
@@ -280,6 +292,8 @@ fn correct_edge_fits(report: &mut SpotReport, shaded: &[Option<Shaded>]) {
         }
     }
     report.systematic_px = 0.0;
+    measured
+        .map(|_| std::array::from_fn(|k| upper_median(lit.iter().map(|f| f.light_uv[k]).collect())))
 }
 
 /// The lit limb's pull on the edge fits as the shaded fits `lit` (at least
@@ -333,6 +347,88 @@ fn keep_edge_fits(report: &mut SpotReport, shaded: &[Option<Shaded>]) {
     }
 }
 
+/// The circle of spot `s`.
+fn circle_of(s: &Spot) -> Circle {
+    Circle {
+        x_px: s.x_px,
+        y_px: s.y_px,
+        r_px: s.r_px,
+    }
+}
+
+/// Rounds of the overlapping images' shaded fits, each against its neighbours where the round
+/// before left them.
+const OVERLAP_ROUNDS: usize = 3;
+
+/// Refit the spots that overlap a neighbour (those without a shaded fit of their own, `shaded`
+/// None) by their pixels, the neighbours held in place and the light held at the photo's
+/// `light_uv` ([`shaded_fit_held`]), all of them at once, [`OVERLAP_ROUNDS`] times (block
+/// coordinate descent). A fit replaces the corrected edge fit under the rule of [`shade_spots`];
+/// otherwise the edge fit stands.
+fn refine_overlapping(
+    photo: &Photo,
+    bg: &Background,
+    tone: Tone,
+    (report, shaded): (&mut SpotReport, &[Option<Shaded>]),
+    light_uv: [f64; 2],
+) {
+    let noise = upper_median(shaded.iter().flatten().map(|f| f.rms).collect());
+    let edge = report.spots.clone();
+    let overlaps = |i: usize| {
+        let s = &edge[i];
+        edge.iter().any(|o| {
+            let d = (o.x_px - s.x_px).hypot(o.y_px - s.y_px);
+            d > 0.3 * s.r_px && d < o.r_px + s.r_px
+        })
+    };
+    let crowd: Vec<usize> = (0..edge.len())
+        .filter(|&i| shaded[i].is_none() && overlaps(i))
+        .collect();
+    for _ in 0..OVERLAP_ROUNDS {
+        let spots = &report.spots;
+        let fits: Vec<Option<ShadedFit>> = crowd
+            .par_iter()
+            .map(|&i| {
+                let s = &spots[i];
+                let window = shade_window(photo, bg, tone, (spots, s), Some(light_uv))?;
+                let reach = s.r_px + SHADED_OUTSIDE_PX + 2.0;
+                let neighbours: Vec<(Circle, f64)> = spots
+                    .iter()
+                    .filter(|o| {
+                        let d = (o.x_px - s.x_px).hypot(o.y_px - s.y_px);
+                        d > 0.3 * s.r_px && d < o.r_px + reach
+                    })
+                    .map(|o| (circle_of(o), o.sigma_px))
+                    .collect();
+                shaded_fit_held(&window, circle_of(s), (light_uv, noise), &neighbours)
+            })
+            .collect();
+        for (&i, fit) in crowd.iter().zip(fits) {
+            report.spots[i] = match fit {
+                Some(fit) if replaces(&edge[i], &fit, 0.0) => Spot {
+                    x_px: fit.circle.x_px,
+                    y_px: fit.circle.y_px,
+                    r_px: fit.circle.r_px,
+                    sigma_px: fit.sigma_px,
+                    ..edge[i]
+                },
+                _ => edge[i],
+            };
+        }
+    }
+}
+
+/// A shaded fit replaces the edge fit of spot `s` when it lands near it (a window holding
+/// something else than one ball image does not) and is surer than the edge fit with the photo's
+/// systematic `systematic_px` (a window that lost much of the rim to an incline's edge may not
+/// be).
+fn replaces(s: &Spot, fit: &ShadedFit, systematic_px: f64) -> bool {
+    let shift = (fit.circle.x_px - s.x_px).hypot(fit.circle.y_px - s.y_px);
+    shift <= 0.05 * s.r_px + 3.0 * s.sigma_px + 0.1
+        && (fit.circle.r_px - s.r_px).abs() <= 0.05 * s.r_px + 0.3
+        && fit.sigma_px < s.sigma_px.hypot(systematic_px)
+}
+
 /// Largest number of pixels in a shaded fit's window.
 const SHADED_BUDGET: usize = 1500;
 
@@ -354,13 +450,8 @@ fn shade_spots(
     let fits: Vec<Option<ShadedFit>> = spots
         .par_iter()
         .map(|s| {
-            let window = shade_window(photo, bg, tone, spots, s)?;
-            let start = Circle {
-                x_px: s.x_px,
-                y_px: s.y_px,
-                r_px: s.r_px,
-            };
-            shaded_fit_of(&window, start, printed)
+            let window = shade_window(photo, bg, tone, (spots, s), None)?;
+            shaded_fit_of(&window, circle_of(s), printed)
         })
         .collect();
     let mut shaded = vec![None; spots.len()];
@@ -368,12 +459,7 @@ fn shade_spots(
         let Some(fit) = fit else {
             continue;
         };
-        let shift = (fit.circle.x_px - s.x_px).hypot(fit.circle.y_px - s.y_px);
-        let edge_total = s.sigma_px.hypot(systematic_px);
-        if shift <= 0.05 * s.r_px + 3.0 * s.sigma_px + 0.1
-            && (fit.circle.r_px - s.r_px).abs() <= 0.05 * s.r_px + 0.3
-            && fit.sigma_px < edge_total
-        {
+        if replaces(s, &fit, systematic_px) {
             *done = Some(Shaded {
                 shift: [
                     fit.circle.x_px - s.x_px,
@@ -385,6 +471,7 @@ fn shade_spots(
                 light_uv: fit.light_uv,
                 light_sigma: fit.light_sigma,
                 flat: fit.flat,
+                rms: fit.rms,
             });
             s.x_px = fit.circle.x_px;
             s.y_px = fit.circle.y_px;
@@ -407,6 +494,7 @@ mod tests {
             light_uv: [0.0; 2],
             light_sigma: [0.0; 2],
             flat: false,
+            rms: 0.0,
         }
     }
 
