@@ -8,15 +8,18 @@
 //! corrected by the median lit-limb pull (robust sigma 1.4826 x MAD of the pulls joins theirs)
 //! and the photo's systematic set accordingly. On a printed ball whose lone images the shaded
 //! model describes, the images that overlap a neighbour are then refitted by their pixels too,
-//! their neighbours held in place ([`crate::detect::shaded::shaded_fit_held`]).
+//! their neighbours held in place ([`crate::detect::shaded::shaded_fit_held`]), and candidates
+//! rejected as weak rims between them are taken back where such a fit finds an image.
 
 use crate::core::light::Tone;
 use crate::core::stats::{MAD_TO_SIGMA, upper_median};
 use crate::detect::circle::Circle;
+use crate::detect::joint::DUPLICATE_FRACTION;
 use crate::detect::shaded::{
-    ShadedFit, WindowPixel, held_terms, light_evidence, shaded_fit_held, shaded_fit_of,
+    ShadedFit, WindowPixel, held_terms, light_evidence, shaded_fit_held,
+    shaded_fit_held_with_evidence, shaded_fit_of,
 };
-use crate::detect::{Reason, Rejected, Spot, SpotReport};
+use crate::detect::{Reason, Rejected, Spot, SpotReport, SpotSource};
 use crate::image::background::Background;
 use crate::image::load::Photo;
 use rayon::prelude::*;
@@ -40,7 +43,9 @@ pub fn refine_spots(
     let shaded = drop_other_lights(photo, bg, tone, report, shaded);
     let light_uv = correct_edge_fits(report, &shaded);
     if let Some(light_uv) = light_uv.filter(|_| printed) {
-        refine_overlapping(photo, bg, tone, (report, &shaded), light_uv);
+        let noise = upper_median(shaded.iter().flatten().map(|f| f.rms).collect());
+        let shaded = rescue_rejected(photo, bg, tone, report, (light_uv, noise), shaded);
+        refine_overlapping(photo, bg, tone, (report, &shaded), (light_uv, noise));
     }
 }
 
@@ -370,9 +375,8 @@ fn refine_overlapping(
     bg: &Background,
     tone: Tone,
     (report, shaded): (&mut SpotReport, &[Option<Shaded>]),
-    light_uv: [f64; 2],
+    (light_uv, noise): ([f64; 2], f64),
 ) {
-    let noise = upper_median(shaded.iter().flatten().map(|f| f.rms).collect());
     let edge = report.spots.clone();
     let overlaps = |i: usize| {
         let s = &edge[i];
@@ -391,15 +395,7 @@ fn refine_overlapping(
             .map(|&i| {
                 let s = &spots[i];
                 let window = shade_window(photo, bg, tone, (spots, s), Some(light_uv))?;
-                let reach = s.r_px + SHADED_OUTSIDE_PX + 2.0;
-                let neighbours: Vec<(Circle, f64)> = spots
-                    .iter()
-                    .filter(|o| {
-                        let d = (o.x_px - s.x_px).hypot(o.y_px - s.y_px);
-                        d > 0.3 * s.r_px && d < o.r_px + reach
-                    })
-                    .map(|o| (circle_of(o), o.sigma_px))
-                    .collect();
+                let neighbours = held_neighbours(spots, s);
                 shaded_fit_held(&window, circle_of(s), (light_uv, noise), &neighbours)
             })
             .collect();
@@ -416,6 +412,115 @@ fn refine_overlapping(
             };
         }
     }
+}
+
+/// The spots of `spots` held in place in the window of `s` ([`shade_window`]), each with its
+/// sigma.
+fn held_neighbours(spots: &[Spot], s: &Spot) -> Vec<(Circle, f64)> {
+    let reach = s.r_px + SHADED_OUTSIDE_PX + 2.0;
+    spots
+        .iter()
+        .filter(|o| {
+            let d = (o.x_px - s.x_px).hypot(o.y_px - s.y_px);
+            d > 0.3 * s.r_px && d < o.r_px + reach
+        })
+        .map(|o| (circle_of(o), o.sigma_px))
+        .collect()
+}
+
+/// Least evidence ([`shaded_fit_held_with_evidence`]) for a rejected candidate to be a ball
+/// image: as the crowded start's count asks of an image (`pipeline::crowded`), what a
+/// five-sigma detection would give.
+const RESCUE_EVIDENCE: f64 = 25.0;
+
+/// Largest sigma of a rescued image, in radii. On the real-balls bench the images rescued
+/// between two others are placed to 0.0004-0.0006 radius; a circle straddling the incline's bar
+/// below an image and the image itself, fitted because the disc explains some of the bar's
+/// light, to 0.009 radius or worse.
+const RESCUE_SIGMA: f64 = 0.002;
+
+/// Largest difference of a rescued image's radius from the photo's, in radii (rescued images
+/// on the real-balls bench: within 0.001).
+const RESCUE_RADIUS: f64 = 0.02;
+
+/// A rescued image lies within this many radii of the candidate it started from.
+const RESCUE_REACH: f64 = 0.5;
+
+/// Candidates rejected as weak rims or faint that overlap a spot, taken back as spots when a held
+/// shaded fit from them ([`shaded_fit_held_with_evidence`]) finds a ball image: its pixels
+/// hold it by [`RESCUE_EVIDENCE`] or more, its radius is the photo's (as [`replaces`] asks), it
+/// lies within [`RESCUE_REACH`] radius of the candidate and at least
+/// [`crate::detect::joint::DUPLICATE_FRACTION`] radius from every spot. On a printed ball the
+/// marks' edges can pull the circle fit of an image between two others off it (5 px, a quarter
+/// radius, on the real-balls bench), and its rim is then too weak to keep. The candidates are
+/// tried one by one, each against the spots taken so far; `shaded` gains a None per spot taken.
+fn rescue_rejected(
+    photo: &Photo,
+    bg: &Background,
+    tone: Tone,
+    report: &mut SpotReport,
+    light: ([f64; 2], f64),
+    mut shaded: Vec<Option<Shaded>>,
+) -> Vec<Option<Shaded>> {
+    let Some(common) = report.common_radius_px else {
+        return shaded;
+    };
+    let candidates = std::mem::take(&mut report.rejected);
+    for c in candidates {
+        let start = Spot {
+            x_px: c.x_px,
+            y_px: c.y_px,
+            r_px: common,
+            sigma_px: c.sigma_px,
+            score: c.score,
+            source: SpotSource::Detected,
+        };
+        let overlaps = |s: &Spot| (s.x_px - c.x_px).hypot(s.y_px - c.y_px) < s.r_px + common;
+        let rescued = matches!(c.reason, Reason::WeakRim | Reason::Faint)
+            && report.spots.iter().any(overlaps)
+            && rescue(photo, bg, tone, (&report.spots, &start), light).is_some_and(|fit| {
+                report.spots.push(Spot {
+                    x_px: fit.circle.x_px,
+                    y_px: fit.circle.y_px,
+                    r_px: fit.circle.r_px,
+                    sigma_px: fit.sigma_px,
+                    ..start
+                });
+                true
+            });
+        if rescued {
+            shaded.push(None);
+        } else {
+            report.rejected.push(c);
+        }
+    }
+    shaded
+}
+
+/// The held fit of the candidate `start` among `spots` when it finds a ball image (see
+/// [`rescue_rejected`]).
+fn rescue(
+    photo: &Photo,
+    bg: &Background,
+    tone: Tone,
+    (spots, start): (&[Spot], &Spot),
+    light: ([f64; 2], f64),
+) -> Option<ShadedFit> {
+    let window = shade_window(photo, bg, tone, (spots, start), Some(light.0))?;
+    let neighbours = held_neighbours(spots, start);
+    let (fit, evidence) =
+        shaded_fit_held_with_evidence(&window, circle_of(start), light, &neighbours)?;
+    let r = start.r_px;
+    let c = fit.circle;
+    let apart = spots
+        .iter()
+        .all(|s| (s.x_px - c.x_px).hypot(s.y_px - c.y_px) >= DUPLICATE_FRACTION * r);
+    (evidence >= RESCUE_EVIDENCE
+        && fit.sigma_px <= RESCUE_SIGMA * r
+        && (c.r_px - r).abs() <= RESCUE_RADIUS * r
+        && (c.x_px - start.x_px).hypot(c.y_px - start.y_px) <= RESCUE_REACH * r
+        && apart)
+        .then_some(fit)
 }
 
 /// A shaded fit replaces the edge fit of spot `s` when it lands near it (a window holding
