@@ -16,8 +16,8 @@ use crate::core::stats::{MAD_TO_SIGMA, upper_median};
 use crate::detect::circle::Circle;
 use crate::detect::joint::DUPLICATE_FRACTION;
 use crate::detect::shaded::{
-    ShadedFit, WindowPixel, held_terms, light_evidence, shaded_fit_held,
-    shaded_fit_held_with_evidence, shaded_fit_of,
+    ShadedFit, WindowPixel, held_terms, light_evidence, light_evidence_without_marks,
+    shaded_fit_held, shaded_fit_held_with_evidence, shaded_fit_of,
 };
 use crate::detect::{Reason, Rejected, Spot, SpotReport, SpotSource};
 use crate::image::background::Background;
@@ -40,7 +40,7 @@ pub fn refine_spots(
         (&mut report.spots, printed),
         report.systematic_px,
     );
-    let shaded = drop_other_lights(photo, bg, tone, report, shaded);
+    let shaded = drop_other_lights(photo, bg, tone, (report, printed), shaded);
     let light_uv = correct_edge_fits(report, &shaded);
     if let Some(light_uv) = light_uv.filter(|_| printed) {
         let noise = upper_median(shaded.iter().flatten().map(|f| f.rms).collect());
@@ -175,12 +175,13 @@ const LIGHT_AGREE_DEG: f64 = 5.0;
 
 /// Spots whose shading shows another light than the photo's (the median of its shaded fits'
 /// light directions, when they agree on it) are rejected as `OtherLight`; the shaded fits of the
-/// rest are returned.
+/// rest are returned. On a printed ball (`printed`) the pixels' evidence for a light is read
+/// without the marks ([`light_evidence_without_marks`]).
 fn drop_other_lights(
     photo: &Photo,
     bg: &Background,
     tone: Tone,
-    report: &mut SpotReport,
+    (report, printed): (&mut SpotReport, bool),
     shaded: Vec<Option<Shaded>>,
 ) -> Vec<Option<Shaded>> {
     let lights: Vec<&Shaded> = shaded.iter().flatten().collect();
@@ -216,7 +217,7 @@ fn drop_other_lights(
                 (f.light_sigma[0].hypot(f.light_sigma[1]) / (1.0 + a * a + b * b)).to_degrees();
             let other = angle_deg > OTHER_LIGHT_DEG
                 && angle_deg > 4.0 * sigma_deg
-                && lit_otherwise(photo, bg, tone, &spots, &s, f.light_uv, [u, v]);
+                && lit_otherwise(photo, bg, tone, (&spots, &s, printed), f.light_uv, [u, v]);
             if other {
                 report.rejected.push(Rejected {
                     x_px: s.x_px,
@@ -243,13 +244,17 @@ fn lit_otherwise(
     photo: &Photo,
     bg: &Background,
     tone: Tone,
-    spots: &[Spot],
-    s: &Spot,
+    (spots, s, printed): (&[Spot], &Spot, bool),
     fit_uv: [f64; 2],
     photo_uv: [f64; 2],
 ) -> bool {
+    let evidence = if printed {
+        light_evidence_without_marks
+    } else {
+        light_evidence
+    };
     shade_window(photo, bg, tone, (spots, s), None)
-        .and_then(|window| light_evidence(&window, circle_of(s), fit_uv, photo_uv))
+        .and_then(|window| evidence(&window, circle_of(s), fit_uv, photo_uv))
         .is_none_or(|evidence| evidence > 0.0)
 }
 
