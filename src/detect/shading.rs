@@ -453,8 +453,9 @@ const RESCUE_REACH: f64 = 0.5;
 
 /// Candidates rejected as weak rims or faint that overlap a spot, taken back as spots when a held
 /// shaded fit from them ([`shaded_fit_held_with_evidence`]) finds a ball image: its pixels
-/// hold it by [`RESCUE_EVIDENCE`] or more, its radius is the photo's (as [`replaces`] asks), it
-/// lies within [`RESCUE_REACH`] radius of the candidate and at least
+/// hold it by [`RESCUE_EVIDENCE`] or more, its sigma is at most [`RESCUE_SIGMA`] radius, its
+/// radius within [`RESCUE_RADIUS`] of the photo's, it lies within [`RESCUE_REACH`] radius of
+/// the candidate and at least
 /// [`crate::detect::joint::DUPLICATE_FRACTION`] radius from every spot. On a printed ball the
 /// marks' edges can pull the circle fit of an image between two others off it (5 px, a quarter
 /// radius, on the real-balls bench), and its rim is then too weak to keep. The candidates are
@@ -480,9 +481,13 @@ fn rescue_rejected(
             score: c.score,
             source: SpotSource::Detected,
         };
-        let overlaps = |s: &Spot| (s.x_px - c.x_px).hypot(s.y_px - c.y_px) < s.r_px + common;
+        let apart = |s: &Spot| (s.x_px - c.x_px).hypot(s.y_px - c.y_px);
         let rescued = matches!(c.reason, Reason::WeakRim | Reason::Faint)
-            && report.spots.iter().any(overlaps)
+            && report.spots.iter().any(|s| apart(s) < s.r_px + common)
+            && report
+                .spots
+                .iter()
+                .all(|s| apart(s) >= DUPLICATE_FRACTION * common)
             && rescue(photo, bg, tone, (&report.spots, &start), light).is_some_and(|fit| {
                 report.spots.push(Spot {
                     x_px: fit.circle.x_px,
