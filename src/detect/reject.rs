@@ -31,6 +31,9 @@ pub enum Reason {
     /// Its shading shows a light from another side than the photo's other images do (a mirror
     /// image of the ball in a glossy floor).
     OtherLight,
+    /// An image too many: beside an image it overlaps, the pixels are explained without it (a
+    /// circle straddling a printed ball's image and the incline's bar below it).
+    Surplus,
 }
 
 /// A candidate that was not kept, with the reason.

@@ -9,7 +9,9 @@
 //! and the photo's systematic set accordingly. On a printed ball whose lone images the shaded
 //! model describes, the images that overlap a neighbour are then refitted by their pixels too,
 //! their neighbours held in place ([`crate::detect::shaded::shaded_fit_held`]), and candidates
-//! rejected as weak rims between them are taken back where such a fit finds an image.
+//! rejected as weak rims between them are taken back where such a fit finds an image, and a
+//! crowded spot whose pixels are explained better without it is rejected as
+//! [`Reason::Surplus`].
 
 use crate::core::light::Tone;
 use crate::core::stats::{MAD_TO_SIGMA, upper_median};
@@ -45,7 +47,8 @@ pub fn refine_spots(
     if let Some(light_uv) = light_uv.filter(|_| printed) {
         let noise = upper_median(shaded.iter().flatten().map(|f| f.rms).collect());
         let shaded = rescue_rejected(photo, bg, tone, report, (light_uv, noise), shaded);
-        refine_overlapping(photo, bg, tone, (report, &shaded), (light_uv, noise));
+        let held = refine_overlapping(photo, bg, tone, (report, &shaded), (light_uv, noise));
+        drop_surplus(photo, bg, tone, (report, held), (light_uv, noise));
     }
 }
 
@@ -374,14 +377,15 @@ const OVERLAP_ROUNDS: usize = 3;
 /// None) by their pixels, the neighbours held in place and the light held at the photo's
 /// `light_uv` ([`shaded_fit_held`]), all of them at once, [`OVERLAP_ROUNDS`] times (block
 /// coordinate descent). A fit replaces the corrected edge fit under the rule of [`shade_spots`];
-/// otherwise the edge fit stands.
+/// otherwise the edge fit stands. Gives, for each spot, whether it is one of the crowd whose
+/// held fit the last round did not take.
 fn refine_overlapping(
     photo: &Photo,
     bg: &Background,
     tone: Tone,
     (report, shaded): (&mut SpotReport, &[Option<Shaded>]),
     (light_uv, noise): ([f64; 2], f64),
-) {
+) -> Vec<bool> {
     let edge = report.spots.clone();
     let overlaps = |i: usize| {
         let s = &edge[i];
@@ -393,6 +397,7 @@ fn refine_overlapping(
     let crowd: Vec<usize> = (0..edge.len())
         .filter(|&i| shaded[i].is_none() && overlaps(i))
         .collect();
+    let mut failed = vec![false; edge.len()];
     for _ in 0..OVERLAP_ROUNDS {
         let spots = &report.spots;
         let fits: Vec<Option<ShadedFit>> = crowd
@@ -405,17 +410,97 @@ fn refine_overlapping(
             })
             .collect();
         for (&i, fit) in crowd.iter().zip(fits) {
-            report.spots[i] = match fit {
-                Some(fit) if replaces(&edge[i], &fit, 0.0) => Spot {
-                    x_px: fit.circle.x_px,
-                    y_px: fit.circle.y_px,
-                    r_px: fit.circle.r_px,
-                    sigma_px: fit.sigma_px,
-                    ..edge[i]
-                },
-                _ => edge[i],
-            };
+            let taken = fit.filter(|fit| replaces(&edge[i], fit, 0.0));
+            failed[i] = taken.is_none();
+            report.spots[i] = taken.map_or(edge[i], |fit| held_spot(&edge[i], &fit));
         }
+    }
+    failed
+}
+
+/// Spot `s` placed by the held fit `fit`.
+fn held_spot(s: &Spot, fit: &ShadedFit) -> Spot {
+    Spot {
+        x_px: fit.circle.x_px,
+        y_px: fit.circle.y_px,
+        r_px: fit.circle.r_px,
+        sigma_px: fit.sigma_px,
+        ..*s
+    }
+}
+
+/// Two crowded spots whose held fits both failed are tried against each other when they lie
+/// within this many radii: nearer than images a flash apart that the detector keeps apart.
+const SURPLUS_NEAR: f64 = 1.0;
+
+/// Spots whose held fit failed (`failed`) beside another that failed too, within
+/// [`SURPLUS_NEAR`] radius, are tried out: the spot goes (rejected as [`Reason::Surplus`]) when,
+/// without it, every such neighbour's held fit is taken (under the rule of [`replaces`]) and a
+/// held fit of the spot among the neighbours so placed finds no image (no fit, evidence under
+/// [`RESCUE_EVIDENCE`], or a sigma over [`RESCUE_SIGMA`] radius): the pixels are explained
+/// better without it. A true image whose neighbour the detector missed fails its held fit too,
+/// but without it its neighbours' fits lose its light and fail as well.
+fn drop_surplus(
+    photo: &Photo,
+    bg: &Background,
+    tone: Tone,
+    (report, mut failed): (&mut SpotReport, Vec<bool>),
+    light: ([f64; 2], f64),
+) {
+    let mut i = 0;
+    while i < report.spots.len() {
+        let s = report.spots[i];
+        let near: Vec<usize> = (0..report.spots.len())
+            .filter(|&j| j != i && failed[i] && failed[j])
+            .filter(|&j| {
+                let o = &report.spots[j];
+                (o.x_px - s.x_px).hypot(o.y_px - s.y_px) < SURPLUS_NEAR * s.r_px
+            })
+            .collect();
+        let mut without = report.spots.clone();
+        without.remove(i);
+        let placed = (!near.is_empty())
+            .then(|| {
+                near.iter()
+                    .map(|&j| {
+                        let j = if j > i { j - 1 } else { j };
+                        let o = without[j];
+                        let window = shade_window(photo, bg, tone, (&without, &o), Some(light.0))?;
+                        let fit = shaded_fit_held(
+                            &window,
+                            circle_of(&o),
+                            light,
+                            &held_neighbours(&without, &o),
+                        )?;
+                        replaces(&o, &fit, 0.0).then(|| (j, held_spot(&o, &fit)))
+                    })
+                    .collect::<Option<Vec<(usize, Spot)>>>()
+            })
+            .flatten();
+        let Some(placed) = placed else {
+            i += 1;
+            continue;
+        };
+        for &(j, o) in &placed {
+            without[j] = o;
+        }
+        if rescue(photo, bg, tone, (&without, &s), light).is_some() {
+            i += 1;
+            continue;
+        }
+        report.rejected.push(Rejected {
+            x_px: s.x_px,
+            y_px: s.y_px,
+            r_px: s.r_px,
+            score: s.score,
+            sigma_px: s.sigma_px,
+            reason: Reason::Surplus,
+        });
+        failed.remove(i);
+        for &(j, _) in &placed {
+            failed[j] = false;
+        }
+        report.spots = without;
     }
 }
 
