@@ -222,14 +222,7 @@ fn drop_other_lights(
                 && angle_deg > 4.0 * sigma_deg
                 && lit_otherwise(photo, bg, tone, (&spots, &s, printed), f.light_uv, [u, v]);
             if other {
-                report.rejected.push(Rejected {
-                    x_px: s.x_px,
-                    y_px: s.y_px,
-                    r_px: s.r_px,
-                    score: s.score,
-                    sigma_px: s.sigma_px,
-                    reason: Reason::OtherLight,
-                });
+                report.rejected.push(rejected(&s, Reason::OtherLight));
                 continue;
             }
         }
@@ -357,6 +350,18 @@ fn keep_edge_fits(report: &mut SpotReport, shaded: &[Option<Shaded>]) {
         if let Some(f) = f {
             [s.x_px, s.y_px, s.r_px, s.sigma_px] = f.edge;
         }
+    }
+}
+
+/// Spot `s` as a candidate rejected for `reason`.
+fn rejected(s: &Spot, reason: Reason) -> Rejected {
+    Rejected {
+        x_px: s.x_px,
+        y_px: s.y_px,
+        r_px: s.r_px,
+        score: s.score,
+        sigma_px: s.sigma_px,
+        reason,
     }
 }
 
@@ -488,14 +493,7 @@ fn drop_surplus(
             i += 1;
             continue;
         }
-        report.rejected.push(Rejected {
-            x_px: s.x_px,
-            y_px: s.y_px,
-            r_px: s.r_px,
-            score: s.score,
-            sigma_px: s.sigma_px,
-            reason: Reason::Surplus,
-        });
+        report.rejected.push(rejected(&s, Reason::Surplus));
         failed.remove(i);
         for &(j, _) in &placed {
             failed[j] = false;
