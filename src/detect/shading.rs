@@ -18,7 +18,7 @@ use crate::core::stats::{MAD_TO_SIGMA, upper_median};
 use crate::detect::circle::Circle;
 use crate::detect::joint::DUPLICATE_FRACTION;
 use crate::detect::shaded::{
-    ShadedFit, WindowPixel, held_terms, light_evidence, light_evidence_without_marks,
+    ShadedFit, WindowPixel, held_start, held_terms, light_evidence, light_evidence_without_marks,
     shaded_fit_held, shaded_fit_held_with_evidence, shaded_fit_of,
 };
 use crate::detect::{Reason, Rejected, Spot, SpotReport, SpotSource};
@@ -541,8 +541,11 @@ const RESCUE_REACH: f64 = 0.5;
 /// the candidate and at least
 /// [`crate::detect::joint::DUPLICATE_FRACTION`] radius from every spot. On a printed ball the
 /// marks' edges can pull the circle fit of an image between two others off it (5 px, a quarter
-/// radius, on the real-balls bench), and its rim is then too weak to keep. The candidates are
-/// tried one by one, each against the spots taken so far; `shaded` gains a None per spot taken.
+/// radius, on the real-balls bench), and its rim is then too weak to keep. The held fit starts
+/// from the candidate's best point on a grid ([`held_start`]) in a window round that point: from
+/// the candidate itself, a window reaching over the incline's bar held too little of the image.
+/// The candidates are tried one by one, each against the spots taken so far; `shaded` gains a
+/// None per spot taken.
 fn rescue_rejected(
     photo: &Photo,
     bg: &Background,
@@ -600,9 +603,15 @@ fn rescue(
     light: ([f64; 2], f64),
 ) -> Option<ShadedFit> {
     let window = shade_window(photo, bg, tone, (spots, start), Some(light.0))?;
-    let neighbours = held_neighbours(spots, start);
-    let (fit, evidence) =
-        shaded_fit_held_with_evidence(&window, circle_of(start), light, &neighbours)?;
+    let from = held_start(&window, circle_of(start), light.0, RESCUE_REACH)?;
+    let moved = Spot {
+        x_px: from.x_px,
+        y_px: from.y_px,
+        ..*start
+    };
+    let window = shade_window(photo, bg, tone, (spots, &moved), Some(light.0))?;
+    let neighbours = held_neighbours(spots, &moved);
+    let (fit, evidence) = shaded_fit_held_with_evidence(&window, from, light, &neighbours)?;
     let r = start.r_px;
     let c = fit.circle;
     let apart = spots
