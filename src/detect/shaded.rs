@@ -986,42 +986,40 @@ fn trimmed_misfit(window: &[WindowPixel], p: &[f64; SHADED_NP]) -> Option<f64> {
     Some(sq[..h].iter().sum())
 }
 
-/// The start for a held fit of an image near `start`: the grid point, 0.05 radius apart and
-/// within `reach` radii of it, of the least trimmed misfit (`trimmed_misfit`, under the photo's
-/// light `light_uv`, the radius held). A candidate pulled a quarter radius off an image (by its
-/// marks' edges) puts the image's window over what lies beside it, an incline's bar say; a held
-/// fit from there can stall, while the misfit of the model's best pixels still points to the
-/// image.
+/// The start for a held fit of an image near `start`: the point of least trimmed misfit
+/// (`trimmed_misfit`, under the photo's light `light_uv`, the radius held) on a grid 0.1 radius
+/// apart within `reach` radii of it, then on one 0.05 radius apart round the best. A candidate
+/// pulled a quarter radius off an image (by its marks' edges) puts the image's window over what
+/// lies beside it, an incline's bar say; a held fit from there can stall, while the misfit of
+/// the model's best pixels still points to the image.
 pub fn held_start(
     window: &[WindowPixel],
     start: Circle,
     light_uv: [f64; 2],
     reach: f64,
 ) -> Option<Circle> {
-    let step = 0.05 * start.r_px;
-    let n = (reach / 0.05).floor() as i64;
-    let mut best: Option<(f64, Circle)> = None;
-    for i in -n..=n {
-        for j in -n..=n {
-            let (dx, dy) = (i as f64 * step, j as f64 * step);
-            if dx.hypot(dy) > reach * start.r_px {
-                continue;
-            }
+    let r = start.r_px;
+    let within = |c: &Circle| (c.x_px - start.x_px).hypot(c.y_px - start.y_px) <= reach * r;
+    let best_of = |centre: Circle, step: f64, n: i64| {
+        let mut best: Option<(f64, Circle)> = None;
+        for (i, j) in (-n..=n).flat_map(|i| (-n..=n).map(move |j| (i, j))) {
             let c = Circle {
-                x_px: start.x_px + dx,
-                y_px: start.y_px + dy,
-                r_px: start.r_px,
+                x_px: centre.x_px + i as f64 * step,
+                y_px: centre.y_px + j as f64 * step,
+                r_px: r,
             };
-            let p = [c.x_px, c.y_px, c.r_px, light_uv[0], light_uv[1]];
-            let Some(m) = trimmed_misfit(window, &p) else {
+            let p = [c.x_px, c.y_px, r, light_uv[0], light_uv[1]];
+            let Some(m) = within(&c).then(|| trimmed_misfit(window, &p)).flatten() else {
                 continue;
             };
             if best.is_none_or(|(b, _)| m < b) {
                 best = Some((m, c));
             }
         }
-    }
-    best.map(|(_, c)| c)
+        best.map(|(_, c)| c)
+    };
+    let coarse = best_of(start, 0.1 * r, (reach / 0.1).floor() as i64)?;
+    best_of(coarse, 0.05 * r, 1)
 }
 
 /// Fit the image at `start` that overlaps its neighbours, held in place in the window's
