@@ -935,17 +935,25 @@ struct HeldClean {
 /// The variance per axis of a held fit from the margin left round its outliers: half the
 /// squared move of the centre when the margin is one pixel wider (the pixels beside a mark mix
 /// some of it in; a fit that moves when they go was pulled by them). Zero when the wider margin
-/// would leave less than [`HELD_MIN_KEPT`] of the window.
+/// would leave less than [`MARGIN_PROBE_MIN_KEPT`] of the window.
 fn margin_variance(window: &[WindowPixel], clean: &HeldClean) -> Option<f64> {
     let (res, cut, margin) = &clean.chosen;
     let wider = without_outliers(window, res, *cut, margin + 1);
-    if (wider.len() as f64) < HELD_MIN_KEPT * window.len() as f64 {
+    if (wider.len() as f64) < MARGIN_PROBE_MIN_KEPT * window.len() as f64 {
         return Some(0.0);
     }
     let p = clean.state.0;
     let (q, ..) = shaded_lm(&wider, p, Shading::Held)?;
     Some(0.5 * ((q[0] - p[0]).powi(2) + (q[1] - p[1]).powi(2)))
 }
+
+/// Least fraction of the window the probe of [`margin_variance`] keeps. Below the held fit's own
+/// [`HELD_MIN_KEPT`]: the images of a crowded start keep 0.45-0.55 of their windows with no
+/// margin, so a probe held to 0.4 found no wider margin there and gave nothing, where the fits
+/// were least sure (on the real-balls bench, panel lines under JPEG 85: RMS error over sigma of
+/// the overlapping images 1.35 with 0.4, 1.27 with 0.3, images beyond 3 sigma 6 -> 3 of 147;
+/// with 0.2, 1.11 and none, but the larger sigmas then lost an image at the crowded start).
+const MARGIN_PROBE_MIN_KEPT: f64 = 0.3;
 
 /// The median absolute value of normal noise over its lower quartile (0.6745 / 0.3186).
 const QUARTER_TO_MAD: f64 = 0.6745 / 0.3186;
@@ -1033,8 +1041,7 @@ pub fn held_start(
 /// the neighbours' errors carried in to first order (`neighbours`: the circles held in the
 /// window's pixels, each with its 1-sigma per axis). The jackknife's holds the noise again, so
 /// the sum is on the safe side: on the real-balls bench the overlapping images' RMS error over
-/// sigma is 0.9-1.3 (1.35 with panel lines under JPEG 85, whose blocks the jackknife's sectors
-/// do not see).
+/// sigma is 0.9-1.3.
 pub fn shaded_fit_held(
     window: &[WindowPixel],
     start: Circle,
