@@ -407,12 +407,7 @@ fn refine_overlapping(
         let spots = &report.spots;
         let fits: Vec<Option<ShadedFit>> = crowd
             .par_iter()
-            .map(|&i| {
-                let s = &spots[i];
-                let window = shade_window(photo, bg, tone, (spots, s), Some(light_uv))?;
-                let neighbours = held_neighbours(spots, s);
-                shaded_fit_held(&window, circle_of(s), (light_uv, noise), &neighbours)
-            })
+            .map(|&i| held_fit(photo, bg, tone, (spots, &spots[i]), (light_uv, noise)))
             .collect();
         for (&i, fit) in crowd.iter().zip(fits) {
             let taken = fit.filter(|fit| replaces(&edge[i], fit, 0.0));
@@ -480,26 +475,21 @@ fn drop_surplus(
                 (o.x_px - s.x_px).hypot(o.y_px - s.y_px) < SURPLUS_NEAR * s.r_px
             })
             .collect();
+        if near.is_empty() {
+            i += 1;
+            continue;
+        }
         let mut without = report.spots.clone();
         without.remove(i);
-        let placed = (!near.is_empty())
-            .then(|| {
-                near.iter()
-                    .map(|&j| {
-                        let j = if j > i { j - 1 } else { j };
-                        let o = without[j];
-                        let window = shade_window(photo, bg, tone, (&without, &o), Some(light.0))?;
-                        let fit = shaded_fit_held(
-                            &window,
-                            circle_of(&o),
-                            light,
-                            &held_neighbours(&without, &o),
-                        )?;
-                        replaces(&o, &fit, 0.0).then(|| (j, held_spot(&o, &fit)))
-                    })
-                    .collect::<Option<Vec<(usize, Spot)>>>()
+        let placed = near
+            .iter()
+            .map(|&j| {
+                let j = if j > i { j - 1 } else { j };
+                let o = without[j];
+                let fit = held_fit(photo, bg, tone, (&without, &o), light)?;
+                replaces(&o, &fit, 0.0).then(|| (j, held_spot(&o, &fit)))
             })
-            .flatten();
+            .collect::<Option<Vec<(usize, Spot)>>>();
         let Some(placed) = placed else {
             i += 1;
             continue;
@@ -518,6 +508,19 @@ fn drop_surplus(
         }
         report.spots = without;
     }
+}
+
+/// The held fit of spot `s` among `spots` ([`shaded_fit_held`]) under the photo's light and the
+/// lone fits' residual RMS (`light`).
+fn held_fit(
+    photo: &Photo,
+    bg: &Background,
+    tone: Tone,
+    (spots, s): (&[Spot], &Spot),
+    light: ([f64; 2], f64),
+) -> Option<ShadedFit> {
+    let window = shade_window(photo, bg, tone, (spots, s), Some(light.0))?;
+    shaded_fit_held(&window, circle_of(s), light, &held_neighbours(spots, s))
 }
 
 /// The spots of `spots` held in place in the window of `s` ([`shade_window`]), each with its
